@@ -1,0 +1,284 @@
+package gen
+
+import (
+	"fmt"
+	"reflect"
+	"sort"
+	"strconv"
+	"strings"
+
+	"go.yaml.in/yaml/v3"
+)
+
+// RecipeError is a refused recipe: it names the file, line, column, the field
+// path, the bad value and what is allowed.
+type RecipeError struct {
+	File   string
+	Line   int
+	Column int
+	Path   string // e.g. layers[0].objects[1].size
+	Value  string // the offending value as written, may be empty
+	Msg    string // what is wrong and what is allowed
+}
+
+func (e *RecipeError) Error() string {
+	var b strings.Builder
+	b.WriteString(e.File)
+	if e.Line > 0 {
+		fmt.Fprintf(&b, ":%d:%d", e.Line, e.Column)
+	}
+	b.WriteString(": ")
+	if e.Path != "" {
+		b.WriteString(e.Path)
+		b.WriteString(": ")
+	}
+	b.WriteString(e.Msg)
+	if e.Value != "" {
+		fmt.Fprintf(&b, " (got %s)", e.Value)
+	}
+	return b.String()
+}
+
+// pos is a line and column in the recipe file.
+type pos struct{ line, col int }
+
+// decoder turns a YAML node tree into recipe structs, rejecting unknown
+// fields and wrong types, and remembers where every field path was written.
+type decoder struct {
+	file string
+	at   map[string]pos
+}
+
+// nodeDecoder is implemented by recipe types with a flexible YAML form (a
+// scalar or a [min, max] pair, say).
+type nodeDecoder interface {
+	decodeNode(d *decoder, n *yaml.Node, path string) error
+}
+
+func (d *decoder) errAt(n *yaml.Node, path, value, format string, args ...any) *RecipeError {
+	e := &RecipeError{File: d.file, Path: path, Value: value, Msg: fmt.Sprintf(format, args...)}
+	if n != nil {
+		e.Line, e.Column = n.Line, n.Column
+	} else if p, ok := d.at[path]; ok {
+		e.Line, e.Column = p.line, p.col
+	}
+	return e
+}
+
+// errPath reports an error at a field path recorded during decoding; when the
+// path was not written (a missing field) it falls back to its parent.
+func (d *decoder) errPath(path, value, format string, args ...any) *RecipeError {
+	p := path
+	for {
+		if at, ok := d.at[p]; ok {
+			e := d.errAt(nil, path, value, format, args...)
+			e.Line, e.Column = at.line, at.col
+			return e
+		}
+		i := strings.LastIndexAny(p, ".[")
+		if i < 0 {
+			break
+		}
+		p = p[:i]
+	}
+	return d.errAt(nil, path, value, format, args...)
+}
+
+func show(n *yaml.Node) string {
+	switch n.Kind {
+	case yaml.ScalarNode:
+		if n.Tag == "!!str" {
+			return strconv.Quote(n.Value)
+		}
+		return n.Value
+	case yaml.SequenceNode:
+		parts := make([]string, 0, len(n.Content))
+		for _, c := range n.Content {
+			parts = append(parts, show(c))
+		}
+		s := "[" + strings.Join(parts, ", ") + "]"
+		if len(s) > 60 {
+			s = s[:57] + "...]"
+		}
+		return s
+	case yaml.MappingNode:
+		return "a mapping"
+	case yaml.AliasNode:
+		return "an alias"
+	}
+	return "nothing"
+}
+
+func kindName(n *yaml.Node) string {
+	switch n.Kind {
+	case yaml.ScalarNode:
+		switch n.Tag {
+		case "!!int":
+			return "an integer"
+		case "!!float":
+			return "a number"
+		case "!!bool":
+			return "a boolean"
+		case "!!null":
+			return "null"
+		}
+		return "a string"
+	case yaml.SequenceNode:
+		return "a list"
+	case yaml.MappingNode:
+		return "a mapping"
+	}
+	return "an alias"
+}
+
+var nodeDecoderType = reflect.TypeOf((*nodeDecoder)(nil)).Elem()
+
+func (d *decoder) decode(n *yaml.Node, v reflect.Value, path string) error {
+	if n.Kind == yaml.DocumentNode && len(n.Content) == 1 {
+		n = n.Content[0]
+	}
+	if n.Kind == yaml.AliasNode {
+		return d.errAt(n, path, "", "YAML aliases are not allowed in recipes")
+	}
+	d.at[path] = pos{n.Line, n.Column}
+	if v.Kind() == reflect.Pointer {
+		if n.Tag == "!!null" {
+			return nil
+		}
+		if v.IsNil() {
+			v.Set(reflect.New(v.Type().Elem()))
+		}
+		return d.decode(n, v.Elem(), path)
+	}
+	if v.CanAddr() && v.Addr().Type().Implements(nodeDecoderType) {
+		return v.Addr().Interface().(nodeDecoder).decodeNode(d, n, path)
+	}
+	switch v.Kind() {
+	case reflect.Struct:
+		return d.decodeStruct(n, v, path)
+	case reflect.Slice:
+		if n.Kind != yaml.SequenceNode {
+			return d.errAt(n, path, show(n), "want a list, found %s", kindName(n))
+		}
+		s := reflect.MakeSlice(v.Type(), len(n.Content), len(n.Content))
+		for i, c := range n.Content {
+			if err := d.decode(c, s.Index(i), fmt.Sprintf("%s[%d]", path, i)); err != nil {
+				return err
+			}
+		}
+		v.Set(s)
+		return nil
+	case reflect.String:
+		if n.Kind != yaml.ScalarNode || n.Tag == "!!null" {
+			return d.errAt(n, path, show(n), "want a string, found %s", kindName(n))
+		}
+		v.SetString(n.Value)
+		return nil
+	case reflect.Bool:
+		if n.Kind != yaml.ScalarNode || n.Tag != "!!bool" {
+			return d.errAt(n, path, show(n), "want true or false, found %s", kindName(n))
+		}
+		b, _ := strconv.ParseBool(strings.ToLower(n.Value))
+		v.SetBool(b)
+		return nil
+	case reflect.Int:
+		i, err := scalarInt(n)
+		if err != nil {
+			return d.errAt(n, path, show(n), "%v", err)
+		}
+		v.SetInt(int64(i))
+		return nil
+	case reflect.Float64:
+		f, err := scalarFloat(n)
+		if err != nil {
+			return d.errAt(n, path, show(n), "%v", err)
+		}
+		v.SetFloat(f)
+		return nil
+	}
+	return d.errAt(n, path, "", "internal: cannot decode into %s", v.Type())
+}
+
+func scalarInt(n *yaml.Node) (int, error) {
+	if n.Kind != yaml.ScalarNode || (n.Tag != "!!int" && n.Tag != "!!float") {
+		return 0, fmt.Errorf("want an integer, found %s", kindName(n))
+	}
+	f, err := strconv.ParseFloat(n.Value, 64)
+	if err != nil {
+		i, err2 := strconv.ParseInt(n.Value, 0, 64)
+		if err2 != nil {
+			return 0, fmt.Errorf("want an integer, found %s", kindName(n))
+		}
+		f = float64(i)
+	}
+	if f != float64(int64(f)) || f > 1<<31 || f < -(1<<31) {
+		return 0, fmt.Errorf("want a whole number within ±2^31")
+	}
+	return int(f), nil
+}
+
+func scalarFloat(n *yaml.Node) (float64, error) {
+	if n.Kind != yaml.ScalarNode || (n.Tag != "!!int" && n.Tag != "!!float") {
+		return 0, fmt.Errorf("want a number, found %s", kindName(n))
+	}
+	f, err := strconv.ParseFloat(n.Value, 64)
+	if err != nil {
+		i, err2 := strconv.ParseInt(n.Value, 0, 64)
+		if err2 != nil {
+			return 0, fmt.Errorf("want a number, found %s", kindName(n))
+		}
+		f = float64(i)
+	}
+	if f != f || f > 1e12 || f < -1e12 {
+		return 0, fmt.Errorf("want a finite number within ±1e12")
+	}
+	return f, nil
+}
+
+func yamlName(f reflect.StructField) string {
+	tag := f.Tag.Get("yaml")
+	if tag == "-" {
+		return ""
+	}
+	if i := strings.IndexByte(tag, ','); i >= 0 {
+		tag = tag[:i]
+	}
+	return tag
+}
+
+func (d *decoder) decodeStruct(n *yaml.Node, v reflect.Value, path string) error {
+	if n.Kind != yaml.MappingNode {
+		return d.errAt(n, path, show(n), "want a mapping, found %s", kindName(n))
+	}
+	t := v.Type()
+	fields := map[string]int{}
+	var names []string
+	for i := 0; i < t.NumField(); i++ {
+		if name := yamlName(t.Field(i)); name != "" {
+			fields[name] = i
+			names = append(names, name)
+		}
+	}
+	seen := map[string]bool{}
+	for i := 0; i+1 < len(n.Content); i += 2 {
+		k, val := n.Content[i], n.Content[i+1]
+		sub := k.Value
+		if path != "" {
+			sub = path + "." + k.Value
+		}
+		idx, ok := fields[k.Value]
+		if !ok {
+			sorted := append([]string(nil), names...)
+			sort.Strings(sorted)
+			return d.errAt(k, sub, "", "unknown field %q; allowed here: %s", k.Value, strings.Join(sorted, ", "))
+		}
+		if seen[k.Value] {
+			return d.errAt(k, sub, "", "field %q is given twice", k.Value)
+		}
+		seen[k.Value] = true
+		if err := d.decode(val, v.Field(idx), sub); err != nil {
+			return err
+		}
+	}
+	return nil
+}

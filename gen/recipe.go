@@ -1,0 +1,378 @@
+package gen
+
+import (
+	"bytes"
+	"fmt"
+	"math"
+	"os"
+	"sort"
+	"strconv"
+
+	"go.yaml.in/yaml/v3"
+)
+
+// Recipe is a parsed, validated scene description. Field tags are the YAML
+// names; schema/recipe.schema.json describes the same syntax.
+type Recipe struct {
+	Name        string       `yaml:"name" json:"name"`
+	Description string       `yaml:"description" json:"description,omitempty"`
+	Canvas      Canvas       `yaml:"canvas" json:"canvas"`
+	Background  Background   `yaml:"background" json:"background"`
+	Classes     []ClassSpec  `yaml:"classes" json:"classes"`
+	Layers      []Layer      `yaml:"layers" json:"layers"`
+	Targets     []TargetSpec `yaml:"targets" json:"targets"`
+
+	file    string
+	fonts   map[string]*Font // by font name or file
+	classID map[string]int
+	dir     string
+}
+
+// Canvas is the image size and pixel format.
+type Canvas struct {
+	Width     int    `yaml:"width" json:"width"`
+	Height    int    `yaml:"height" json:"height"`
+	Mode      string `yaml:"mode" json:"mode"` // gray (default) or rgb
+	Antialias *bool  `yaml:"antialias" json:"antialias"`
+}
+
+// Background fills the canvas before objects are drawn.
+type Background struct {
+	Kind         string       `yaml:"kind" json:"kind"` // solid, gradient or noise
+	Intensity    *Range       `yaml:"intensity" json:"intensity,omitempty"`
+	Colour       *ColourRange `yaml:"colour" json:"colour,omitempty"`
+	EndIntensity *Range       `yaml:"end_intensity" json:"end_intensity,omitempty"`
+	EndColour    *ColourRange `yaml:"end_colour" json:"end_colour,omitempty"`
+	Angle        *Range       `yaml:"angle" json:"angle,omitempty"`
+	Cell         *Range       `yaml:"cell" json:"cell,omitempty"`
+}
+
+// ClassSpec names a class and its palette colour; ids follow list order from 1.
+type ClassSpec struct {
+	Name   string `yaml:"name" json:"name"`
+	Colour []int  `yaml:"colour" json:"colour"`
+}
+
+// Layer is a group of objects placed by one layout; later layers draw on top.
+type Layer struct {
+	Layout  Layout       `yaml:"layout" json:"layout"`
+	Objects []ObjectSpec `yaml:"objects" json:"objects"`
+}
+
+// Layout says where a layer's objects go.
+type Layout struct {
+	Kind           string     `yaml:"kind" json:"kind"` // scatter, row or grid
+	Region         []float64  `yaml:"region" json:"region,omitempty"`
+	MaxOverlap     float64    `yaml:"max_overlap" json:"max_overlap"`
+	MinGap         float64    `yaml:"min_gap" json:"min_gap"`
+	MinVisible     *float64   `yaml:"min_visible" json:"min_visible"`
+	MinPixels      *int       `yaml:"min_pixels" json:"min_pixels"`
+	Spacing        *Range     `yaml:"spacing" json:"spacing,omitempty"`
+	BaselineJitter float64    `yaml:"baseline_jitter" json:"baseline_jitter,omitempty"`
+	Rows           int        `yaml:"rows" json:"rows,omitempty"`
+	Cols           int        `yaml:"cols" json:"cols,omitempty"`
+	Jitter         float64    `yaml:"jitter" json:"jitter,omitempty"`
+}
+
+// ObjectSpec describes the objects of one class in a layer, or the parts
+// inside a parent object.
+type ObjectSpec struct {
+	Class       string       `yaml:"class" json:"class"`
+	Shape       string       `yaml:"shape" json:"shape,omitempty"`
+	Glyph       *GlyphSpec   `yaml:"glyph" json:"glyph,omitempty"`
+	Count       Count        `yaml:"count" json:"count"`
+	Size        Range        `yaml:"size" json:"size"`
+	Aspect      *Range       `yaml:"aspect" json:"aspect"`
+	Angle       *Range       `yaml:"angle" json:"angle"`
+	Intensity   *Range       `yaml:"intensity" json:"intensity,omitempty"`
+	Colour      *ColourRange `yaml:"colour" json:"colour,omitempty"`
+	Sides       *IntRange    `yaml:"sides" json:"sides,omitempty"`
+	Inner       *Range       `yaml:"inner" json:"inner,omitempty"`
+	Corner      *Range       `yaml:"corner" json:"corner,omitempty"`
+	Thickness   *Range       `yaml:"thickness" json:"thickness,omitempty"`
+	Value       *ValueSpec   `yaml:"value" json:"value,omitempty"`
+	Arrangement string       `yaml:"arrangement" json:"arrangement,omitempty"` // parts only: pips or scatter
+	Parts       []ObjectSpec `yaml:"parts" json:"parts,omitempty"`
+
+	classID int
+	font    *Font
+	chars   []rune
+}
+
+// GlyphSpec draws characters from a font.
+type GlyphSpec struct {
+	Font  string `yaml:"font" json:"font,omitempty"` // a Go font name, see FontNames
+	File  string `yaml:"file" json:"file,omitempty"` // or a TTF/OTF file, relative to the recipe
+	Chars string `yaml:"chars" json:"chars"`
+}
+
+// TargetSpec is a named aggregate over a sample's objects.
+type TargetSpec struct {
+	Name    string   `yaml:"name" json:"name"`
+	Kind    string   `yaml:"kind" json:"kind"` // count, sum, min, max, mean, text, number
+	Classes []string `yaml:"classes" json:"classes,omitempty"`
+	Of      string   `yaml:"of" json:"of,omitempty"` // value, area, size, angle
+}
+
+// Range is a closed interval [Min, Max]; a single number means Min = Max.
+type Range struct{ Min, Max float64 }
+
+func (r *Range) decodeNode(d *decoder, n *yaml.Node, path string) error {
+	switch n.Kind {
+	case yaml.ScalarNode:
+		f, err := scalarFloat(n)
+		if err != nil {
+			return d.errAt(n, path, show(n), "%v, or [min, max]", err)
+		}
+		r.Min, r.Max = f, f
+		return nil
+	case yaml.SequenceNode:
+		if len(n.Content) != 2 {
+			return d.errAt(n, path, show(n), "want a number or [min, max] with two numbers")
+		}
+		lo, err := scalarFloat(n.Content[0])
+		if err != nil {
+			return d.errAt(n.Content[0], path, show(n), "minimum: %v", err)
+		}
+		hi, err := scalarFloat(n.Content[1])
+		if err != nil {
+			return d.errAt(n.Content[1], path, show(n), "maximum: %v", err)
+		}
+		if lo > hi {
+			return d.errAt(n, path, show(n), "minimum %s is greater than maximum %s; want [min, max] with min ≤ max", fnum(lo), fnum(hi))
+		}
+		r.Min, r.Max = lo, hi
+		return nil
+	}
+	return d.errAt(n, path, show(n), "want a number or [min, max], found %s", kindName(n))
+}
+
+// MarshalJSON writes [min, max].
+func (r Range) MarshalJSON() ([]byte, error) {
+	return []byte("[" + fnum(r.Min) + "," + fnum(r.Max) + "]"), nil
+}
+
+func fnum(f float64) string { return strconv.FormatFloat(f, 'g', -1, 64) }
+
+// IntRange is a closed integer interval.
+type IntRange struct{ Min, Max int }
+
+func (r *IntRange) decodeNode(d *decoder, n *yaml.Node, path string) error {
+	var fr Range
+	if err := fr.decodeNode(d, n, path); err != nil {
+		return err
+	}
+	if fr.Min != math.Trunc(fr.Min) || fr.Max != math.Trunc(fr.Max) {
+		return d.errAt(n, path, show(n), "want whole numbers")
+	}
+	r.Min, r.Max = int(fr.Min), int(fr.Max)
+	return nil
+}
+
+// MarshalJSON writes [min, max].
+func (r IntRange) MarshalJSON() ([]byte, error) {
+	return []byte(fmt.Sprintf("[%d,%d]", r.Min, r.Max)), nil
+}
+
+// Count is how many objects a spec yields: fixed, a uniform range, or a
+// weighted choice {count: weight}.
+type Count struct {
+	Min, Max int
+	Values   []int     // weighted form: the counts
+	Weights  []float64 // and their weights
+}
+
+func (c *Count) decodeNode(d *decoder, n *yaml.Node, path string) error {
+	if n.Kind == yaml.MappingNode {
+		for i := 0; i+1 < len(n.Content); i += 2 {
+			k, v := n.Content[i], n.Content[i+1]
+			ki, err := scalarInt(k)
+			if err != nil {
+				return d.errAt(k, path, show(k), "weighted count: each key is a count; %v", err)
+			}
+			w, err := scalarFloat(v)
+			if err != nil {
+				return d.errAt(v, path+"."+k.Value, show(v), "weighted count: each weight %v", err)
+			}
+			if ki < 0 {
+				return d.errAt(k, path, show(k), "a count must not be negative")
+			}
+			if w < 0 {
+				return d.errAt(v, path+"."+k.Value, show(v), "a weight must not be negative")
+			}
+			c.Values = append(c.Values, ki)
+			c.Weights = append(c.Weights, w)
+		}
+		total := 0.0
+		for _, w := range c.Weights {
+			total += w
+		}
+		if total <= 0 {
+			return d.errAt(n, path, "", "weighted count: the weights must add up to more than 0")
+		}
+		c.Min, c.Max = c.Values[0], c.Values[0]
+		for _, v := range c.Values {
+			c.Min, c.Max = min(c.Min, v), max(c.Max, v)
+		}
+		return nil
+	}
+	var r IntRange
+	if err := r.decodeNode(d, n, path); err != nil {
+		return err
+	}
+	if r.Min < 0 {
+		return d.errAt(n, path, show(n), "a count must not be negative")
+	}
+	c.Min, c.Max = r.Min, r.Max
+	return nil
+}
+
+// MarshalJSON writes [min, max] or {"count": weight, ...}.
+func (c Count) MarshalJSON() ([]byte, error) {
+	if c.Values == nil {
+		return []byte(fmt.Sprintf("[%d,%d]", c.Min, c.Max)), nil
+	}
+	idx := make([]int, len(c.Values))
+	for i := range idx {
+		idx[i] = i
+	}
+	sort.Slice(idx, func(a, b int) bool { return c.Values[idx[a]] < c.Values[idx[b]] })
+	var b bytes.Buffer
+	b.WriteByte('{')
+	for j, i := range idx {
+		if j > 0 {
+			b.WriteByte(',')
+		}
+		fmt.Fprintf(&b, "\"%d\":%s", c.Values[i], fnum(c.Weights[i]))
+	}
+	b.WriteByte('}')
+	return b.Bytes(), nil
+}
+
+// ColourRange draws each RGB channel uniformly between From and To; a single
+// [r, g, b] means a fixed colour.
+type ColourRange struct{ From, To [3]float64 }
+
+func (c *ColourRange) decodeNode(d *decoder, n *yaml.Node, path string) error {
+	triple := func(m *yaml.Node) ([3]float64, error) {
+		var t [3]float64
+		if m.Kind != yaml.SequenceNode || len(m.Content) != 3 {
+			return t, d.errAt(m, path, show(m), "want [r, g, b] with three numbers in 0..255")
+		}
+		for i, e := range m.Content {
+			f, err := scalarFloat(e)
+			if err != nil || f < 0 || f > 255 {
+				return t, d.errAt(e, path, show(m), "colour channels are numbers in 0..255")
+			}
+			t[i] = f
+		}
+		return t, nil
+	}
+	if n.Kind == yaml.SequenceNode && len(n.Content) == 2 && n.Content[0].Kind == yaml.SequenceNode {
+		a, err := triple(n.Content[0])
+		if err != nil {
+			return err
+		}
+		b, err := triple(n.Content[1])
+		if err != nil {
+			return err
+		}
+		for i := range a {
+			if a[i] > b[i] {
+				return d.errAt(n, path, show(n), "channel %d: from %s is greater than to %s; want [[r, g, b], [r, g, b]] with each from ≤ to", i, fnum(a[i]), fnum(b[i]))
+			}
+		}
+		c.From, c.To = a, b
+		return nil
+	}
+	t, err := triple(n)
+	if err != nil {
+		return d.errAt(n, path, show(n), "want [r, g, b] or [[r, g, b], [r, g, b]] with channels in 0..255")
+	}
+	c.From, c.To = t, t
+	return nil
+}
+
+// MarshalJSON writes [[r,g,b],[r,g,b]].
+func (c ColourRange) MarshalJSON() ([]byte, error) {
+	return []byte(fmt.Sprintf("[[%s,%s,%s],[%s,%s,%s]]", fnum(c.From[0]), fnum(c.From[1]), fnum(c.From[2]), fnum(c.To[0]), fnum(c.To[1]), fnum(c.To[2]))), nil
+}
+
+// ValueSpec gives an object a numeric value: "parts" (its number of parts),
+// "digit" (its glyph's digit), or a number range drawn as whole numbers.
+type ValueSpec struct {
+	From  string // "parts", "digit" or "" for a range
+	Range IntRange
+}
+
+func (v *ValueSpec) decodeNode(d *decoder, n *yaml.Node, path string) error {
+	if n.Kind == yaml.ScalarNode && n.Tag == "!!str" {
+		switch n.Value {
+		case "parts", "digit":
+			v.From = n.Value
+			return nil
+		}
+		return d.errAt(n, path, show(n), "want \"parts\", \"digit\", a whole number or [min, max]")
+	}
+	return v.Range.decodeNode(d, n, path)
+}
+
+// MarshalJSON writes the source name or the range.
+func (v ValueSpec) MarshalJSON() ([]byte, error) {
+	if v.From != "" {
+		return []byte(strconv.Quote(v.From)), nil
+	}
+	return v.Range.MarshalJSON()
+}
+
+// ParseRecipe parses and validates recipe YAML. file names the recipe in
+// errors and is the folder font files are resolved against ("" = current).
+func ParseRecipe(file string, data []byte) (*Recipe, error) {
+	if len(data) > MaxRecipeBytes {
+		return nil, &RecipeError{File: file, Msg: fmt.Sprintf("recipe is %d bytes; at most %d allowed", len(data), MaxRecipeBytes)}
+	}
+	var root yaml.Node
+	if err := yaml.Unmarshal(data, &root); err != nil {
+		return nil, yamlSyntaxError(file, err)
+	}
+	if root.Kind == 0 || len(root.Content) == 0 {
+		return nil, &RecipeError{File: file, Msg: "recipe is empty"}
+	}
+	d := &decoder{file: file, at: map[string]pos{}}
+	r := &Recipe{file: file}
+	if err := d.decode(&root, reflectValue(r), ""); err != nil {
+		return nil, err
+	}
+	if err := r.validate(d); err != nil {
+		return nil, err
+	}
+	return r, nil
+}
+
+// LoadRecipe reads and parses a recipe file.
+func LoadRecipe(path string) (*Recipe, error) {
+	st, err := os.Stat(path)
+	if err != nil {
+		return nil, &RecipeError{File: path, Msg: err.Error()}
+	}
+	if st.Size() > MaxRecipeBytes {
+		return nil, &RecipeError{File: path, Msg: fmt.Sprintf("recipe is %d bytes; at most %d allowed", st.Size(), MaxRecipeBytes)}
+	}
+	b, err := os.ReadFile(path)
+	if err != nil {
+		return nil, &RecipeError{File: path, Msg: err.Error()}
+	}
+	return ParseRecipe(path, b)
+}
+
+func yamlSyntaxError(file string, err error) error {
+	var line int
+	msg := err.Error()
+	if _, scanErr := fmt.Sscanf(msg, "yaml: line %d:", &line); scanErr == nil {
+		if i := bytes.IndexByte([]byte(msg), ':'); i >= 0 {
+			rest := msg[len(fmt.Sprintf("yaml: line %d:", line)):]
+			return &RecipeError{File: file, Line: line, Column: 1, Msg: "YAML syntax:" + rest}
+		}
+	}
+	return &RecipeError{File: file, Msg: msg}
+}

@@ -1,0 +1,288 @@
+package gen
+
+import (
+	"fmt"
+	"image"
+	"image/draw"
+	"math"
+
+	"golang.org/x/image/vector"
+
+	"github.com/trueset/trueset/manifest"
+)
+
+// Sample is one rendered scene: pixels, masks and the record that describes
+// them (paths and checksums are filled in when it is written).
+type Sample struct {
+	Image     image.Image     // *image.Gray or *image.RGBA
+	Mask      *image.Paletted // class ids, palette = class colours
+	Instances *image.Gray16   // instance ids, 0 = none
+	Record    manifest.Record
+}
+
+// Renderer turns plans into samples. It keeps its buffers between samples; use
+// one per goroutine.
+type Renderer struct {
+	r       *Recipe
+	palette []manifest.Class
+	ras     vector.Rasterizer
+	cov     image.Alpha
+	local   Path
+	world   Path
+	alone   []int
+}
+
+// NewRenderer returns a Renderer for a validated recipe.
+func NewRenderer(r *Recipe) *Renderer {
+	return &Renderer{r: r, palette: r.ClassTable()}
+}
+
+// ClassTable returns the recipe's classes with background as id 0.
+func (r *Recipe) ClassTable() []manifest.Class {
+	out := []manifest.Class{{ID: 0, Name: "background", Colour: [3]uint8{0, 0, 0}}}
+	for i, c := range r.Classes {
+		out = append(out, manifest.Class{ID: i + 1, Name: c.Name, Colour: [3]uint8{uint8(c.Colour[0]), uint8(c.Colour[1]), uint8(c.Colour[2])}})
+	}
+	return out
+}
+
+// VisibilityError is a plan whose rendered masks break a visibility minimum;
+// the sample is re-planned.
+type VisibilityError struct {
+	Instance   int
+	Class      string
+	Area       int
+	Visible    float64
+	MinPixels  int
+	MinVisible float64
+}
+
+func (e *VisibilityError) Error() string {
+	return fmt.Sprintf("object %d (class %q) kept %d pixels, %.0f%% visible; the layout asks for at least %d pixels and %.0f%% visible",
+		e.Instance, e.Class, e.Area, 100*e.Visible, e.MinPixels, 100*e.MinVisible)
+}
+
+// Generate plans and renders sample index, redrawing its geometry (bounded by
+// MaxAttempts) until every object meets its layout's visibility minimum.
+func (rd *Renderer) Generate(seed uint64, index int) (*Sample, error) {
+	var last error
+	for attempt := 0; attempt < MaxAttempts; attempt++ {
+		p, err := rd.r.Plan(seed, index, attempt)
+		if err != nil {
+			last = err
+			continue
+		}
+		s, err := rd.Render(p)
+		if err == nil {
+			return s, nil
+		}
+		if _, ok := err.(*VisibilityError); !ok {
+			return nil, err
+		}
+		last = err
+	}
+	if le, ok := last.(*LayoutError); ok {
+		return nil, le
+	}
+	return nil, fmt.Errorf("sample %d: %v (gave up after %d attempts)", index, last, MaxAttempts)
+}
+
+// Render draws a plan. Each object is rasterised once; that coverage is both
+// the alpha it is composited with and, where coverage ≥ 0.5, its mask pixels
+// (topmost object wins). Labels are then measured from the instance mask.
+func (rd *Renderer) Render(p *Plan) (*Sample, error) {
+	r := rd.r
+	W, H := r.Canvas.Width, r.Canvas.Height
+	rect := image.Rect(0, 0, W, H)
+	inst := image.NewGray16(rect)
+	mask := image.NewPaletted(rect, manifest.Palette(rd.palette))
+	rgb := r.Canvas.Mode == "rgb"
+	var pix []uint8
+	var stride, bpp int
+	var img image.Image
+	if rgb {
+		m := image.NewRGBA(rect)
+		pix, stride, bpp, img = m.Pix, m.Stride, 4, m
+	} else {
+		m := image.NewGray(rect)
+		pix, stride, bpp, img = m.Pix, m.Stride, 1, m
+	}
+	paintBackground(&p.Background, pix, stride, bpp, W, H)
+	aa := *r.Canvas.Antialias
+	if cap(rd.alone) < len(p.Objects) {
+		rd.alone = make([]int, len(p.Objects))
+	}
+	alone := rd.alone[:len(p.Objects)]
+
+	for i := range p.Objects {
+		o := &p.Objects[i]
+		id := i + 1
+		rd.local = o.localPath(rd.local)
+		rd.world = rd.local.Transform(o.transform(), rd.world)
+		x0f, y0f, x1f, y1f := rd.world.Bounds()
+		x0, y0 := int(math.Floor(x0f)), int(math.Floor(y0f))
+		x1, y1 := int(math.Ceil(x1f)), int(math.Ceil(y1f))
+		bw, bh := x1-x0, y1-y0
+		if bw <= 0 || bh <= 0 {
+			alone[i] = 0
+			continue
+		}
+		rd.rasterise(x0, y0, bw, bh)
+		tone := o.Tone
+		n := 0
+		for y := 0; y < bh; y++ {
+			cy := y0 + y
+			row := rd.cov.Pix[y*rd.cov.Stride : y*rd.cov.Stride+bw]
+			for x, a := range row {
+				if a >= 128 {
+					n++
+				}
+				cx := x0 + x
+				if a == 0 || cx < 0 || cy < 0 || cx >= W || cy >= H {
+					continue
+				}
+				if !aa {
+					if a < 128 {
+						continue
+					}
+					a = 255
+				}
+				off := cy*stride + cx*bpp
+				if a == 255 {
+					pix[off] = tone[0]
+					if rgb {
+						pix[off+1], pix[off+2] = tone[1], tone[2]
+					}
+				} else {
+					pix[off] = blend(pix[off], tone[0], a)
+					if rgb {
+						pix[off+1] = blend(pix[off+1], tone[1], a)
+						pix[off+2] = blend(pix[off+2], tone[2], a)
+					}
+				}
+				if a >= 128 {
+					io := cy*inst.Stride + 2*cx
+					inst.Pix[io], inst.Pix[io+1] = uint8(id>>8), uint8(id)
+					mask.Pix[cy*mask.Stride+cx] = uint8(o.Class)
+				}
+			}
+		}
+		alone[i] = n
+	}
+	if rgb {
+		m := img.(*image.RGBA)
+		for i := 3; i < len(m.Pix); i += 4 {
+			m.Pix[i] = 255
+		}
+	}
+
+	s := &Sample{Image: img, Mask: mask, Instances: inst}
+	if err := rd.label(p, s, alone); err != nil {
+		return nil, err
+	}
+	return s, nil
+}
+
+// rasterise fills rd.cov (bw×bh) with the coverage of rd.world, offset so
+// that pixel (x0, y0) of the canvas is (0, 0) of the buffer.
+func (rd *Renderer) rasterise(x0, y0, bw, bh int) {
+	rd.ras.Reset(bw, bh)
+	rd.ras.DrawOp = draw.Src
+	fx, fy := float64(x0), float64(y0)
+	pt := func(p Pt) (float32, float32) { return float32(p.X - fx), float32(p.Y - fy) }
+	open := false
+	for _, s := range rd.world {
+		switch s.Op {
+		case OpMove:
+			if open {
+				rd.ras.ClosePath()
+			}
+			rd.ras.MoveTo(pt(s.P[0]))
+			open = true
+		case OpLine:
+			rd.ras.LineTo(pt(s.P[0]))
+		case OpQuad:
+			ax, ay := pt(s.P[0])
+			bx, by := pt(s.P[1])
+			rd.ras.QuadTo(ax, ay, bx, by)
+		case OpCube:
+			ax, ay := pt(s.P[0])
+			bx, by := pt(s.P[1])
+			cx, cy := pt(s.P[2])
+			rd.ras.CubeTo(ax, ay, bx, by, cx, cy)
+		}
+	}
+	if open {
+		rd.ras.ClosePath()
+	}
+	if cap(rd.cov.Pix) < bw*bh {
+		rd.cov.Pix = make([]uint8, bw*bh)
+	}
+	rd.cov.Pix = rd.cov.Pix[:bw*bh]
+	rd.cov.Stride = bw
+	rd.cov.Rect = image.Rect(0, 0, bw, bh)
+	rd.ras.Draw(&rd.cov, rd.cov.Rect, image.Opaque, image.Point{})
+}
+
+// blend composites src over dst with 8-bit alpha a, rounding to nearest:
+// (dst·(255−a) + src·a) / 255.
+func blend(dst, src, a uint8) uint8 {
+	v := uint32(dst)*uint32(255-a) + uint32(src)*uint32(a)
+	return uint8((v + 127) / 255)
+}
+
+// label fills the record's objects from the instance mask and checks every
+// object's visibility against its layout's minimum.
+func (rd *Renderer) label(p *Plan, s *Sample, alone []int) error {
+	r := rd.r
+	stats := manifest.MeasureInstances(s.Instances)
+	rec := &s.Record
+	rec.Index = p.Index
+	rec.ID = manifest.SampleID(p.Index)
+	rec.Group = rec.ID
+	rec.Width, rec.Height = r.Canvas.Width, r.Canvas.Height
+	rec.Objects = make([]manifest.Object, len(p.Objects))
+	for i := range p.Objects {
+		o := &p.Objects[i]
+		id := i + 1
+		st := stats[id]
+		area := 0
+		var bb [4]int
+		if st != nil {
+			area, bb = st.Area, st.BBox
+		}
+		vis := 0.0
+		if alone[i] > 0 {
+			vis = float64(area) / float64(alone[i])
+		}
+		if area < o.MinPixels || vis < o.MinVisible {
+			return &VisibilityError{Instance: id, Class: rd.palette[o.Class].Name, Area: area, Visible: vis, MinPixels: o.MinPixels, MinVisible: o.MinVisible}
+		}
+		ob := manifest.Object{
+			Instance: id, Class: o.Class, ClassName: rd.palette[o.Class].Name, Parent: o.Parent,
+			BBox: bb, Area: area, Visible: manifest.Round(vis, 4),
+			Kind:   o.Kind,
+			Centre: [2]float64{manifest.Round(o.CX, 3), manifest.Round(o.CY, 3)},
+			Size:   manifest.Round(o.Size, 3), Aspect: manifest.Round(o.Aspect, 4), Angle: manifest.Round(o.Angle, 3),
+			Value: o.Value,
+		}
+		if o.Kind == "glyph" {
+			ob.Glyph = string(o.Glyph)
+			ob.Font = o.Spec.font.Name
+		}
+		if r.Canvas.Mode == "rgb" {
+			c := o.Tone
+			ob.Colour = &c
+		} else {
+			v := float64(o.Tone[0])
+			ob.Intensity = &v
+		}
+		rec.Objects[i] = ob
+	}
+	t, err := r.targets(p, rec.Objects)
+	if err != nil {
+		return fmt.Errorf("sample %d: %w", p.Index, err)
+	}
+	rec.Targets = t
+	return nil
+}

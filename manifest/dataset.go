@@ -1,0 +1,175 @@
+package manifest
+
+import (
+	"bufio"
+	"bytes"
+	"crypto/sha256"
+	"encoding/hex"
+	"encoding/json"
+	"fmt"
+	"io"
+	"os"
+	"path/filepath"
+	"strings"
+)
+
+// File names inside a dataset folder.
+const (
+	DatasetFile  = "dataset.json"
+	ManifestFile = "manifest.jsonl"
+	ImagesDir    = "images"
+	MasksDir     = "masks"
+	InstancesDir = "instances"
+)
+
+// Dataset is the content of dataset.json. It is written last and marks the
+// dataset complete.
+type Dataset struct {
+	Format         string          `json:"format"`
+	ToolVersion    string          `json:"tool_version"`
+	Recipe         json.RawMessage `json:"recipe"`
+	RecipeSHA256   string          `json:"recipe_sha256"`
+	Seed           uint64          `json:"seed"`
+	Count          int             `json:"count"`
+	Width          int             `json:"width"`
+	Height         int             `json:"height"`
+	Mode           string          `json:"mode"` // "gray" or "rgb"
+	Classes        []Class         `json:"classes"`
+	Targets        []string        `json:"targets"`
+	Splits         SplitTable      `json:"splits"`
+	ManifestSHA256 string          `json:"manifest_sha256"`
+}
+
+// SplitTable holds the split ratios and the resulting sample counts.
+type SplitTable struct {
+	Names  []string           `json:"names"`
+	Ratios map[string]float64 `json:"ratios"`
+	Counts map[string]int     `json:"counts"`
+}
+
+// SampleID is the id of sample index i: zero-padded so names sort in index order.
+func SampleID(i int) string { return fmt.Sprintf("%06d", i) }
+
+// SafeRel reports whether p is a relative, clean path that stays inside its
+// folder (no absolute path, no "..", no backslash tricks).
+func SafeRel(p string) bool {
+	if p == "" || filepath.IsAbs(p) || strings.Contains(p, `\`) {
+		return false
+	}
+	c := filepath.Clean(p)
+	return c == p && c != "." && c != ".." && !strings.HasPrefix(c, "../")
+}
+
+// SHA256Hex returns the lowercase hex SHA-256 of b (FIPS 180-4).
+func SHA256Hex(b []byte) string {
+	s := sha256.Sum256(b)
+	return hex.EncodeToString(s[:])
+}
+
+// WriteFileAtomic writes b to path through a temporary file in the same folder
+// and renames it into place, so a reader never sees a half-written file.
+func WriteFileAtomic(path string, b []byte) error {
+	dir := filepath.Dir(path)
+	f, err := os.CreateTemp(dir, "."+filepath.Base(path)+".tmp*")
+	if err != nil {
+		return fmt.Errorf("write %s: %w", path, err)
+	}
+	tmp := f.Name()
+	if _, err := f.Write(b); err != nil {
+		f.Close()
+		os.Remove(tmp)
+		return fmt.Errorf("write %s: %w", path, err)
+	}
+	if err := f.Close(); err != nil {
+		os.Remove(tmp)
+		return fmt.Errorf("write %s: %w", path, err)
+	}
+	if err := os.Rename(tmp, path); err != nil {
+		os.Remove(tmp)
+		return fmt.Errorf("write %s: %w", path, err)
+	}
+	return nil
+}
+
+// MarshalRecord encodes one manifest line (without the newline).
+func MarshalRecord(r *Record) ([]byte, error) {
+	var buf bytes.Buffer
+	enc := json.NewEncoder(&buf)
+	enc.SetEscapeHTML(false)
+	if err := enc.Encode(r); err != nil {
+		return nil, fmt.Errorf("record %s: %w", r.ID, err)
+	}
+	return bytes.TrimRight(buf.Bytes(), "\n"), nil
+}
+
+// MarshalDataset encodes dataset.json, indented for people, ending in a newline.
+func MarshalDataset(d *Dataset) ([]byte, error) {
+	var buf bytes.Buffer
+	enc := json.NewEncoder(&buf)
+	enc.SetEscapeHTML(false)
+	enc.SetIndent("", "  ")
+	if err := enc.Encode(d); err != nil {
+		return nil, err
+	}
+	return buf.Bytes(), nil
+}
+
+// ReadDataset reads DIR/dataset.json.
+func ReadDataset(dir string) (*Dataset, error) {
+	p := filepath.Join(dir, DatasetFile)
+	b, err := os.ReadFile(p)
+	if err != nil {
+		if os.IsNotExist(err) {
+			return nil, fmt.Errorf("%s: missing: the dataset is incomplete or not a trueset dataset", p)
+		}
+		return nil, err
+	}
+	var d Dataset
+	if err := json.Unmarshal(b, &d); err != nil {
+		return nil, fmt.Errorf("%s: %w", p, err)
+	}
+	return &d, nil
+}
+
+// ReadManifest calls fn for every record of DIR/manifest.jsonl in order.
+// Errors name the file and line.
+func ReadManifest(dir string, fn func(*Record) error) error {
+	p := filepath.Join(dir, ManifestFile)
+	f, err := os.Open(p)
+	if err != nil {
+		return err
+	}
+	defer f.Close()
+	return DecodeManifest(f, p, fn)
+}
+
+// DecodeManifest reads JSON Lines records from r; name is used in errors.
+func DecodeManifest(r io.Reader, name string, fn func(*Record) error) error {
+	sc := bufio.NewScanner(r)
+	sc.Buffer(make([]byte, 0, 64*1024), 16<<20)
+	line := 0
+	for sc.Scan() {
+		line++
+		if len(bytes.TrimSpace(sc.Bytes())) == 0 {
+			continue
+		}
+		var rec Record
+		dec := json.NewDecoder(bytes.NewReader(sc.Bytes()))
+		dec.DisallowUnknownFields()
+		if err := dec.Decode(&rec); err != nil {
+			return fmt.Errorf("%s:%d: %w", name, line, err)
+		}
+		for _, p := range []string{rec.Image, rec.Mask, rec.Instances} {
+			if !SafeRel(p) {
+				return fmt.Errorf("%s:%d: record %q: path %q leaves the dataset folder", name, line, rec.ID, p)
+			}
+		}
+		if err := fn(&rec); err != nil {
+			return fmt.Errorf("%s:%d: %w", name, line, err)
+		}
+	}
+	if err := sc.Err(); err != nil {
+		return fmt.Errorf("%s:%d: %w", name, line+1, err)
+	}
+	return nil
+}

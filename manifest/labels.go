@@ -1,0 +1,46 @@
+package manifest
+
+import "image"
+
+// InstanceStats is what an instance mask says about one instance id.
+type InstanceStats struct {
+	Area int
+	BBox [4]int // [x0, y0, x1, y1], exclusive max
+}
+
+// MeasureInstances scans a 16-bit instance mask and returns, for every id
+// present (id 0 excluded), its pixel count and bounding box. Boxes follow the
+// pixel convention: a single pixel at (x, y) has box [x, y, x+1, y+1].
+func MeasureInstances(m *image.Gray16) map[int]*InstanceStats {
+	out := map[int]*InstanceStats{}
+	b := m.Bounds()
+	for y := b.Min.Y; y < b.Max.Y; y++ {
+		row := m.Pix[(y-b.Min.Y)*m.Stride:]
+		for x := b.Min.X; x < b.Max.X; x++ {
+			i := 2 * (x - b.Min.X)
+			id := int(row[i])<<8 | int(row[i+1])
+			if id == 0 {
+				continue
+			}
+			s := out[id]
+			if s == nil {
+				s = &InstanceStats{BBox: [4]int{x, y, x + 1, y + 1}}
+				out[id] = s
+			}
+			s.Area++
+			if x < s.BBox[0] {
+				s.BBox[0] = x
+			}
+			if y < s.BBox[1] {
+				s.BBox[1] = y
+			}
+			if x+1 > s.BBox[2] {
+				s.BBox[2] = x + 1
+			}
+			if y+1 > s.BBox[3] {
+				s.BBox[3] = y + 1
+			}
+		}
+	}
+	return out
+}

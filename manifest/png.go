@@ -1,0 +1,58 @@
+package manifest
+
+import (
+	"bytes"
+	"image"
+	"image/color"
+	"image/png"
+)
+
+// Encoder encodes images, semantic masks and instance masks as PNG
+// (ISO/IEC 15948). It keeps its deflate buffers between calls, like
+// image/png's EncoderBuffer, so a hot loop allocates little. An Encoder is not
+// safe for concurrent use; give each worker its own.
+type Encoder struct {
+	enc  png.Encoder
+	pool onePool
+	buf  bytes.Buffer
+}
+
+type onePool struct{ b *png.EncoderBuffer }
+
+func (p *onePool) Get() *png.EncoderBuffer  { return p.b }
+func (p *onePool) Put(b *png.EncoderBuffer) { p.b = b }
+
+// NewEncoder returns an Encoder using the default deflate level.
+func NewEncoder() *Encoder {
+	e := &Encoder{}
+	e.enc.BufferPool = &e.pool
+	return e
+}
+
+// Encode returns the PNG bytes of m. The slice is valid until the next call.
+func (e *Encoder) Encode(m image.Image) ([]byte, error) {
+	e.buf.Reset()
+	if err := e.enc.Encode(&e.buf, m); err != nil {
+		return nil, err
+	}
+	return e.buf.Bytes(), nil
+}
+
+// Palette returns the mask palette for a class table: entry i is class i's
+// colour, so an indexed mask is viewable as is.
+func Palette(classes []Class) color.Palette {
+	n := 0
+	for _, c := range classes {
+		if c.ID+1 > n {
+			n = c.ID + 1
+		}
+	}
+	p := make(color.Palette, n)
+	for i := range p {
+		p[i] = color.RGBA{0, 0, 0, 255}
+	}
+	for _, c := range classes {
+		p[c.ID] = color.RGBA{c.Colour[0], c.Colour[1], c.Colour[2], 255}
+	}
+	return p
+}
