@@ -61,17 +61,17 @@ type Layer struct {
 
 // Layout says where a layer's objects go.
 type Layout struct {
-	Kind           string     `yaml:"kind" json:"kind"` // scatter, row or grid
-	Region         []float64  `yaml:"region" json:"region,omitempty"`
-	MaxOverlap     float64    `yaml:"max_overlap" json:"max_overlap"`
-	MinGap         float64    `yaml:"min_gap" json:"min_gap"`
-	MinVisible     *float64   `yaml:"min_visible" json:"min_visible"`
-	MinPixels      *int       `yaml:"min_pixels" json:"min_pixels"`
-	Spacing        *Range     `yaml:"spacing" json:"spacing,omitempty"`
-	BaselineJitter float64    `yaml:"baseline_jitter" json:"baseline_jitter,omitempty"`
-	Rows           int        `yaml:"rows" json:"rows,omitempty"`
-	Cols           int        `yaml:"cols" json:"cols,omitempty"`
-	Jitter         float64    `yaml:"jitter" json:"jitter,omitempty"`
+	Kind           string    `yaml:"kind" json:"kind"` // scatter, row or grid
+	Region         []float64 `yaml:"region" json:"region,omitempty"`
+	MaxOverlap     float64   `yaml:"max_overlap" json:"max_overlap"`
+	MinGap         float64   `yaml:"min_gap" json:"min_gap"`
+	MinVisible     *float64  `yaml:"min_visible" json:"min_visible"`
+	MinPixels      *int      `yaml:"min_pixels" json:"min_pixels"`
+	Spacing        *Range    `yaml:"spacing" json:"spacing,omitempty"`
+	BaselineJitter float64   `yaml:"baseline_jitter" json:"baseline_jitter,omitempty"`
+	Rows           int       `yaml:"rows" json:"rows,omitempty"`
+	Cols           int       `yaml:"cols" json:"cols,omitempty"`
+	Jitter         float64   `yaml:"jitter" json:"jitter,omitempty"`
 }
 
 // ObjectSpec describes the objects of one class in a layer, or the parts
@@ -187,6 +187,9 @@ func (c *Count) decodeNode(d *decoder, n *yaml.Node, path string) error {
 		for i := 0; i+1 < len(n.Content); i += 2 {
 			k, v := n.Content[i], n.Content[i+1]
 			ki, err := scalarInt(k)
+			if k.Tag == "!!str" { // JSON form: {"2": 1}
+				ki, err = strconv.Atoi(k.Value)
+			}
 			if err != nil {
 				return d.errAt(k, path, show(k), "weighted count: each key is a count; %v", err)
 			}

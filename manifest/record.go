@@ -38,13 +38,13 @@ type Object struct {
 	// Visible is Area divided by the pixels the object would cover alone.
 	Visible float64 `json:"visible"`
 
-	Kind      string     `json:"kind"`             // shape kind, or "glyph"
-	Glyph     string     `json:"glyph,omitempty"`  // the character, for glyphs
-	Font      string     `json:"font,omitempty"`   // font name, for glyphs
-	Centre    [2]float64 `json:"centre"`           // plan centre in pixels
-	Size      float64    `json:"size"`             // plan size in pixels (height; em size for glyphs)
-	Aspect    float64    `json:"aspect"`           // width / height
-	Angle     float64    `json:"angle"`            // degrees, clockwise on screen
+	Kind      string     `json:"kind"`            // shape kind, or "glyph"
+	Glyph     string     `json:"glyph,omitempty"` // the character, for glyphs
+	Font      string     `json:"font,omitempty"`  // font name, for glyphs
+	Centre    [2]float64 `json:"centre"`          // plan centre in pixels
+	Size      float64    `json:"size"`            // plan size in pixels (height; em size for glyphs)
+	Aspect    float64    `json:"aspect"`          // width / height
+	Angle     float64    `json:"angle"`           // degrees, clockwise on screen
 	Intensity *float64   `json:"intensity,omitempty"`
 	Colour    *[3]uint8  `json:"colour,omitempty"`
 	Value     *float64   `json:"value,omitempty"`
@@ -52,9 +52,9 @@ type Object struct {
 
 // Lineage records where an augmented sample came from.
 type Lineage struct {
-	Source string       `json:"source"`
-	Ops    []LineageOp  `json:"ops"`
-	Affine [6]float64   `json:"affine"`
+	Source string      `json:"source"`
+	Ops    []LineageOp `json:"ops"`
+	Affine [6]float64  `json:"affine"`
 }
 
 // LineageOp is one applied augmentation step with its drawn parameters.

@@ -1,0 +1,102 @@
+package manifest
+
+import (
+	"fmt"
+	"math"
+	"sort"
+	"strconv"
+	"strings"
+)
+
+// DefaultSplits is the split used when none is given (train 80%, val 10%,
+// test 10%: common practice).
+const DefaultSplits = "train=0.8,val=0.1,test=0.1"
+
+// Splits is an ordered list of named split ratios that sum to 1.
+type Splits struct {
+	Names  []string
+	Ratios []float64
+}
+
+// ParseSplits reads "name=ratio,name=ratio,…". Ratios are normalised to sum 1.
+func ParseSplits(s string) (Splits, error) {
+	var sp Splits
+	seen := map[string]bool{}
+	total := 0.0
+	for _, part := range strings.Split(s, ",") {
+		name, val, ok := strings.Cut(strings.TrimSpace(part), "=")
+		if !ok || name == "" {
+			return sp, fmt.Errorf("split %q: want name=ratio, e.g. %s", part, DefaultSplits)
+		}
+		if seen[name] {
+			return sp, fmt.Errorf("split %q is named twice", name)
+		}
+		if strings.ContainsAny(name, " /\\") {
+			return sp, fmt.Errorf("split name %q: no spaces or slashes", name)
+		}
+		f, err := strconv.ParseFloat(val, 64)
+		if err != nil || f < 0 || math.IsInf(f, 0) || f != f {
+			return sp, fmt.Errorf("split %s: ratio %q is not a number ≥ 0", name, val)
+		}
+		seen[name] = true
+		sp.Names = append(sp.Names, name)
+		sp.Ratios = append(sp.Ratios, f)
+		total += f
+	}
+	if total <= 0 {
+		return sp, fmt.Errorf("split ratios %q add up to 0", s)
+	}
+	for i := range sp.Ratios {
+		sp.Ratios[i] /= total
+	}
+	return sp, nil
+}
+
+// Quotas divides n samples between the splits by the largest-remainder
+// (Hamilton) method: each split gets ⌊n·ratio⌋, and the leftover samples go
+// to the largest fractional parts (ties to the earlier split). Each quota is
+// within 1 of its exact share n·ratio.
+func (sp Splits) Quotas(n int) []int {
+	q := make([]int, len(sp.Ratios))
+	type rem struct {
+		i int
+		f float64
+	}
+	rems := make([]rem, len(sp.Ratios))
+	left := n
+	for i, r := range sp.Ratios {
+		exact := float64(n) * r
+		q[i] = int(math.Floor(exact))
+		left -= q[i]
+		rems[i] = rem{i, exact - float64(q[i])}
+	}
+	sort.SliceStable(rems, func(a, b int) bool { return rems[a].f > rems[b].f })
+	for k := 0; k < left; k++ {
+		q[rems[k%len(rems)].i]++
+	}
+	return q
+}
+
+// Allocate assigns each of n samples a split index: the quotas of Quotas(n),
+// dealt over a seeded Fisher–Yates shuffle of the indices. The table is one
+// byte per sample.
+func (sp Splits) Allocate(seed uint64, n int) []uint8 {
+	perm := make([]int32, n)
+	for i := range perm {
+		perm[i] = int32(i)
+	}
+	rng := RNG(seed, 0x5011) // a stream of its own, apart from sample streams
+	for i := n - 1; i > 0; i-- {
+		j := rng.IntN(i + 1)
+		perm[i], perm[j] = perm[j], perm[i]
+	}
+	out := make([]uint8, n)
+	k := 0
+	for s, q := range sp.Quotas(n) {
+		for ; q > 0; q-- {
+			out[perm[k]] = uint8(s)
+			k++
+		}
+	}
+	return out
+}
