@@ -105,6 +105,13 @@ func runGenerate(ctx context.Context, o *generateOptions, stdout, stderr io.Writ
 	if _, err := parseSplitFlag(o.split); err != nil {
 		return err
 	}
+	// A folder that already holds files is the caller's mistake, not a
+	// failure while working: refuse it before anything is written.
+	if !o.force {
+		if ents, err := os.ReadDir(o.out); err == nil && len(ents) > 0 {
+			return usagef("--out %s is not empty; choose a new folder or pass --force to write over a previous dataset", o.out)
+		}
+	}
 
 	if ctx == nil {
 		ctx = context.Background()
