@@ -75,9 +75,12 @@ func (d *decoder) errPath(path, value, format string, args ...any) *RecipeError 
 			e.Line, e.Column = at.line, at.col
 			return e
 		}
+		if p == "" {
+			break
+		}
 		i := strings.LastIndexAny(p, ".[")
 		if i < 0 {
-			break
+			i = 0 // a missing top-level field: fall back to the document
 		}
 		p = p[:i]
 	}
@@ -278,6 +281,11 @@ func (d *decoder) decodeStruct(n *yaml.Node, v reflect.Value, path string) error
 		seen[k.Value] = true
 		if err := d.decode(val, v.Field(idx), sub); err != nil {
 			return err
+		}
+		if (val.Kind == yaml.MappingNode || val.Kind == yaml.SequenceNode) && val.Line != k.Line {
+			// A block mapping or list starts below its key; an error about
+			// the field as a whole points at the key.
+			d.at[sub] = pos{k.Line, k.Column}
 		}
 	}
 	return nil
