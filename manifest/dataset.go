@@ -40,11 +40,22 @@ type Dataset struct {
 	ManifestSHA256 string          `json:"manifest_sha256"`
 }
 
-// SplitTable holds the split ratios and the resulting sample counts.
+// SplitTable holds the split ratios, the resulting sample counts, and the
+// strata × splits table the allocation guarantees.
 type SplitTable struct {
-	Names  []string           `json:"names"`
-	Ratios map[string]float64 `json:"ratios"`
-	Counts map[string]int     `json:"counts"`
+	Names    []string           `json:"names"`
+	Ratios   map[string]float64 `json:"ratios"`
+	Counts   map[string]int     `json:"counts"`             // samples per split
+	Stratify string             `json:"stratify,omitempty"` // the stratification key; "" = one stratum
+	Strata   []Stratum          `json:"strata"`
+	Thin     []string           `json:"thin_strata,omitempty"` // strata with fewer groups than splits
+}
+
+// Stratum is one row of the strata × splits table, counted in groups.
+type Stratum struct {
+	Key    string         `json:"key"`
+	Groups int            `json:"groups"`
+	Splits map[string]int `json:"splits"`
 }
 
 // SampleID is the id of sample index i: zero-padded so names sort in index order.

@@ -38,19 +38,20 @@ func (e *Encoder) Encode(m image.Image) ([]byte, error) {
 	return e.buf.Bytes(), nil
 }
 
+// IgnoreID is the mask value for "no label here" (out-of-frame or cut-out
+// pixels that a loss should skip).
+const IgnoreID = 255
+
 // Palette returns the mask palette for a class table: entry i is class i's
-// colour, so an indexed mask is viewable as is.
+// colour, so an indexed mask is viewable as is. It always has 256 entries so
+// that image/png writes an 8-bit indexed PNG (it picks 1, 2 or 4 bits for
+// smaller palettes); unused entries are black and IgnoreID is white.
 func Palette(classes []Class) color.Palette {
-	n := 0
-	for _, c := range classes {
-		if c.ID+1 > n {
-			n = c.ID + 1
-		}
-	}
-	p := make(color.Palette, n)
+	p := make(color.Palette, 256)
 	for i := range p {
 		p[i] = color.RGBA{0, 0, 0, 255}
 	}
+	p[IgnoreID] = color.RGBA{255, 255, 255, 255}
 	for _, c := range classes {
 		p[c.ID] = color.RGBA{c.Colour[0], c.Colour[1], c.Colour[2], 255}
 	}

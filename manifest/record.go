@@ -15,6 +15,7 @@ type Record struct {
 	Index     int               `json:"index"`
 	Split     string            `json:"split"`
 	Group     string            `json:"group"`
+	Stratum   string            `json:"stratum"`
 	Width     int               `json:"width"`
 	Height    int               `json:"height"`
 	Image     string            `json:"image"`

@@ -44,8 +44,9 @@ anyone can regenerate byte for byte from the recipe and the seed.`,
 		Example: `  trueset generate --out demo
   trueset presets
   trueset generate --preset tabletop-dice --count 5000 --seed 7 --out dice`,
-		SilenceUsage:  true,
-		SilenceErrors: true,
+		SilenceUsage:      true,
+		SilenceErrors:     true,
+		CompletionOptions: cobra.CompletionOptions{DisableDefaultCmd: true},
 	}
 	root.SetOut(stdout)
 	root.SetErr(stderr)

@@ -1,0 +1,254 @@
+package manifest
+
+import (
+	"bytes"
+	"encoding/json"
+	"fmt"
+	"image"
+	"image/png"
+	"os"
+	"path/filepath"
+	"sort"
+)
+
+// Problem is one discrepancy found by Verify.
+type Problem struct {
+	ID  string // record id, "" for dataset-wide problems
+	Msg string
+}
+
+func (p Problem) String() string {
+	if p.ID == "" {
+		return p.Msg
+	}
+	return "record " + p.ID + ": " + p.Msg
+}
+
+// countTarget is the part of a recipe target Verify can check from masks.
+type countTarget struct {
+	Name    string   `json:"name"`
+	Kind    string   `json:"kind"`
+	Classes []string `json:"classes"`
+}
+
+// Verify checks a dataset folder and calls report for every discrepancy:
+// dataset.json present (else the dataset is incomplete); the manifest's
+// SHA-256; every path inside DIR and every file's SHA-256; records against
+// the masks (instance ids, bbox, area, semantic class per pixel, count
+// targets); splits and the strata table against dataset.json; and groups
+// that span splits. It returns the number of records read.
+func Verify(dir string, report func(Problem)) (int, error) {
+	d, err := ReadDataset(dir)
+	if err != nil {
+		report(Problem{Msg: err.Error()})
+		return 0, nil
+	}
+	mpath := filepath.Join(dir, ManifestFile)
+	mb, err := os.ReadFile(mpath)
+	if err != nil {
+		report(Problem{Msg: fmt.Sprintf("%s: %v", mpath, err)})
+		return 0, nil
+	}
+	if got := SHA256Hex(mb); got != d.ManifestSHA256 {
+		report(Problem{Msg: fmt.Sprintf("%s: SHA-256 %s, dataset.json says %s", ManifestFile, got, d.ManifestSHA256)})
+	}
+	var recipe struct {
+		Targets []countTarget `json:"targets"`
+	}
+	_ = json.Unmarshal(d.Recipe, &recipe)
+	classByName := map[string]int{}
+	for _, c := range d.Classes {
+		classByName[c.Name] = c.ID
+	}
+	splitOK := map[string]bool{}
+	for _, n := range d.Splits.Names {
+		splitOK[n] = true
+	}
+	groupSplit := map[string]string{}
+	counts := map[string]int{}
+	strata := map[string]map[string]int{} // stratum → split → groups
+	stratumGroups := map[string]bool{}
+	n := 0
+	seen := map[string]bool{}
+	err = DecodeManifest(bytes.NewReader(mb), mpath, func(r *Record) error {
+		n++
+		bad := func(format string, args ...any) { report(Problem{ID: r.ID, Msg: fmt.Sprintf(format, args...)}) }
+		if seen[r.ID] {
+			bad("duplicate id")
+		}
+		seen[r.ID] = true
+		if !splitOK[r.Split] {
+			bad("split %q is not one of dataset.json's %v", r.Split, d.Splits.Names)
+		}
+		counts[r.Split]++
+		if s, ok := groupSplit[r.Group]; ok && s != r.Split {
+			bad("group %q spans splits %s and %s", r.Group, s, r.Split)
+		} else if !ok {
+			groupSplit[r.Group] = r.Split
+			if strata[r.Stratum] == nil {
+				strata[r.Stratum] = map[string]int{}
+			}
+			strata[r.Stratum][r.Split]++
+			stratumGroups[r.Group] = true
+		}
+		verifyRecord(dir, d, r, recipe.Targets, classByName, bad)
+		return nil
+	})
+	if err != nil {
+		report(Problem{Msg: err.Error()})
+	}
+	if n != d.Count {
+		report(Problem{Msg: fmt.Sprintf("manifest has %d records, dataset.json says %d", n, d.Count)})
+	}
+	for _, s := range d.Splits.Names {
+		if counts[s] != d.Splits.Counts[s] {
+			report(Problem{Msg: fmt.Sprintf("split %s has %d records, dataset.json says %d", s, counts[s], d.Splits.Counts[s])})
+		}
+	}
+	declared := map[string]bool{}
+	for _, st := range d.Splits.Strata {
+		declared[st.Key] = true
+		for _, s := range d.Splits.Names {
+			if got := strata[st.Key][s]; got != st.Splits[s] {
+				report(Problem{Msg: fmt.Sprintf("stratum %q in split %s has %d groups, dataset.json says %d", st.Key, s, got, st.Splits[s])})
+			}
+		}
+	}
+	keys := make([]string, 0, len(strata))
+	for k := range strata {
+		keys = append(keys, k)
+	}
+	sort.Strings(keys)
+	for _, k := range keys {
+		if !declared[k] {
+			report(Problem{Msg: fmt.Sprintf("stratum %q is not in dataset.json's table", k)})
+		}
+	}
+	return n, nil
+}
+
+func decodePNG(dir, rel string, want string, bad func(string, ...any)) image.Image {
+	if !SafeRel(rel) {
+		bad("%s path %q leaves the dataset folder", want, rel)
+		return nil
+	}
+	f, err := os.Open(filepath.Join(dir, rel))
+	if err != nil {
+		bad("%s: %v", rel, err)
+		return nil
+	}
+	defer f.Close()
+	m, err := png.Decode(f)
+	if err != nil {
+		bad("%s: not a readable PNG: %v", rel, err)
+		return nil
+	}
+	return m
+}
+
+func verifyRecord(dir string, d *Dataset, r *Record, targets []countTarget, classByName map[string]int, bad func(string, ...any)) {
+	for _, f := range [][2]string{{"image", r.Image}, {"mask", r.Mask}, {"instances", r.Instances}} {
+		key, rel := f[0], f[1]
+		if !SafeRel(rel) {
+			continue // reported when decoded
+		}
+		b, err := os.ReadFile(filepath.Join(dir, rel))
+		if err != nil {
+			continue // reported when decoded
+		}
+		if got := SHA256Hex(b); got != r.SHA256[key] {
+			bad("%s: SHA-256 %s, record says %s", rel, got, r.SHA256[key])
+		}
+	}
+	img := decodePNG(dir, r.Image, "image", bad)
+	mk := decodePNG(dir, r.Mask, "mask", bad)
+	in := decodePNG(dir, r.Instances, "instances", bad)
+	want := image.Rect(0, 0, r.Width, r.Height)
+	for _, m := range []image.Image{img, mk, in} {
+		if m != nil && m.Bounds() != want {
+			bad("an image is %v, record says %dx%d", m.Bounds().Size(), r.Width, r.Height)
+			return
+		}
+	}
+	mask, ok1 := mk.(*image.Paletted)
+	inst, ok2 := in.(*image.Gray16)
+	if mk != nil && !ok1 {
+		bad("%s: semantic mask is not an indexed PNG", r.Mask)
+	}
+	if in != nil && !ok2 {
+		bad("%s: instance mask is not a 16-bit gray PNG", r.Instances)
+	}
+	if !ok1 || !ok2 {
+		return
+	}
+	stats := MeasureInstances(inst)
+	byID := map[int]*Object{}
+	for i := range r.Objects {
+		o := &r.Objects[i]
+		byID[o.Instance] = o
+		st := stats[o.Instance]
+		if st == nil {
+			bad("object %d is in the record but not in the instance mask", o.Instance)
+			continue
+		}
+		if st.BBox != o.BBox {
+			bad("object %d: bbox %v in the record, %v in the instance mask", o.Instance, o.BBox, st.BBox)
+		}
+		if st.Area != o.Area {
+			bad("object %d: area %d in the record, %d in the instance mask", o.Instance, o.Area, st.Area)
+		}
+	}
+	ids := make([]int, 0, len(stats))
+	for id := range stats {
+		ids = append(ids, id)
+	}
+	sort.Ints(ids)
+	for _, id := range ids {
+		if byID[id] == nil {
+			bad("instance %d is in the instance mask but not in the record", id)
+		}
+	}
+	// Every pixel's class is its instance's class; no instance means background.
+	mismatch := 0
+	b := want
+	for y := b.Min.Y; y < b.Max.Y; y++ {
+		for x := b.Min.X; x < b.Max.X; x++ {
+			id := int(inst.Gray16At(x, y).Y)
+			cls := int(mask.ColorIndexAt(x, y))
+			wantCls := 0
+			if o := byID[id]; o != nil {
+				wantCls = o.Class
+			} else if id != 0 {
+				continue
+			}
+			if cls != wantCls {
+				if mismatch == 0 {
+					bad("%s: pixel (%d, %d) has class %d, its instance %d is class %d", r.Mask, x, y, cls, id, wantCls)
+				}
+				mismatch++
+			}
+		}
+	}
+	if mismatch > 1 {
+		bad("%s: %d pixels in all disagree with the instance mask", r.Mask, mismatch)
+	}
+	for _, t := range targets {
+		if t.Kind != "count" {
+			continue
+		}
+		want := map[int]bool{}
+		for _, c := range t.Classes {
+			want[classByName[c]] = true
+		}
+		n := 0
+		for _, id := range ids {
+			if o := byID[id]; o != nil && (len(t.Classes) == 0 || want[o.Class]) {
+				n++
+			}
+		}
+		v, ok := r.Targets[t.Name]
+		if !ok || v.IsStr || int(v.Num) != n || v.Num != float64(int(v.Num)) {
+			bad("target %s is %v, the instance mask holds %d such objects", t.Name, v, n)
+		}
+	}
+}
