@@ -116,11 +116,45 @@ func drawTone(rng *rand.Rand, in *Range, col *ColourRange) [3]uint8 {
 	return [3]uint8{v, v, v}
 }
 
+// MaxContentDraws bounds the redraws of a balanced sample's content.
+const MaxContentDraws = 2000
+
 // Content draws what a sample contains — counts, classes, characters, tones
 // and values — from the sample's content stream. It does not depend on the
-// attempt, so strata computed from it are fixed before rendering.
-func (r *Recipe) Content(seed uint64, index int) []ObjectPlan {
-	rng := manifest.RNG(seed, uint64(index), streamContent)
+// geometry attempt, so strata computed from it are fixed before rendering.
+// With split.balance, the content is redrawn (draw d uses stream (content, d))
+// until the balanced target takes the value dealt to this index.
+func (r *Recipe) Content(seed uint64, index int) ([]ObjectPlan, error) {
+	want, ok := r.balanceWant(seed, index)
+	if !ok {
+		return r.drawContent(seed, index, 0), nil
+	}
+	b := r.Split.Balance
+	for d := 0; d < MaxContentDraws; d++ {
+		objs := r.drawContent(seed, index, d)
+		if got := r.contentTargets(objs)[b.Target]; got.String() == want {
+			return objs, nil
+		}
+	}
+	return nil, fmt.Errorf("sample %d: split.balance: no content with %s = %s in %d draws; can the recipe's counts and values reach it?", index, b.Target, want, MaxContentDraws)
+}
+
+// balanceWant returns the balanced target value dealt to index: indices come
+// in blocks of len(values), and each block holds every value once, in an
+// order shuffled by (seed, block). So any count of samples has each value
+// within one of count/len(values), and no global table is needed.
+func (r *Recipe) balanceWant(seed uint64, index int) (string, bool) {
+	if r.Split == nil || r.Split.Balance == nil {
+		return "", false
+	}
+	vals := r.Split.Balance.Values
+	k := len(vals)
+	perm := manifest.RNG(seed, 0xba1a, uint64(index/k)).Perm(k)
+	return vals[perm[index%k]], true
+}
+
+func (r *Recipe) drawContent(seed uint64, index, draw int) []ObjectPlan {
+	rng := manifest.RNG(seed, uint64(index), streamContent, uint64(draw))
 	var objs []ObjectPlan
 	for li := range r.Layers {
 		lay := &r.Layers[li].Layout
@@ -189,7 +223,11 @@ func (r *Recipe) contentOne(rng *rand.Rand, spec *ObjectSpec, layer int, lay *La
 // LayoutError means the attempt's geometry could not satisfy the layout;
 // callers retry with the next attempt.
 func (r *Recipe) Plan(seed uint64, index, attempt int) (*Plan, error) {
-	p := &Plan{Index: index, Attempt: attempt, Objects: r.Content(seed, index)}
+	objs, err := r.Content(seed, index)
+	if err != nil {
+		return nil, err
+	}
+	p := &Plan{Index: index, Attempt: attempt, Objects: objs}
 	rng := manifest.RNG(seed, uint64(index), streamGeometry, uint64(attempt))
 	p.Background = r.planBackground(rng)
 	start := 0

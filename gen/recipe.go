@@ -21,6 +21,7 @@ type Recipe struct {
 	Classes     []ClassSpec  `yaml:"classes" json:"classes"`
 	Layers      []Layer      `yaml:"layers" json:"layers"`
 	Targets     []TargetSpec `yaml:"targets" json:"targets"`
+	Split       *SplitSpec   `yaml:"split" json:"split,omitempty"`
 
 	file    string
 	fonts   map[string]*Font // by font name or file
@@ -112,6 +113,21 @@ type TargetSpec struct {
 	Kind    string   `yaml:"kind" json:"kind"` // count, sum, min, max, mean, text, number
 	Classes []string `yaml:"classes" json:"classes,omitempty"`
 	Of      string   `yaml:"of" json:"of,omitempty"` // value, area, size, angle
+}
+
+// SplitSpec sets how samples are dealt to splits; command-line flags
+// override it.
+type SplitSpec struct {
+	Ratios          string       `yaml:"ratios" json:"ratios,omitempty"`     // "train=0.8,val=0.1,test=0.1"
+	Stratify        string       `yaml:"stratify" json:"stratify,omitempty"` // target name, class:NAME or classes
+	RequireCoverage bool         `yaml:"require_coverage" json:"require_coverage,omitempty"`
+	Balance         *BalanceSpec `yaml:"balance" json:"balance,omitempty"`
+}
+
+// BalanceSpec asks for equal numbers of samples per value of a target.
+type BalanceSpec struct {
+	Target string   `yaml:"target" json:"target"`
+	Values []string `yaml:"values" json:"values"` // as the target prints them, e.g. 1, 2, 3
 }
 
 // Range is a closed interval [Min, Max]; a single number means Min = Max.

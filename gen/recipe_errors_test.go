@@ -85,7 +85,7 @@ func TestRecipeErrorPositions(t *testing.T) {
 		mentions []string // the bad value and/or the allowed values
 	}{
 		{"unknown top-level field", "name: t\n", "name: t\ncolours: 3\n",
-			2, "colours", []string{`unknown field "colours"`, "allowed here: background, canvas, classes, description, layers, name, targets"}},
+			2, "colours", []string{`unknown field "colours"`, "allowed here: background, canvas, classes, description, layers, name, split, targets"}},
 		{"unknown canvas field", "  height: 64\n", "  height: 64\n  depth: 8\n",
 			5, "canvas.depth", []string{`unknown field "depth"`, "antialias, height, mode, width"}},
 		{"unknown layout field", "      kind: scatter\n", "      kind: scatter\n      spread: 3\n",

@@ -7,6 +7,7 @@ import (
 	"encoding/json"
 	"fmt"
 	"runtime"
+	"strings"
 	"sync"
 	"time"
 
@@ -16,15 +17,18 @@ import (
 // RunOptions configures a generation run. The zero value of each optional
 // field means its default.
 type RunOptions struct {
-	Recipe   *Recipe
-	Out      string
-	Count    int
-	Seed     uint64
-	Workers  int    // 0 = runtime.NumCPU()
-	Splits   string // "" = manifest.DefaultSplits
-	Force    bool
-	Version  string
-	Progress func(done, total int) // called from one goroutine, in order
+	Recipe          *Recipe
+	Out             string
+	Count           int
+	Seed            uint64
+	Workers         int    // 0 = runtime.NumCPU()
+	Splits          string // "" = the recipe's split.ratios, else manifest.DefaultSplits
+	Stratify        string // "" = the recipe's split.stratify (which may be "")
+	RequireCoverage bool   // also set by the recipe's split.require_coverage
+	Shard, Shards   int    // render only shard Shard of Shards (Shards 0 = the whole set)
+	Force           bool
+	Version         string
+	Progress        func(done, total int) // called from one goroutine, in order
 }
 
 // Summary reports a finished run.
@@ -32,6 +36,7 @@ type Summary struct {
 	Samples int
 	Elapsed time.Duration
 	Bytes   int64
+	Splits  manifest.SplitTable
 }
 
 // MaxCount bounds --count.
@@ -54,12 +59,69 @@ type result struct {
 	err   error
 }
 
-// Run generates a dataset: workers plan, render, encode and write samples
+// CoverageError is a --require-coverage failure.
+type CoverageError struct{ Cells []string }
+
+func (e *CoverageError) Error() string {
+	return fmt.Sprintf("--require-coverage: %d strata × split cells are empty: %s", len(e.Cells), strings.Join(e.Cells, "; "))
+}
+
+// Allocate computes the stratum of every sample from its plan and deals the
+// samples (each its own group) to splits. It is the same on every shard.
+func Allocate(r *Recipe, seed uint64, count, workers int, splits manifest.Splits, key string) ([]string, *manifest.Allocation, error) {
+	if err := r.CheckStratify(key); err != nil {
+		return nil, nil, err
+	}
+	keys := make([]string, count)
+	errs := make([]error, workers)
+	var wg sync.WaitGroup
+	for w := 0; w < workers; w++ {
+		wg.Add(1)
+		go func(w int) {
+			defer wg.Done()
+			for i := w; i < count; i += workers {
+				k, err := r.Stratum(seed, i, key)
+				if err != nil {
+					errs[w] = err
+					return
+				}
+				keys[i] = k
+			}
+		}(w)
+	}
+	wg.Wait()
+	for _, err := range errs {
+		if err != nil {
+			return nil, nil, err
+		}
+	}
+	intern := map[string]string{}
+	for i, k := range keys {
+		if s, ok := intern[k]; ok {
+			keys[i] = s
+		} else {
+			intern[k] = k
+		}
+	}
+	a, err := manifest.AllocateStrata(seed, keys, splits)
+	return keys, a, err
+}
+
+// ShardRange returns the contiguous index range [lo, hi) of shard i of n:
+// lo = ⌊i·count/n⌋, hi = ⌊(i+1)·count/n⌋.
+func ShardRange(i, n, count int) (lo, hi int) {
+	return int(int64(i) * int64(count) / int64(n)), int(int64(i+1) * int64(count) / int64(n))
+}
+
+// Run generates a dataset: strata are computed from plans and the split is
+// allocated first; then workers plan, render, encode and write samples
 // concurrently; records enter manifest.jsonl strictly in index order; and
-// dataset.json is written last. At most 4×workers samples are in flight, so
-// memory does not grow with Count.
+// dataset.json (shard.json for a shard) is written last. At most 4×workers
+// samples are in flight, so memory does not grow with Count beyond the
+// per-sample split table.
 func Run(ctx context.Context, o RunOptions) (Summary, error) {
 	start := time.Now()
+	r := o.Recipe
 	if o.Count < 1 || o.Count > MaxCount {
 		return Summary{}, fmt.Errorf("count %d: want 1..%d", o.Count, MaxCount)
 	}
@@ -67,18 +129,57 @@ func Run(ctx context.Context, o RunOptions) (Summary, error) {
 	if workers <= 0 {
 		workers = runtime.NumCPU()
 	}
+	if o.Splits == "" && r.Split != nil {
+		o.Splits = r.Split.Ratios
+	}
 	if o.Splits == "" {
 		o.Splits = manifest.DefaultSplits
+	}
+	if o.Stratify == "" && r.Split != nil {
+		o.Stratify = r.Split.Stratify
+	}
+	if r.Split != nil && r.Split.RequireCoverage {
+		o.RequireCoverage = true
 	}
 	splits, err := manifest.ParseSplits(o.Splits)
 	if err != nil {
 		return Summary{}, err
 	}
-	recipeJSON, recipeHash, err := o.Recipe.RecipeJSON()
+	lo, hi := 0, o.Count
+	if o.Shards > 0 {
+		if o.Shard < 0 || o.Shard >= o.Shards || o.Shards > o.Count {
+			return Summary{}, fmt.Errorf("shard %d/%d: want 0 ≤ shard < shards ≤ count (%d)", o.Shard, o.Shards, o.Count)
+		}
+		lo, hi = ShardRange(o.Shard, o.Shards, o.Count)
+	}
+	recipeJSON, recipeHash, err := r.RecipeJSON()
 	if err != nil {
 		return Summary{}, err
 	}
-	alloc := splits.Allocate(o.Seed, o.Count)
+	keys, alloc, err := Allocate(r, o.Seed, o.Count, workers, splits, o.Stratify)
+	if err != nil {
+		return Summary{}, err
+	}
+	if o.RequireCoverage {
+		if cells := alloc.Uncovered(splits); len(cells) > 0 {
+			return Summary{}, &CoverageError{cells}
+		}
+	}
+	var tnames []string
+	for _, t := range r.Targets {
+		tnames = append(tnames, t.Name)
+	}
+	table := manifest.SplitTable{Names: splits.Names, Spec: splits.String(), Ratios: map[string]float64{}, Counts: map[string]int{},
+		Stratify: o.Stratify, Strata: alloc.Table, Thin: alloc.Thin}
+	for i, n := range splits.Names {
+		table.Ratios[n] = manifest.Round(splits.Ratios[i], 6)
+		table.Counts[n] = alloc.Counts[i]
+	}
+	d := &manifest.Dataset{
+		ToolVersion: o.Version, Recipe: recipeJSON, RecipeSHA256: recipeHash,
+		Seed: o.Seed, Count: o.Count, Width: r.Canvas.Width, Height: r.Canvas.Height,
+		Mode: r.Canvas.Mode, Classes: r.ClassTable(), Targets: tnames, Splits: table,
+	}
 
 	w, err := manifest.Create(o.Out, o.Force)
 	if err != nil {
@@ -94,7 +195,7 @@ func Run(ctx context.Context, o RunOptions) (Summary, error) {
 	var wg sync.WaitGroup
 	go func() {
 		defer close(jobs)
-		for i := 0; i < o.Count; i++ {
+		for i := lo; i < hi; i++ {
 			select {
 			case slots <- struct{}{}:
 			case <-ctx.Done():
@@ -111,12 +212,13 @@ func Run(ctx context.Context, o RunOptions) (Summary, error) {
 		wg.Add(1)
 		go func() {
 			defer wg.Done()
-			rd := NewRenderer(o.Recipe)
+			rd := NewRenderer(r)
 			enc := manifest.NewEncoder()
 			for i := range jobs {
 				rec, n, err := rd.produce(o.Seed, i, enc, w)
 				if err == nil {
-					rec.Split = splits.Names[alloc[i]]
+					rec.Split = splits.Names[alloc.Split[i]]
+					rec.Stratum = keys[i]
 				}
 				select {
 				case results <- result{rec, n, err}:
@@ -129,9 +231,8 @@ func Run(ctx context.Context, o RunOptions) (Summary, error) {
 	go func() { wg.Wait(); close(results) }()
 
 	pending := map[int]*manifest.Record{}
-	next := 0
+	next := lo
 	var total int64
-	counts := map[string]int{}
 	var firstErr error
 	for res := range results {
 		if res.err != nil {
@@ -157,39 +258,30 @@ func Run(ctx context.Context, o RunOptions) (Summary, error) {
 				cancel()
 				break
 			}
-			counts[rec.Split]++
 			next++
 			<-slots
 			if o.Progress != nil {
-				o.Progress(next, o.Count)
+				o.Progress(next-lo, hi-lo)
 			}
 		}
 	}
 	if firstErr == nil && ctx.Err() != nil {
 		firstErr = ctx.Err()
 	}
+	sum := Summary{Samples: next - lo, Elapsed: time.Since(start), Bytes: total, Splits: table}
 	if firstErr != nil {
 		w.Abort()
-		return Summary{Samples: next, Elapsed: time.Since(start), Bytes: total}, firstErr
+		return sum, firstErr
 	}
-	ratios := map[string]float64{}
-	for i, n := range splits.Names {
-		ratios[n] = manifest.Round(splits.Ratios[i], 6)
-		counts[n] += 0
+	var n int64
+	if o.Shards > 0 {
+		n, err = w.FinishShard(&manifest.Shard{Shard: o.Shard, Shards: o.Shards, First: lo, End: hi, Dataset: *d})
+	} else {
+		n, err = w.Finish(d)
 	}
-	var tnames []string
-	for _, t := range o.Recipe.Targets {
-		tnames = append(tnames, t.Name)
-	}
-	d := &manifest.Dataset{
-		ToolVersion: o.Version, Recipe: recipeJSON, RecipeSHA256: recipeHash,
-		Seed: o.Seed, Count: o.Count, Width: o.Recipe.Canvas.Width, Height: o.Recipe.Canvas.Height,
-		Mode: o.Recipe.Canvas.Mode, Classes: o.Recipe.ClassTable(), Targets: tnames,
-		Splits: manifest.SplitTable{Names: splits.Names, Ratios: ratios, Counts: counts},
-	}
-	n, err := w.Finish(d)
-	total += n
-	return Summary{Samples: next, Elapsed: time.Since(start), Bytes: total}, err
+	sum.Bytes += n
+	sum.Elapsed = time.Since(start)
+	return sum, err
 }
 
 // produce generates, encodes and writes sample i.

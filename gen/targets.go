@@ -12,9 +12,9 @@ import (
 // targets computes every recipe target from the measured objects: counts are
 // distinct instance ids present in the instance mask, areas are mask pixels,
 // and the plan supplies values, sizes, angles and characters.
-func (r *Recipe) targets(p *Plan, objs []manifest.Object) (map[string]manifest.Value, error) {
-	out := make(map[string]manifest.Value, len(r.Targets))
-	for _, t := range r.Targets {
+func (r *Recipe) targets(p *Plan, objs []manifest.Object, specs []TargetSpec) (map[string]manifest.Value, error) {
+	out := make(map[string]manifest.Value, len(specs))
+	for _, t := range specs {
 		var sel []int
 		for i := range objs {
 			if objs[i].Area > 0 && r.inClasses(objs[i].Class, t.Classes) {

@@ -7,6 +7,8 @@ import (
 	"reflect"
 	"strings"
 	"unicode"
+
+	"github.com/trueset/trueset/manifest"
 )
 
 // Bounds that keep any recipe's cost finite.
@@ -109,7 +111,50 @@ func (r *Recipe) validate(d *decoder) error {
 	if maxObjects > MaxObjects {
 		return d.errPath("layers", fmt.Sprint(maxObjects), "a scene may hold at most %d objects (parts included); the counts allow more", MaxObjects)
 	}
-	return r.validateTargets(d)
+	if err := r.validateTargets(d); err != nil {
+		return err
+	}
+	return r.validateSplit(d)
+}
+
+func (r *Recipe) validateSplit(d *decoder) error {
+	sp := r.Split
+	if sp == nil {
+		return nil
+	}
+	if sp.Ratios != "" {
+		if _, err := manifest.ParseSplits(sp.Ratios); err != nil {
+			return d.errPath("split.ratios", fmt.Sprintf("%q", sp.Ratios), "%v", err)
+		}
+	}
+	if err := r.CheckStratify(sp.Stratify); err != nil {
+		return d.errPath("split.stratify", fmt.Sprintf("%q", sp.Stratify), "%v", err)
+	}
+	if b := sp.Balance; b != nil {
+		var t *TargetSpec
+		for i := range r.Targets {
+			if r.Targets[i].Name == b.Target {
+				t = &r.Targets[i]
+			}
+		}
+		if t == nil {
+			return d.errPath("split.balance.target", fmt.Sprintf("%q", b.Target), "no such target")
+		}
+		if !r.contentDecides(*t) {
+			return d.errPath("split.balance.target", fmt.Sprintf("%q", b.Target), "balance needs a target that content decides (a count, a value aggregate or a row reading), not one that depends on geometry")
+		}
+		if len(b.Values) == 0 || len(b.Values) > 1000 {
+			return d.errPath("split.balance.values", "", "want 1 to 1000 values to balance")
+		}
+		seen := map[string]bool{}
+		for i, v := range b.Values {
+			if seen[v] {
+				return d.errPath(fmt.Sprintf("split.balance.values[%d]", i), v, "values must be unique")
+			}
+			seen[v] = true
+		}
+	}
+	return nil
 }
 
 func (r *Recipe) validateBackground(d *decoder) error {

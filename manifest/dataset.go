@@ -44,6 +44,7 @@ type Dataset struct {
 // strata × splits table the allocation guarantees.
 type SplitTable struct {
 	Names    []string           `json:"names"`
+	Spec     string             `json:"spec"` // the ratios as given, e.g. train=0.8,val=0.1,test=0.1
 	Ratios   map[string]float64 `json:"ratios"`
 	Counts   map[string]int     `json:"counts"`             // samples per split
 	Stratify string             `json:"stratify,omitempty"` // the stratification key; "" = one stratum

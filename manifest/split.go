@@ -52,6 +52,15 @@ func ParseSplits(s string) (Splits, error) {
 	return sp, nil
 }
 
+// String writes the splits back as name=ratio pairs (normalised ratios).
+func (sp Splits) String() string {
+	parts := make([]string, len(sp.Names))
+	for i, n := range sp.Names {
+		parts[i] = n + "=" + strconv.FormatFloat(sp.Ratios[i], 'g', -1, 64)
+	}
+	return strings.Join(parts, ",")
+}
+
 // Quotas divides n samples between the splits by the largest-remainder
 // (Hamilton) method: each split gets ⌊n·ratio⌋, and the leftover samples go
 // to the largest fractional parts (ties to the earlier split). Each quota is

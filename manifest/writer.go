@@ -33,8 +33,10 @@ func Create(dir string, force bool) (*Writer, error) {
 		}
 	}
 	// A stale dataset.json would mark a half-written folder complete.
-	if err := os.Remove(filepath.Join(dir, DatasetFile)); err != nil && !os.IsNotExist(err) {
-		return nil, err
+	for _, name := range []string{DatasetFile, ShardFile} {
+		if err := os.Remove(filepath.Join(dir, name)); err != nil && !os.IsNotExist(err) {
+			return nil, err
+		}
 	}
 	f, err := os.Create(filepath.Join(dir, ManifestFile))
 	if err != nil {
@@ -90,20 +92,27 @@ func (w *Writer) Abort() {
 	w.f.Close()
 }
 
-// Finish flushes the manifest to disk, records its SHA-256 in d and writes
-// dataset.json last. It returns the bytes of manifest and dataset.json.
-func (w *Writer) Finish(d *Dataset) (int64, error) {
+func (w *Writer) flush() error {
 	p := filepath.Join(w.Dir, ManifestFile)
 	if err := w.bw.Flush(); err != nil {
 		w.f.Close()
-		return 0, fmt.Errorf("write %s: %w", p, err)
+		return fmt.Errorf("write %s: %w", p, err)
 	}
 	if err := w.f.Sync(); err != nil {
 		w.f.Close()
-		return 0, fmt.Errorf("sync %s: %w", p, err)
+		return fmt.Errorf("sync %s: %w", p, err)
 	}
 	if err := w.f.Close(); err != nil {
-		return 0, fmt.Errorf("close %s: %w", p, err)
+		return fmt.Errorf("close %s: %w", p, err)
+	}
+	return nil
+}
+
+// Finish flushes the manifest to disk, records its SHA-256 in d and writes
+// dataset.json last. It returns the bytes of manifest and dataset.json.
+func (w *Writer) Finish(d *Dataset) (int64, error) {
+	if err := w.flush(); err != nil {
+		return 0, err
 	}
 	d.Format = Format
 	d.ManifestSHA256 = hex.EncodeToString(w.sum.Sum(nil))

@@ -1,0 +1,135 @@
+package manifest
+
+import (
+	"fmt"
+	"sort"
+	"strings"
+)
+
+// Stratification keys:
+//
+//	NAME        the value of target NAME
+//	class:NAME  the number of objects of class NAME
+//	classes     the set of classes present, e.g. "nut+washer" ("none" if empty)
+//	""          one stratum for everything ("all")
+//
+// StratumOf returns the stratum of a record under key.
+func StratumOf(r *Record, key string) (string, error) {
+	switch {
+	case key == "":
+		return "all", nil
+	case key == "classes":
+		set := map[string]bool{}
+		for _, o := range r.Objects {
+			set[o.ClassName] = true
+		}
+		if len(set) == 0 {
+			return "none", nil
+		}
+		names := make([]string, 0, len(set))
+		for n := range set {
+			names = append(names, n)
+		}
+		sort.Strings(names)
+		return strings.Join(names, "+"), nil
+	case strings.HasPrefix(key, "class:"):
+		name := strings.TrimPrefix(key, "class:")
+		n := 0
+		for _, o := range r.Objects {
+			if o.ClassName == name {
+				n++
+			}
+		}
+		return fmt.Sprintf("%s=%d", name, n), nil
+	}
+	v, ok := r.Targets[key]
+	if !ok {
+		return "", fmt.Errorf("record %s has no target %q to stratify by", r.ID, key)
+	}
+	return key + "=" + v.String(), nil
+}
+
+// Allocation is the outcome of a stratified split.
+type Allocation struct {
+	Split  []uint8 // split index per unit (group)
+	Table  []Stratum
+	Thin   []string // strata with fewer groups than splits of nonzero ratio
+	Counts []int    // groups per split
+}
+
+// AllocateStrata deals units (groups) to splits. keys[u] is unit u's stratum.
+// The strata × splits table is rounded by ControlledRound, so every cell and
+// every split total is within ±1 of its exact share; which units of a stratum
+// go to which split is a seeded Fisher–Yates shuffle (stream "split" of seed).
+// Strata are ordered by key; the result depends only on seed, keys and splits.
+func AllocateStrata(seed uint64, keys []string, sp Splits) (*Allocation, error) {
+	index := map[string]int{}
+	var names []string
+	for _, k := range keys {
+		if _, ok := index[k]; !ok {
+			index[k] = 0
+			names = append(names, k)
+		}
+	}
+	sort.Strings(names)
+	for i, n := range names {
+		index[n] = i
+	}
+	members := make([][]int32, len(names))
+	for u, k := range keys {
+		s := index[k]
+		members[s] = append(members[s], int32(u))
+	}
+	sizes := make([]int, len(names))
+	for s := range members {
+		sizes[s] = len(members[s])
+	}
+	table, err := ControlledRound(sizes, sp.Ratios)
+	if err != nil {
+		return nil, err
+	}
+	a := &Allocation{Split: make([]uint8, len(keys)), Counts: make([]int, len(sp.Names))}
+	nonzero := 0
+	for _, r := range sp.Ratios {
+		if r > 0 {
+			nonzero++
+		}
+	}
+	for s, name := range names {
+		m := members[s]
+		rng := RNG(seed, 0x5011, uint64(s))
+		for i := len(m) - 1; i > 0; i-- {
+			j := rng.IntN(i + 1)
+			m[i], m[j] = m[j], m[i]
+		}
+		st := Stratum{Key: name, Groups: len(m), Splits: map[string]int{}}
+		k := 0
+		for j, q := range table[s] {
+			st.Splits[sp.Names[j]] = q
+			a.Counts[j] += q
+			for ; q > 0; q-- {
+				a.Split[m[k]] = uint8(j)
+				k++
+			}
+		}
+		a.Table = append(a.Table, st)
+		if len(m) < nonzero {
+			a.Thin = append(a.Thin, name)
+		}
+	}
+	return a, nil
+}
+
+// Uncovered lists "stratum in split" for every cell left empty although the
+// split's ratio is above zero.
+func (a *Allocation) Uncovered(sp Splits) []string {
+	var out []string
+	for _, st := range a.Table {
+		for j, n := range sp.Names {
+			if sp.Ratios[j] > 0 && st.Splits[n] == 0 {
+				out = append(out, fmt.Sprintf("%s in %s", st.Key, n))
+			}
+		}
+	}
+	return out
+}
