@@ -3,6 +3,7 @@ package manifest
 import (
 	"fmt"
 	"math"
+	"sort"
 )
 
 // ControlledRound rounds the strata × splits table of exact shares
@@ -63,9 +64,19 @@ func ControlledRound(sizes []int, ratios []float64) ([][]int, error) {
 		cell[i] = make([]int, K)
 		for j := range ratios {
 			cell[i][j] = -1
+		}
+		// Edges are tried last-added first: add them by rising fractional
+		// part, so a unit goes where the share's remainder is largest
+		// whenever the totals allow it.
+		order := make([]int, 0, K)
+		for j := range ratios {
 			if frac[i][j] > 0 {
-				cell[i][j] = g.add(1+i, 1+S+j, 1)
+				order = append(order, j)
 			}
+		}
+		sort.SliceStable(order, func(a, b int) bool { return frac[i][order[a]] < frac[i][order[b]] })
+		for _, j := range order {
+			cell[i][j] = g.add(1+i, 1+S+j, 1)
 		}
 	}
 	colEdge := make([]int, K)

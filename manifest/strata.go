@@ -71,7 +71,7 @@ func AllocateStrata(seed uint64, keys []string, sp Splits) (*Allocation, error) 
 			names = append(names, k)
 		}
 	}
-	sort.Strings(names)
+	sort.Slice(names, func(a, b int) bool { return NaturalLess(names[a], names[b]) })
 	for i, n := range names {
 		index[n] = i
 	}
@@ -132,4 +132,39 @@ func (a *Allocation) Uncovered(sp Splits) []string {
 		}
 	}
 	return out
+}
+
+// NaturalLess orders strings with runs of digits compared as numbers, so
+// "n=2" sorts before "n=10".
+func NaturalLess(a, b string) bool {
+	for a != "" && b != "" {
+		da, db := digitRun(a), digitRun(b)
+		if da > 0 && db > 0 {
+			x, y := strings.TrimLeft(a[:da], "0"), strings.TrimLeft(b[:db], "0")
+			if len(x) != len(y) {
+				return len(x) < len(y)
+			}
+			if x != y {
+				return x < y
+			}
+			if da != db {
+				return da < db
+			}
+			a, b = a[da:], b[db:]
+			continue
+		}
+		if a[0] != b[0] {
+			return a[0] < b[0]
+		}
+		a, b = a[1:], b[1:]
+	}
+	return len(a) < len(b)
+}
+
+func digitRun(s string) int {
+	i := 0
+	for i < len(s) && s[i] >= '0' && s[i] <= '9' {
+		i++
+	}
+	return i
 }

@@ -2,11 +2,13 @@ package main
 
 import (
 	"context"
+	"errors"
 	"fmt"
 	"io"
 	"os"
 	"os/signal"
 	"runtime"
+	"strconv"
 	"syscall"
 	"time"
 
@@ -27,6 +29,10 @@ type generateOptions struct {
 	seed    uint64
 	workers int
 	split   string
+	strat   string
+	cover   bool
+	shard   string
+	shards  int
 	force   bool
 	quiet   bool
 }
@@ -41,6 +47,17 @@ images/, masks/ (8-bit indexed PNG, palette = class colours), instances/
 (16-bit PNG of instance ids), manifest.jsonl (one record per sample, in index
 order) and dataset.json (written last; it marks the dataset complete).
 
+The split is allocated before rendering: each sample's stratum (--stratify)
+is computed from its plan, and the strata × splits table is rounded so every
+cell and every split total is within ±1 of its exact share (controlled
+rounding). The table is printed and stored in dataset.json.
+
+Shards: --shard I/N renders samples [⌊I·count/N⌋, ⌊(I+1)·count/N⌋) with the
+same global split; ` + "`trueset merge`" + ` joins the shard folders into the dataset a
+single run would write. Without --shard, a Kubernetes Indexed Job
+(JOB_COMPLETION_INDEX, with --shards N) or a Slurm job array
+(SLURM_ARRAY_TASK_ID, SLURM_ARRAY_TASK_COUNT, SLURM_ARRAY_TASK_MIN) sets it.
+
 The same tool version, recipe and seed give byte-identical files whatever
 --workers is.`,
 		Example: `  # the default preset (` + gen.DefaultPreset + `), 1000 samples
@@ -50,7 +67,14 @@ The same tool version, recipe and seed give byte-identical files whatever
   trueset generate --preset tabletop-dice --count 20000 --seed 7 --workers 2 --out dice
 
   # your own recipe (start from: trueset presets show bin-labels > labels.yaml)
-  trueset generate --recipe labels.yaml --out labels --split train=0.7,val=0.15,test=0.15`,
+  trueset generate --recipe labels.yaml --out labels --split train=0.7,val=0.15,test=0.15
+
+  # every split must see every number of dice
+  trueset generate --preset tabletop-dice --stratify dice --require-coverage --out dice
+
+  # shard 2 of 7 on one machine of a batch; then merge the seven folders
+  trueset generate --preset bin-labels --count 70000 --shard 2/7 --out part-2
+  trueset merge part-0 part-1 part-2 part-3 part-4 part-5 part-6 --out labels`,
 		Args: cobra.NoArgs,
 		RunE: func(cmd *cobra.Command, args []string) error {
 			return runGenerate(cmd.Context(), o, stdout, stderr)
@@ -63,7 +87,11 @@ The same tool version, recipe and seed give byte-identical files whatever
 	f.IntVarP(&o.count, "count", "n", 1000, "number of samples")
 	f.Uint64Var(&o.seed, "seed", 1, "seed; with the recipe and tool version it fixes every byte")
 	f.IntVarP(&o.workers, "workers", "j", runtime.NumCPU(), "parallel workers (output does not depend on it)")
-	f.StringVar(&o.split, "split", "train=0.8,val=0.1,test=0.1", "split names and ratios")
+	f.StringVar(&o.split, "split", "", "split names and ratios (default: the recipe's split.ratios, else "+manifest.DefaultSplits+")")
+	f.StringVar(&o.strat, "stratify", "", "stratify by a target name, class:NAME (its count) or classes (the set present); default: the recipe's split.stratify")
+	f.BoolVar(&o.cover, "require-coverage", false, "fail if any split lacks any stratum")
+	f.StringVar(&o.shard, "shard", "", "render only shard I of N, as I/N (0-based)")
+	f.IntVar(&o.shards, "shards", 0, "the shard count N when the index comes from JOB_COMPLETION_INDEX")
 	f.BoolVar(&o.force, "force", false, "write into a folder that is not empty")
 	f.BoolVarP(&o.quiet, "quiet", "q", false, "no progress bar and no summary")
 	return cmd
@@ -102,7 +130,18 @@ func runGenerate(ctx context.Context, o *generateOptions, stdout, stderr io.Writ
 	if err != nil {
 		return err
 	}
-	if _, err := parseSplitFlag(o.split); err != nil {
+	if o.split != "" {
+		if _, err := parseSplitFlag(o.split); err != nil {
+			return err
+		}
+	}
+	if o.strat != "" {
+		if err := r.CheckStratify(o.strat); err != nil {
+			return usageError{err}
+		}
+	}
+	shard, shards, from, err := shardFromFlagsOrEnv(o.shard, o.shards, os.Getenv)
+	if err != nil {
 		return err
 	}
 	// A folder that already holds files is the caller's mistake, not a
@@ -133,7 +172,8 @@ func runGenerate(ctx context.Context, o *generateOptions, stdout, stderr io.Writ
 	}
 	sum, err := gen.Run(ctx, gen.RunOptions{
 		Recipe: r, Out: o.out, Count: o.count, Seed: o.seed, Workers: o.workers,
-		Splits: o.split, Force: o.force, Version: version,
+		Splits: o.split, Stratify: o.strat, RequireCoverage: o.cover,
+		Shard: shard, Shards: shards, Force: o.force, Version: version,
 		Progress: func(done, total int) {
 			if bar != nil {
 				bar.Set(done)
@@ -143,15 +183,83 @@ func runGenerate(ctx context.Context, o *generateOptions, stdout, stderr io.Writ
 	if bar != nil {
 		bar.Finish()
 	}
+	var ce *gen.CoverageError
+	if errors.As(err, &ce) {
+		printSplitTable(stderr, sum.Splits)
+		return fmt.Errorf("%w; nothing was written", err)
+	}
 	if err != nil {
 		return fmt.Errorf("%s: %w (the folder has no dataset.json, so it is visibly incomplete)", o.out, err)
 	}
 	if !o.quiet {
 		secs := sum.Elapsed.Seconds()
-		fmt.Fprintf(stdout, "wrote %d samples of %s to %s in %.2fs (%.0f samples/s, %s)\n",
-			sum.Samples, r.Name, o.out, secs, float64(sum.Samples)/secs, humanBytes(sum.Bytes))
+		what := "samples"
+		if shards > 0 {
+			what = fmt.Sprintf("samples (shard %d/%d%s)", shard, shards, from)
+		}
+		fmt.Fprintf(stdout, "wrote %d %s of %s to %s in %.2fs (%.0f samples/s, %s)\n",
+			sum.Samples, what, r.Name, o.out, secs, float64(sum.Samples)/secs, humanBytes(sum.Bytes))
+		printSplitTable(stdout, sum.Splits)
 	}
 	return nil
+}
+
+// shardFromFlagsOrEnv returns the shard to render: --shard I/N first, else a
+// Kubernetes Indexed Job's JOB_COMPLETION_INDEX (count from --shards), else a
+// Slurm job array's SLURM_ARRAY_TASK_ID − SLURM_ARRAY_TASK_MIN of
+// SLURM_ARRAY_TASK_COUNT. shards = 0 means the whole dataset.
+func shardFromFlagsOrEnv(flag string, shardsFlag int, getenv func(string) string) (shard, shards int, from string, err error) {
+	if flag != "" {
+		if _, err := fmt.Sscanf(flag, "%d/%d", &shard, &shards); err != nil || shards < 1 || shard < 0 || shard >= shards || fmt.Sprintf("%d/%d", shard, shards) != flag {
+			return 0, 0, "", usagef("--shard %q: want I/N with 0 ≤ I < N, e.g. 2/7", flag)
+		}
+		return shard, shards, "", nil
+	}
+	atoi := func(name string) (int, bool, error) {
+		v := getenv(name)
+		if v == "" {
+			return 0, false, nil
+		}
+		n, err := strconv.Atoi(v)
+		if err != nil || n < 0 {
+			return 0, true, usagef("%s=%q is not a whole number", name, v)
+		}
+		return n, true, nil
+	}
+	if idx, ok, err := atoi("JOB_COMPLETION_INDEX"); err != nil {
+		return 0, 0, "", err
+	} else if ok {
+		if shardsFlag < 1 {
+			return 0, 0, "", usagef("JOB_COMPLETION_INDEX=%d is set: give the shard count with --shards N (the Job's completions)", idx)
+		}
+		if idx >= shardsFlag {
+			return 0, 0, "", usagef("JOB_COMPLETION_INDEX=%d is not below --shards %d", idx, shardsFlag)
+		}
+		return idx, shardsFlag, ", from JOB_COMPLETION_INDEX", nil
+	}
+	if id, ok, err := atoi("SLURM_ARRAY_TASK_ID"); err != nil {
+		return 0, 0, "", err
+	} else if ok {
+		n, okN, err := atoi("SLURM_ARRAY_TASK_COUNT")
+		if err != nil {
+			return 0, 0, "", err
+		}
+		if !okN || n < 1 {
+			return 0, 0, "", usagef("SLURM_ARRAY_TASK_ID=%d is set but SLURM_ARRAY_TASK_COUNT is not", id)
+		}
+		lo, _, err := atoi("SLURM_ARRAY_TASK_MIN")
+		if err != nil {
+			return 0, 0, "", err
+		}
+		if id < lo || id-lo >= n {
+			return 0, 0, "", usagef("SLURM_ARRAY_TASK_ID=%d is outside the array's %d tasks from %d; use a contiguous array such as --array=0-%d", id, n, lo, n-1)
+		}
+		return id - lo, n, ", from SLURM_ARRAY_TASK_ID", nil
+	}
+	if shardsFlag > 0 {
+		return 0, 0, "", usagef("--shards %d needs JOB_COMPLETION_INDEX in the environment; on one machine use --shard I/N", shardsFlag)
+	}
+	return 0, 0, "", nil
 }
 
 func isTerminal(w io.Writer) bool {

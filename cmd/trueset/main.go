@@ -53,7 +53,8 @@ anyone can regenerate byte for byte from the recipe and the seed.`,
 	root.SetFlagErrorFunc(func(c *cobra.Command, err error) error {
 		return usageError{fmt.Errorf("%w\nsee: %s --help", err, c.CommandPath())}
 	})
-	root.AddCommand(newGenerateCmd(stdout, stderr), newPresetsCmd(stdout), newVersionCmd(stdout))
+	root.AddCommand(newGenerateCmd(stdout, stderr), newSplitCmd(stdout, stderr), newVerifyCmd(stdout, stderr),
+		newMergeCmd(stdout), newPresetsCmd(stdout), newVersionCmd(stdout))
 	return root
 }
 

@@ -1,0 +1,85 @@
+package main
+
+import (
+	"fmt"
+	"io"
+
+	"github.com/spf13/cobra"
+
+	"github.com/trueset/trueset/manifest"
+)
+
+// splitOptions are the flags of `trueset split`.
+type splitOptions struct {
+	split string
+	strat string
+	cover bool
+	quiet bool
+}
+
+func newSplitCmd(stdout, stderr io.Writer) *cobra.Command {
+	o := &splitOptions{}
+	cmd := &cobra.Command{
+		Use:   "split DIR",
+		Short: "Re-deal an existing dataset's groups to splits, without touching pixels",
+		Long: `Re-split the dataset in DIR: every group (all copies of one source stay
+together) is dealt to a split, stratified by --stratify, with the strata ×
+splits table rounded so every cell and every split total is within ±1 of its
+exact share. Only manifest.jsonl and dataset.json are rewritten; dataset.json
+is removed first and written last, so an interrupted split leaves a folder
+that is visibly incomplete rather than a mix. The shuffle uses the dataset's
+own seed, so the same flags give the same split as generate did.
+
+Unlike generate, split reads the rendered records, so it can stratify by any
+target, areas and sizes included.`,
+		Example: `  # stratify an existing set by its total part count
+  trueset split demo --stratify parts
+
+  # new ratios, and insist every split sees every stratum
+  trueset split dice --split train=0.6,val=0.2,test=0.2 --stratify pip_total --require-coverage`,
+		Args: func(c *cobra.Command, args []string) error {
+			if len(args) != 1 {
+				return usagef("split takes one dataset folder")
+			}
+			return nil
+		},
+		RunE: func(cmd *cobra.Command, args []string) error { return runSplit(args[0], o, stdout, stderr) },
+	}
+	f := cmd.Flags()
+	f.StringVar(&o.split, "split", "", "split names and ratios (default: the dataset's current ones)")
+	f.StringVar(&o.strat, "stratify", "", "a target name, class:NAME or classes (default: the dataset's current key)")
+	f.BoolVar(&o.cover, "require-coverage", false, "fail, changing nothing, if any split would lack any stratum")
+	f.BoolVarP(&o.quiet, "quiet", "q", false, "do not print the table")
+	return cmd
+}
+
+func runSplit(dir string, o *splitOptions, stdout, stderr io.Writer) error {
+	d, err := manifest.ReadDataset(dir)
+	if err != nil {
+		return err
+	}
+	spec := o.split
+	if spec == "" {
+		spec = d.Splits.Spec
+	}
+	sp, err := parseSplitFlag(spec)
+	if err != nil {
+		return err
+	}
+	key := o.strat
+	if key == "" {
+		key = d.Splits.Stratify
+	}
+	t, err := manifest.Resplit(dir, manifest.ResplitOptions{Seed: d.Seed, Splits: sp, Stratify: key, RequireCoverage: o.cover})
+	if err != nil {
+		if t != nil {
+			printSplitTable(stderr, *t)
+		}
+		return err
+	}
+	if !o.quiet {
+		fmt.Fprintf(stdout, "re-split %s\n", dir)
+		printSplitTable(stdout, *t)
+	}
+	return nil
+}
