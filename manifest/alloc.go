@@ -66,15 +66,22 @@ func ControlledRound(sizes []int, ratios []float64) ([][]int, error) {
 			cell[i][j] = -1
 		}
 		// Edges are tried last-added first: add them by rising fractional
-		// part, so a unit goes where the share's remainder is largest
-		// whenever the totals allow it.
+		// part, so a unit goes where the share's remainder is largest (ties:
+		// the earlier split) whenever the totals allow it — which makes a
+		// one-stratum table exactly largest-remainder rounding.
 		order := make([]int, 0, K)
 		for j := range ratios {
 			if frac[i][j] > 0 {
 				order = append(order, j)
 			}
 		}
-		sort.SliceStable(order, func(a, b int) bool { return frac[i][order[a]] < frac[i][order[b]] })
+		sort.Slice(order, func(a, b int) bool {
+			fa, fb := frac[i][order[a]], frac[i][order[b]]
+			if fa != fb {
+				return fa < fb
+			}
+			return order[a] > order[b] // ties go to the earlier split
+		})
 		for _, j := range order {
 			cell[i][j] = g.add(1+i, 1+S+j, 1)
 		}

@@ -3,7 +3,6 @@ package manifest
 import (
 	"fmt"
 	"math"
-	"sort"
 	"strconv"
 	"strings"
 )
@@ -59,53 +58,4 @@ func (sp Splits) String() string {
 		parts[i] = n + "=" + strconv.FormatFloat(sp.Ratios[i], 'g', -1, 64)
 	}
 	return strings.Join(parts, ",")
-}
-
-// Quotas divides n samples between the splits by the largest-remainder
-// (Hamilton) method: each split gets ⌊n·ratio⌋, and the leftover samples go
-// to the largest fractional parts (ties to the earlier split). Each quota is
-// within 1 of its exact share n·ratio.
-func (sp Splits) Quotas(n int) []int {
-	q := make([]int, len(sp.Ratios))
-	type rem struct {
-		i int
-		f float64
-	}
-	rems := make([]rem, len(sp.Ratios))
-	left := n
-	for i, r := range sp.Ratios {
-		exact := float64(n) * r
-		q[i] = int(math.Floor(exact))
-		left -= q[i]
-		rems[i] = rem{i, exact - float64(q[i])}
-	}
-	sort.SliceStable(rems, func(a, b int) bool { return rems[a].f > rems[b].f })
-	for k := 0; k < left; k++ {
-		q[rems[k%len(rems)].i]++
-	}
-	return q
-}
-
-// Allocate assigns each of n samples a split index: the quotas of Quotas(n),
-// dealt over a seeded Fisher–Yates shuffle of the indices. The table is one
-// byte per sample.
-func (sp Splits) Allocate(seed uint64, n int) []uint8 {
-	perm := make([]int32, n)
-	for i := range perm {
-		perm[i] = int32(i)
-	}
-	rng := RNG(seed, 0x5011) // a stream of its own, apart from sample streams
-	for i := n - 1; i > 0; i-- {
-		j := rng.IntN(i + 1)
-		perm[i], perm[j] = perm[j], perm[i]
-	}
-	out := make([]uint8, n)
-	k := 0
-	for s, q := range sp.Quotas(n) {
-		for ; q > 0; q-- {
-			out[perm[k]] = uint8(s)
-			k++
-		}
-	}
-	return out
 }

@@ -5,6 +5,16 @@ import (
 	"testing"
 )
 
+// quotas rounds one stratum of n samples with ControlledRound.
+func quotas(t *testing.T, sp Splits, n int) []int {
+	t.Helper()
+	table, err := ControlledRound([]int{n}, sp.Ratios)
+	if err != nil {
+		t.Fatal(err)
+	}
+	return table[0]
+}
+
 // Largest-remainder (Hamilton) apportionment, worked by hand: 10 samples at
 // 0.8/0.1/0.1 → 8/1/1; 7 samples at 0.5/0.3/0.2 → exact 3.5/2.1/1.4, floors
 // 3/2/1, one left goes to the largest remainder (0.5) → 4/2/1.
@@ -25,7 +35,7 @@ func TestQuotasLargestRemainder(t *testing.T) {
 		if err != nil {
 			t.Fatal(err)
 		}
-		got := sp.Quotas(c.n)
+		got := quotas(t, sp, c.n)
 		for i := range got {
 			if got[i] != c.want[i] {
 				t.Errorf("%s n=%d: got %v, want %v", c.splits, c.n, got, c.want)
@@ -38,7 +48,7 @@ func TestQuotasLargestRemainder(t *testing.T) {
 func TestQuotasWithinOneOfShare(t *testing.T) {
 	sp, _ := ParseSplits("train=0.7,val=0.2,test=0.1")
 	for n := 0; n < 500; n++ {
-		q := sp.Quotas(n)
+		q := quotas(t, sp, n)
 		sum := 0
 		for i, v := range q {
 			sum += v
@@ -52,31 +62,34 @@ func TestQuotasWithinOneOfShare(t *testing.T) {
 	}
 }
 
-func TestAllocateMatchesQuotas(t *testing.T) {
-	sp, _ := ParseSplits(DefaultSplits)
-	a := sp.Allocate(9, 1001)
-	got := make([]int, 3)
-	for _, s := range a {
-		got[s]++
-	}
-	want := sp.Quotas(1001)
-	for i := range want {
-		if got[i] != want[i] {
-			t.Fatalf("allocation %v, quotas %v", got, want)
-		}
-	}
-	b := sp.Allocate(9, 1001)
-	for i := range a {
-		if a[i] != b[i] {
-			t.Fatal("same seed, different allocation")
-		}
-	}
-}
-
 func TestParseSplitsRefusals(t *testing.T) {
 	for _, s := range []string{"", "train", "train=x", "train=-1", "a=0,b=0", "a=0.5,a=0.5", "=0.5", "a b=1"} {
 		if _, err := ParseSplits(s); err == nil {
 			t.Errorf("%q: accepted", s)
+		}
+	}
+}
+
+// The worked example of the largest remainder method with the Hare quota in
+// Wikipedia's "Largest remainder method" article (values from memory): six
+// parties with 47,000, 16,000, 15,800, 12,000, 6,100 and 3,100 votes share
+// 10 seats; quotas 4.70, 1.60, 1.58, 1.20, 0.61, 0.31; floors give 7 seats,
+// the remaining 3 go to the remainders 0.70, 0.61 and 0.60, so the seats are
+// 5, 2, 1, 1, 1, 0.
+func TestQuotasHareWorkedExample(t *testing.T) {
+	sp, err := ParseSplits("a=47000,b=16000,c=15800,d=12000,e=6100,f=3100")
+	if err != nil {
+		t.Fatal(err)
+	}
+	want := []int{5, 2, 1, 1, 1, 0}
+	// Controlled rounding of a one-row table is largest-remainder rounding.
+	table, err := ControlledRound([]int{10}, sp.Ratios)
+	if err != nil {
+		t.Fatal(err)
+	}
+	for i := range want {
+		if table[0][i] != want[i] {
+			t.Fatalf("controlled rounding of one row %v, largest remainder %v", table[0], want)
 		}
 	}
 }
