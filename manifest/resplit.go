@@ -111,4 +111,3 @@ func Resplit(dir string, o ResplitOptions) (*SplitTable, error) {
 	}
 	return t, nil
 }
-
