@@ -227,6 +227,12 @@ func (r *Recipe) Plan(seed uint64, index, attempt int) (*Plan, error) {
 	if err != nil {
 		return nil, err
 	}
+	return r.placeContent(seed, index, attempt, objs)
+}
+
+// placeContent draws the geometry of attempt for a content draw; objs is
+// updated in place and becomes the plan's objects.
+func (r *Recipe) placeContent(seed uint64, index, attempt int, objs []ObjectPlan) (*Plan, error) {
 	p := &Plan{Index: index, Attempt: attempt, Objects: objs}
 	rng := manifest.RNG(seed, uint64(index), streamGeometry, uint64(attempt))
 	p.Background = r.planBackground(rng)

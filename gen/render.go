@@ -65,9 +65,15 @@ func (e *VisibilityError) Error() string {
 // Generate plans and renders sample index, redrawing its geometry (bounded by
 // MaxAttempts) until every object meets its layout's visibility minimum.
 func (rd *Renderer) Generate(seed uint64, index int) (*Sample, error) {
+	content, err := rd.r.Content(seed, index)
+	if err != nil {
+		return nil, err
+	}
+	objs := make([]ObjectPlan, len(content))
 	var last error
 	for attempt := 0; attempt < MaxAttempts; attempt++ {
-		p, err := rd.r.Plan(seed, index, attempt)
+		copy(objs, content) // each attempt places the same content afresh
+		p, err := rd.r.placeContent(seed, index, attempt, objs)
 		if err != nil {
 			if _, ok := err.(*LayoutError); !ok {
 				return nil, err
