@@ -1,6 +1,8 @@
 package gen
 
 import (
+	"github.com/trueset/trueset/internal/yamlnode"
+
 	"bytes"
 	"fmt"
 	"math"
@@ -10,6 +12,10 @@ import (
 
 	"go.yaml.in/yaml/v3"
 )
+
+// RecipeError is a refused recipe: file, line, column, field path, the bad
+// value and what is allowed.
+type RecipeError = yamlnode.Error
 
 // Recipe is a parsed, validated scene description. Field tags are the YAML
 // names; schema/recipe.schema.json describes the same syntax.
@@ -133,34 +139,34 @@ type BalanceSpec struct {
 // Range is a closed interval [Min, Max]; a single number means Min = Max.
 type Range struct{ Min, Max float64 }
 
-func (r *Range) decodeNode(d *decoder, n *yaml.Node, path string) error {
+func (r *Range) DecodeNode(d *yamlnode.Decoder, n *yaml.Node, path string) error {
 	switch n.Kind {
 	case yaml.ScalarNode:
-		f, err := scalarFloat(n)
+		f, err := yamlnode.ScalarFloat(n)
 		if err != nil {
-			return d.errAt(n, path, show(n), "%v, or [min, max]", err)
+			return d.ErrAt(n, path, yamlnode.Show(n), "%v, or [min, max]", err)
 		}
 		r.Min, r.Max = f, f
 		return nil
 	case yaml.SequenceNode:
 		if len(n.Content) != 2 {
-			return d.errAt(n, path, show(n), "want a number or [min, max] with two numbers")
+			return d.ErrAt(n, path, yamlnode.Show(n), "want a number or [min, max] with two numbers")
 		}
-		lo, err := scalarFloat(n.Content[0])
+		lo, err := yamlnode.ScalarFloat(n.Content[0])
 		if err != nil {
-			return d.errAt(n.Content[0], path, show(n), "minimum: %v", err)
+			return d.ErrAt(n.Content[0], path, yamlnode.Show(n), "minimum: %v", err)
 		}
-		hi, err := scalarFloat(n.Content[1])
+		hi, err := yamlnode.ScalarFloat(n.Content[1])
 		if err != nil {
-			return d.errAt(n.Content[1], path, show(n), "maximum: %v", err)
+			return d.ErrAt(n.Content[1], path, yamlnode.Show(n), "maximum: %v", err)
 		}
 		if lo > hi {
-			return d.errAt(n, path, show(n), "minimum %s is greater than maximum %s; want [min, max] with min ≤ max", fnum(lo), fnum(hi))
+			return d.ErrAt(n, path, yamlnode.Show(n), "minimum %s is greater than maximum %s; want [min, max] with min ≤ max", fnum(lo), fnum(hi))
 		}
 		r.Min, r.Max = lo, hi
 		return nil
 	}
-	return d.errAt(n, path, show(n), "want a number or [min, max], found %s", kindName(n))
+	return d.ErrAt(n, path, yamlnode.Show(n), "want a number or [min, max], found %s", yamlnode.KindName(n))
 }
 
 // MarshalJSON writes [min, max].
@@ -173,13 +179,13 @@ func fnum(f float64) string { return strconv.FormatFloat(f, 'g', -1, 64) }
 // IntRange is a closed integer interval.
 type IntRange struct{ Min, Max int }
 
-func (r *IntRange) decodeNode(d *decoder, n *yaml.Node, path string) error {
+func (r *IntRange) DecodeNode(d *yamlnode.Decoder, n *yaml.Node, path string) error {
 	var fr Range
-	if err := fr.decodeNode(d, n, path); err != nil {
+	if err := fr.DecodeNode(d, n, path); err != nil {
 		return err
 	}
 	if fr.Min != math.Trunc(fr.Min) || fr.Max != math.Trunc(fr.Max) {
-		return d.errAt(n, path, show(n), "want whole numbers")
+		return d.ErrAt(n, path, yamlnode.Show(n), "want whole numbers")
 	}
 	r.Min, r.Max = int(fr.Min), int(fr.Max)
 	return nil
@@ -198,26 +204,26 @@ type Count struct {
 	Weights  []float64 // and their weights
 }
 
-func (c *Count) decodeNode(d *decoder, n *yaml.Node, path string) error {
+func (c *Count) DecodeNode(d *yamlnode.Decoder, n *yaml.Node, path string) error {
 	if n.Kind == yaml.MappingNode {
 		for i := 0; i+1 < len(n.Content); i += 2 {
 			k, v := n.Content[i], n.Content[i+1]
-			ki, err := scalarInt(k)
+			ki, err := yamlnode.ScalarInt(k)
 			if k.Tag == "!!str" { // JSON form: {"2": 1}
 				ki, err = strconv.Atoi(k.Value)
 			}
 			if err != nil {
-				return d.errAt(k, path, show(k), "weighted count: each key is a count; %v", err)
+				return d.ErrAt(k, path, yamlnode.Show(k), "weighted count: each key is a count; %v", err)
 			}
-			w, err := scalarFloat(v)
+			w, err := yamlnode.ScalarFloat(v)
 			if err != nil {
-				return d.errAt(v, path+"."+k.Value, show(v), "weighted count: each weight %v", err)
+				return d.ErrAt(v, path+"."+k.Value, yamlnode.Show(v), "weighted count: each weight %v", err)
 			}
 			if ki < 0 {
-				return d.errAt(k, path, show(k), "a count must not be negative")
+				return d.ErrAt(k, path, yamlnode.Show(k), "a count must not be negative")
 			}
 			if w < 0 {
-				return d.errAt(v, path+"."+k.Value, show(v), "a weight must not be negative")
+				return d.ErrAt(v, path+"."+k.Value, yamlnode.Show(v), "a weight must not be negative")
 			}
 			c.Values = append(c.Values, ki)
 			c.Weights = append(c.Weights, w)
@@ -227,7 +233,7 @@ func (c *Count) decodeNode(d *decoder, n *yaml.Node, path string) error {
 			total += w
 		}
 		if total <= 0 {
-			return d.errAt(n, path, "", "weighted count: the weights must add up to more than 0")
+			return d.ErrAt(n, path, "", "weighted count: the weights must add up to more than 0")
 		}
 		c.Min, c.Max = c.Values[0], c.Values[0]
 		for _, v := range c.Values {
@@ -236,11 +242,11 @@ func (c *Count) decodeNode(d *decoder, n *yaml.Node, path string) error {
 		return nil
 	}
 	var r IntRange
-	if err := r.decodeNode(d, n, path); err != nil {
+	if err := r.DecodeNode(d, n, path); err != nil {
 		return err
 	}
 	if r.Min < 0 {
-		return d.errAt(n, path, show(n), "a count must not be negative")
+		return d.ErrAt(n, path, yamlnode.Show(n), "a count must not be negative")
 	}
 	c.Min, c.Max = r.Min, r.Max
 	return nil
@@ -272,16 +278,16 @@ func (c Count) MarshalJSON() ([]byte, error) {
 // [r, g, b] means a fixed colour.
 type ColourRange struct{ From, To [3]float64 }
 
-func (c *ColourRange) decodeNode(d *decoder, n *yaml.Node, path string) error {
+func (c *ColourRange) DecodeNode(d *yamlnode.Decoder, n *yaml.Node, path string) error {
 	triple := func(m *yaml.Node) ([3]float64, error) {
 		var t [3]float64
 		if m.Kind != yaml.SequenceNode || len(m.Content) != 3 {
-			return t, d.errAt(m, path, show(m), "want [r, g, b] with three numbers in 0..255")
+			return t, d.ErrAt(m, path, yamlnode.Show(m), "want [r, g, b] with three numbers in 0..255")
 		}
 		for i, e := range m.Content {
-			f, err := scalarFloat(e)
+			f, err := yamlnode.ScalarFloat(e)
 			if err != nil || f < 0 || f > 255 {
-				return t, d.errAt(e, path, show(m), "colour channels are numbers in 0..255")
+				return t, d.ErrAt(e, path, yamlnode.Show(m), "colour channels are numbers in 0..255")
 			}
 			t[i] = f
 		}
@@ -298,7 +304,7 @@ func (c *ColourRange) decodeNode(d *decoder, n *yaml.Node, path string) error {
 		}
 		for i := range a {
 			if a[i] > b[i] {
-				return d.errAt(n, path, show(n), "channel %d: from %s is greater than to %s; want [[r, g, b], [r, g, b]] with each from ≤ to", i, fnum(a[i]), fnum(b[i]))
+				return d.ErrAt(n, path, yamlnode.Show(n), "channel %d: from %s is greater than to %s; want [[r, g, b], [r, g, b]] with each from ≤ to", i, fnum(a[i]), fnum(b[i]))
 			}
 		}
 		c.From, c.To = a, b
@@ -306,7 +312,7 @@ func (c *ColourRange) decodeNode(d *decoder, n *yaml.Node, path string) error {
 	}
 	t, err := triple(n)
 	if err != nil {
-		return d.errAt(n, path, show(n), "want [r, g, b] or [[r, g, b], [r, g, b]] with channels in 0..255")
+		return d.ErrAt(n, path, yamlnode.Show(n), "want [r, g, b] or [[r, g, b], [r, g, b]] with channels in 0..255")
 	}
 	c.From, c.To = t, t
 	return nil
@@ -324,16 +330,16 @@ type ValueSpec struct {
 	Range IntRange
 }
 
-func (v *ValueSpec) decodeNode(d *decoder, n *yaml.Node, path string) error {
+func (v *ValueSpec) DecodeNode(d *yamlnode.Decoder, n *yaml.Node, path string) error {
 	if n.Kind == yaml.ScalarNode && n.Tag == "!!str" {
 		switch n.Value {
 		case "parts", "digit":
 			v.From = n.Value
 			return nil
 		}
-		return d.errAt(n, path, show(n), "want \"parts\", \"digit\", a whole number or [min, max]")
+		return d.ErrAt(n, path, yamlnode.Show(n), "want \"parts\", \"digit\", a whole number or [min, max]")
 	}
-	return v.Range.decodeNode(d, n, path)
+	return v.Range.DecodeNode(d, n, path)
 }
 
 // MarshalJSON writes the source name or the range.
@@ -357,9 +363,9 @@ func ParseRecipe(file string, data []byte) (*Recipe, error) {
 	if root.Kind == 0 || len(root.Content) == 0 {
 		return nil, &RecipeError{File: file, Msg: "recipe is empty"}
 	}
-	d := &decoder{file: file, at: map[string]pos{}}
+	d := yamlnode.NewDecoder(file)
 	r := &Recipe{file: file}
-	if err := d.decode(&root, reflectValue(r), ""); err != nil {
+	if err := d.Decode(&root, reflectValue(r), ""); err != nil {
 		return nil, err
 	}
 	if err := r.validate(d); err != nil {

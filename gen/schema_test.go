@@ -1,6 +1,8 @@
 package gen
 
 import (
+	"github.com/trueset/trueset/internal/yamlnode"
+
 	"bytes"
 	"encoding/json"
 	"fmt"
@@ -300,6 +302,8 @@ func TestSchemaPropertiesMatchGoFields(t *testing.T) {
 		{reflect.TypeOf(ObjectSpec{}), "$defs/part", "parts"},         // parts have no parts
 		{reflect.TypeOf(GlyphSpec{}), "$defs/glyph", ""},
 		{reflect.TypeOf(TargetSpec{}), "properties/targets/items", ""},
+		{reflect.TypeOf(SplitSpec{}), "properties/split", ""},
+		{reflect.TypeOf(BalanceSpec{}), "properties/split/properties/balance", ""},
 	}
 	for _, c := range cases {
 		s := schemaAt(t, doc, c.at)
@@ -309,7 +313,7 @@ func TestSchemaPropertiesMatchGoFields(t *testing.T) {
 		props := schemaAt(t, s, "properties")
 		var fields []string
 		for i := 0; i < c.typ.NumField(); i++ {
-			if n := yamlName(c.typ.Field(i)); n != "" && n != c.except {
+			if n := yamlnode.FieldName(c.typ.Field(i)); n != "" && n != c.except {
 				fields = append(fields, n)
 			}
 		}

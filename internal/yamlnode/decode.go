@@ -1,4 +1,8 @@
-package gen
+// Package yamlnode decodes YAML documents into Go structs node by node, so
+// that every refusal names the file, line, column, field path, the bad value
+// and what is allowed. Recipes (package gen) and augmentation plans (package
+// augment) share it; it imports nothing of ours.
+package yamlnode
 
 import (
 	"fmt"
@@ -10,9 +14,9 @@ import (
 	"go.yaml.in/yaml/v3"
 )
 
-// RecipeError is a refused recipe: it names the file, line, column, the field
+// Error is a refused recipe: it names the file, line, column, the field
 // path, the bad value and what is allowed.
-type RecipeError struct {
+type Error struct {
 	File   string
 	Line   int
 	Column int
@@ -21,7 +25,7 @@ type RecipeError struct {
 	Msg    string // what is wrong and what is allowed
 }
 
-func (e *RecipeError) Error() string {
+func (e *Error) Error() string {
 	var b strings.Builder
 	b.WriteString(e.File)
 	if e.Line > 0 {
@@ -44,19 +48,25 @@ type pos struct{ line, col int }
 
 // decoder turns a YAML node tree into recipe structs, rejecting unknown
 // fields and wrong types, and remembers where every field path was written.
-type decoder struct {
+type Decoder struct {
 	file string
 	at   map[string]pos
 }
 
-// nodeDecoder is implemented by recipe types with a flexible YAML form (a
+// NewDecoder returns a Decoder whose errors name file.
+func NewDecoder(file string) *Decoder { return &Decoder{file: file, at: map[string]pos{}} }
+
+// File is the name errors carry.
+func (d *Decoder) File() string { return d.file }
+
+// NodeDecoder is implemented by recipe types with a flexible YAML form (a
 // scalar or a [min, max] pair, say).
-type nodeDecoder interface {
-	decodeNode(d *decoder, n *yaml.Node, path string) error
+type NodeDecoder interface {
+	DecodeNode(d *Decoder, n *yaml.Node, path string) error
 }
 
-func (d *decoder) errAt(n *yaml.Node, path, value, format string, args ...any) *RecipeError {
-	e := &RecipeError{File: d.file, Path: path, Value: value, Msg: fmt.Sprintf(format, args...)}
+func (d *Decoder) ErrAt(n *yaml.Node, path, value, format string, args ...any) *Error {
+	e := &Error{File: d.file, Path: path, Value: value, Msg: fmt.Sprintf(format, args...)}
 	if n != nil {
 		e.Line, e.Column = n.Line, n.Column
 	} else if p, ok := d.at[path]; ok {
@@ -67,11 +77,11 @@ func (d *decoder) errAt(n *yaml.Node, path, value, format string, args ...any) *
 
 // errPath reports an error at a field path recorded during decoding; when the
 // path was not written (a missing field) it falls back to its parent.
-func (d *decoder) errPath(path, value, format string, args ...any) *RecipeError {
+func (d *Decoder) ErrPath(path, value, format string, args ...any) *Error {
 	p := path
 	for {
 		if at, ok := d.at[p]; ok {
-			e := d.errAt(nil, path, value, format, args...)
+			e := d.ErrAt(nil, path, value, format, args...)
 			e.Line, e.Column = at.line, at.col
 			return e
 		}
@@ -84,10 +94,10 @@ func (d *decoder) errPath(path, value, format string, args ...any) *RecipeError 
 		}
 		p = p[:i]
 	}
-	return d.errAt(nil, path, value, format, args...)
+	return d.ErrAt(nil, path, value, format, args...)
 }
 
-func show(n *yaml.Node) string {
+func Show(n *yaml.Node) string {
 	switch n.Kind {
 	case yaml.ScalarNode:
 		if n.Tag == "!!str" {
@@ -97,7 +107,7 @@ func show(n *yaml.Node) string {
 	case yaml.SequenceNode:
 		parts := make([]string, 0, len(n.Content))
 		for _, c := range n.Content {
-			parts = append(parts, show(c))
+			parts = append(parts, Show(c))
 		}
 		s := "[" + strings.Join(parts, ", ") + "]"
 		if len(s) > 60 {
@@ -112,7 +122,7 @@ func show(n *yaml.Node) string {
 	return "nothing"
 }
 
-func kindName(n *yaml.Node) string {
+func KindName(n *yaml.Node) string {
 	switch n.Kind {
 	case yaml.ScalarNode:
 		switch n.Tag {
@@ -134,14 +144,14 @@ func kindName(n *yaml.Node) string {
 	return "an alias"
 }
 
-var nodeDecoderType = reflect.TypeOf((*nodeDecoder)(nil)).Elem()
+var nodeDecoderType = reflect.TypeOf((*NodeDecoder)(nil)).Elem()
 
-func (d *decoder) decode(n *yaml.Node, v reflect.Value, path string) error {
+func (d *Decoder) Decode(n *yaml.Node, v reflect.Value, path string) error {
 	if n.Kind == yaml.DocumentNode && len(n.Content) == 1 {
 		n = n.Content[0]
 	}
 	if n.Kind == yaml.AliasNode {
-		return d.errAt(n, path, "", "YAML aliases are not allowed in recipes")
+		return d.ErrAt(n, path, "", "YAML aliases are not allowed in recipes")
 	}
 	d.at[path] = pos{n.Line, n.Column}
 	if v.Kind() == reflect.Pointer {
@@ -151,21 +161,21 @@ func (d *decoder) decode(n *yaml.Node, v reflect.Value, path string) error {
 		if v.IsNil() {
 			v.Set(reflect.New(v.Type().Elem()))
 		}
-		return d.decode(n, v.Elem(), path)
+		return d.Decode(n, v.Elem(), path)
 	}
 	if v.CanAddr() && v.Addr().Type().Implements(nodeDecoderType) {
-		return v.Addr().Interface().(nodeDecoder).decodeNode(d, n, path)
+		return v.Addr().Interface().(NodeDecoder).DecodeNode(d, n, path)
 	}
 	switch v.Kind() {
 	case reflect.Struct:
 		return d.decodeStruct(n, v, path)
 	case reflect.Slice:
 		if n.Kind != yaml.SequenceNode {
-			return d.errAt(n, path, show(n), "want a list, found %s", kindName(n))
+			return d.ErrAt(n, path, Show(n), "want a list, found %s", KindName(n))
 		}
 		s := reflect.MakeSlice(v.Type(), len(n.Content), len(n.Content))
 		for i, c := range n.Content {
-			if err := d.decode(c, s.Index(i), fmt.Sprintf("%s[%d]", path, i)); err != nil {
+			if err := d.Decode(c, s.Index(i), fmt.Sprintf("%s[%d]", path, i)); err != nil {
 				return err
 			}
 		}
@@ -173,44 +183,44 @@ func (d *decoder) decode(n *yaml.Node, v reflect.Value, path string) error {
 		return nil
 	case reflect.String:
 		if n.Kind != yaml.ScalarNode || n.Tag == "!!null" {
-			return d.errAt(n, path, show(n), "want a string, found %s", kindName(n))
+			return d.ErrAt(n, path, Show(n), "want a string, found %s", KindName(n))
 		}
 		v.SetString(n.Value)
 		return nil
 	case reflect.Bool:
 		if n.Kind != yaml.ScalarNode || n.Tag != "!!bool" {
-			return d.errAt(n, path, show(n), "want true or false, found %s", kindName(n))
+			return d.ErrAt(n, path, Show(n), "want true or false, found %s", KindName(n))
 		}
 		b, _ := strconv.ParseBool(strings.ToLower(n.Value))
 		v.SetBool(b)
 		return nil
 	case reflect.Int:
-		i, err := scalarInt(n)
+		i, err := ScalarInt(n)
 		if err != nil {
-			return d.errAt(n, path, show(n), "%v", err)
+			return d.ErrAt(n, path, Show(n), "%v", err)
 		}
 		v.SetInt(int64(i))
 		return nil
 	case reflect.Float64:
-		f, err := scalarFloat(n)
+		f, err := ScalarFloat(n)
 		if err != nil {
-			return d.errAt(n, path, show(n), "%v", err)
+			return d.ErrAt(n, path, Show(n), "%v", err)
 		}
 		v.SetFloat(f)
 		return nil
 	}
-	return d.errAt(n, path, "", "internal: cannot decode into %s", v.Type())
+	return d.ErrAt(n, path, "", "internal: cannot decode into %s", v.Type())
 }
 
-func scalarInt(n *yaml.Node) (int, error) {
+func ScalarInt(n *yaml.Node) (int, error) {
 	if n.Kind != yaml.ScalarNode || (n.Tag != "!!int" && n.Tag != "!!float") {
-		return 0, fmt.Errorf("want an integer, found %s", kindName(n))
+		return 0, fmt.Errorf("want an integer, found %s", KindName(n))
 	}
 	f, err := strconv.ParseFloat(n.Value, 64)
 	if err != nil {
 		i, err2 := strconv.ParseInt(n.Value, 0, 64)
 		if err2 != nil {
-			return 0, fmt.Errorf("want an integer, found %s", kindName(n))
+			return 0, fmt.Errorf("want an integer, found %s", KindName(n))
 		}
 		f = float64(i)
 	}
@@ -220,15 +230,15 @@ func scalarInt(n *yaml.Node) (int, error) {
 	return int(f), nil
 }
 
-func scalarFloat(n *yaml.Node) (float64, error) {
+func ScalarFloat(n *yaml.Node) (float64, error) {
 	if n.Kind != yaml.ScalarNode || (n.Tag != "!!int" && n.Tag != "!!float") {
-		return 0, fmt.Errorf("want a number, found %s", kindName(n))
+		return 0, fmt.Errorf("want a number, found %s", KindName(n))
 	}
 	f, err := strconv.ParseFloat(n.Value, 64)
 	if err != nil {
 		i, err2 := strconv.ParseInt(n.Value, 0, 64)
 		if err2 != nil {
-			return 0, fmt.Errorf("want a number, found %s", kindName(n))
+			return 0, fmt.Errorf("want a number, found %s", KindName(n))
 		}
 		f = float64(i)
 	}
@@ -238,7 +248,8 @@ func scalarFloat(n *yaml.Node) (float64, error) {
 	return f, nil
 }
 
-func yamlName(f reflect.StructField) string {
+// FieldName is the YAML name of a struct field ("" when it has none).
+func FieldName(f reflect.StructField) string {
 	tag := f.Tag.Get("yaml")
 	if tag == "-" {
 		return ""
@@ -249,15 +260,15 @@ func yamlName(f reflect.StructField) string {
 	return tag
 }
 
-func (d *decoder) decodeStruct(n *yaml.Node, v reflect.Value, path string) error {
+func (d *Decoder) decodeStruct(n *yaml.Node, v reflect.Value, path string) error {
 	if n.Kind != yaml.MappingNode {
-		return d.errAt(n, path, show(n), "want a mapping, found %s", kindName(n))
+		return d.ErrAt(n, path, Show(n), "want a mapping, found %s", KindName(n))
 	}
 	t := v.Type()
 	fields := map[string]int{}
 	var names []string
 	for i := 0; i < t.NumField(); i++ {
-		if name := yamlName(t.Field(i)); name != "" {
+		if name := FieldName(t.Field(i)); name != "" {
 			fields[name] = i
 			names = append(names, name)
 		}
@@ -273,13 +284,13 @@ func (d *decoder) decodeStruct(n *yaml.Node, v reflect.Value, path string) error
 		if !ok {
 			sorted := append([]string(nil), names...)
 			sort.Strings(sorted)
-			return d.errAt(k, sub, "", "unknown field %q; allowed here: %s", k.Value, strings.Join(sorted, ", "))
+			return d.ErrAt(k, sub, "", "unknown field %q; allowed here: %s", k.Value, strings.Join(sorted, ", "))
 		}
 		if seen[k.Value] {
-			return d.errAt(k, sub, "", "field %q is given twice", k.Value)
+			return d.ErrAt(k, sub, "", "field %q is given twice", k.Value)
 		}
 		seen[k.Value] = true
-		if err := d.decode(val, v.Field(idx), sub); err != nil {
+		if err := d.Decode(val, v.Field(idx), sub); err != nil {
 			return err
 		}
 		if (val.Kind == yaml.MappingNode || val.Kind == yaml.SequenceNode) && val.Line != k.Line {
