@@ -160,11 +160,6 @@ func Run(ctx context.Context, o RunOptions) (Summary, error) {
 	if err != nil {
 		return Summary{}, err
 	}
-	if o.RequireCoverage {
-		if cells := alloc.Uncovered(splits); len(cells) > 0 {
-			return Summary{}, &CoverageError{cells}
-		}
-	}
 	var tnames []string
 	for _, t := range r.Targets {
 		tnames = append(tnames, t.Name)
@@ -174,6 +169,11 @@ func Run(ctx context.Context, o RunOptions) (Summary, error) {
 	for i, n := range splits.Names {
 		table.Ratios[n] = manifest.Round(splits.Ratios[i], 6)
 		table.Counts[n] = alloc.Counts[i]
+	}
+	if o.RequireCoverage {
+		if cells := alloc.Uncovered(splits); len(cells) > 0 {
+			return Summary{Splits: table}, &CoverageError{cells} // the table shows the caller which strata are thin
+		}
 	}
 	d := &manifest.Dataset{
 		ToolVersion: o.Version, Recipe: recipeJSON, RecipeSHA256: recipeHash,

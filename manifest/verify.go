@@ -8,6 +8,7 @@ import (
 	"image/png"
 	"os"
 	"path/filepath"
+	"slices"
 	"sort"
 )
 
@@ -35,8 +36,10 @@ type countTarget struct {
 // dataset.json present (else the dataset is incomplete); the manifest's
 // SHA-256; every path inside DIR and every file's SHA-256; records against
 // the masks (instance ids, bbox, area, semantic class per pixel, count
-// targets); splits and the strata table against dataset.json; and groups
-// that span splits. It returns the number of records read.
+// targets); splits and the strata table against dataset.json; groups that
+// span splits; and, from the seed, split spec and strata in
+// dataset.json, every record in the split the seeded allocation deals it to.
+// It returns the number of records read.
 func Verify(dir string, report func(Problem)) (int, error) {
 	d, err := ReadDataset(dir)
 	if err != nil {
@@ -65,6 +68,17 @@ func Verify(dir string, report func(Problem)) (int, error) {
 		splitOK[n] = true
 	}
 	groupSplit := map[string]string{}
+	// For naming records that sit in another split than the seeded
+	// allocation puts them: each group's index and stratum (of its first
+	// record), and each record's group.
+	groupIdx := map[string]int{}
+	var groupKeys []string
+	type placed struct {
+		id, split string
+		group     int
+	}
+	var placedRecs []placed
+	spans := false
 	counts := map[string]int{}
 	strata := map[string]map[string]int{} // stratum → split → groups
 	stratumGroups := map[string]bool{}
@@ -81,7 +95,15 @@ func Verify(dir string, report func(Problem)) (int, error) {
 			bad("split %q is not one of dataset.json's %v", r.Split, d.Splits.Names)
 		}
 		counts[r.Split]++
+		g, ok := groupIdx[r.Group]
+		if !ok {
+			g = len(groupKeys)
+			groupIdx[r.Group] = g
+			groupKeys = append(groupKeys, r.Stratum)
+		}
+		placedRecs = append(placedRecs, placed{r.ID, r.Split, g})
 		if s, ok := groupSplit[r.Group]; ok && s != r.Split {
+			spans = true
 			bad("group %q spans splits %s and %s", r.Group, s, r.Split)
 		} else if !ok {
 			groupSplit[r.Group] = r.Split
@@ -99,6 +121,19 @@ func Verify(dir string, report func(Problem)) (int, error) {
 	}
 	if n != d.Count {
 		report(Problem{Msg: fmt.Sprintf("manifest has %d records, dataset.json says %d", n, d.Count)})
+	}
+	// The split is a function of the seed, the splits and the groups' strata
+	// (AllocateStrata, as generate and split deal it): name every record
+	// that is elsewhere. Skipped when the records are incomplete or a group
+	// spans splits, where the allocation cannot be recomputed meaningfully.
+	if sp, perr := ParseSplits(d.Splits.Spec); err == nil && perr == nil && n == d.Count && !spans && slices.Equal(sp.Names, d.Splits.Names) {
+		if a, aerr := AllocateStrata(d.Seed, groupKeys, sp); aerr == nil {
+			for _, p := range placedRecs {
+				if want := sp.Names[a.Split[p.group]]; splitOK[p.split] && p.split != want {
+					report(Problem{ID: p.id, Msg: fmt.Sprintf("is in split %s, but seed %d's allocation (split %s, stratified by %q) puts it in split %s", p.split, d.Seed, d.Splits.Spec, d.Splits.Stratify, want)})
+				}
+			}
+		}
 	}
 	for _, s := range d.Splits.Names {
 		if counts[s] != d.Splits.Counts[s] {
