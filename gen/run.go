@@ -53,12 +53,6 @@ func (r *Recipe) RecipeJSON() ([]byte, string, error) {
 	return b, hex.EncodeToString(s[:]), nil
 }
 
-type result struct {
-	rec   *manifest.Record
-	bytes int64
-	err   error
-}
-
 // CoverageError is a --require-coverage failure.
 type CoverageError struct{ Cells []string }
 
@@ -185,90 +179,21 @@ func Run(ctx context.Context, o RunOptions) (Summary, error) {
 	if err != nil {
 		return Summary{}, err
 	}
-	ctx, cancel := context.WithCancel(ctx)
-	defer cancel()
-
-	window := 4 * workers
-	slots := make(chan struct{}, window)
-	jobs := make(chan int)
-	results := make(chan result, window)
-	var wg sync.WaitGroup
-	go func() {
-		defer close(jobs)
-		for i := lo; i < hi; i++ {
-			select {
-			case slots <- struct{}{}:
-			case <-ctx.Done():
-				return
+	newProduce := func() manifest.Produce {
+		rd := NewRenderer(r)
+		enc := manifest.NewEncoder()
+		return func(i int) ([]*manifest.Record, int64, error) {
+			rec, n, err := rd.produce(o.Seed, i, enc, w)
+			if err != nil {
+				return nil, n, err
 			}
-			select {
-			case jobs <- i:
-			case <-ctx.Done():
-				return
-			}
-		}
-	}()
-	for k := 0; k < workers; k++ {
-		wg.Add(1)
-		go func() {
-			defer wg.Done()
-			rd := NewRenderer(r)
-			enc := manifest.NewEncoder()
-			for i := range jobs {
-				rec, n, err := rd.produce(o.Seed, i, enc, w)
-				if err == nil {
-					rec.Split = splits.Names[alloc.Split[i]]
-					rec.Stratum = keys[i]
-				}
-				select {
-				case results <- result{rec, n, err}:
-				case <-ctx.Done():
-					return
-				}
-			}
-		}()
-	}
-	go func() { wg.Wait(); close(results) }()
-
-	pending := map[int]*manifest.Record{}
-	next := lo
-	var total int64
-	var firstErr error
-	for res := range results {
-		if res.err != nil {
-			if firstErr == nil {
-				firstErr = res.err
-				cancel()
-			}
-			continue
-		}
-		if firstErr != nil {
-			continue
-		}
-		total += res.bytes
-		pending[res.rec.Index] = res.rec
-		for {
-			rec, ok := pending[next]
-			if !ok {
-				break
-			}
-			delete(pending, next)
-			if err := w.Append(rec); err != nil {
-				firstErr = err
-				cancel()
-				break
-			}
-			next++
-			<-slots
-			if o.Progress != nil {
-				o.Progress(next-lo, hi-lo)
-			}
+			rec.Split = splits.Names[alloc.Split[i]]
+			rec.Stratum = keys[i]
+			return []*manifest.Record{rec}, n, nil
 		}
 	}
-	if firstErr == nil && ctx.Err() != nil {
-		firstErr = ctx.Err()
-	}
-	sum := Summary{Samples: next - lo, Elapsed: time.Since(start), Bytes: total, Splits: table}
+	done, total, firstErr := manifest.RunOrdered(ctx, lo, hi, workers, newProduce, w, o.Progress)
+	sum := Summary{Samples: done, Elapsed: time.Since(start), Bytes: total, Splits: table}
 	if firstErr != nil {
 		w.Abort()
 		return sum, firstErr
