@@ -108,7 +108,7 @@ func drawTone(rng *rand.Rand, in *Range, col *ColourRange) [3]uint8 {
 	if col != nil {
 		var t [3]uint8
 		for i := range t {
-			t[i] = uint8(math.Round(uni(rng, Range{col.From[i], col.To[i]})))
+			t[i] = uint8(math.Round(uni(rng, Range{Min: col.From[i], Max: col.To[i]})))
 		}
 		return t
 	}

@@ -5,7 +5,6 @@ import (
 
 	"bytes"
 	"fmt"
-	"math"
 	"os"
 	"sort"
 	"strconv"
@@ -137,64 +136,12 @@ type BalanceSpec struct {
 }
 
 // Range is a closed interval [Min, Max]; a single number means Min = Max.
-type Range struct{ Min, Max float64 }
-
-func (r *Range) DecodeNode(d *yamlnode.Decoder, n *yaml.Node, path string) error {
-	switch n.Kind {
-	case yaml.ScalarNode:
-		f, err := yamlnode.ScalarFloat(n)
-		if err != nil {
-			return d.ErrAt(n, path, yamlnode.Show(n), "%v, or [min, max]", err)
-		}
-		r.Min, r.Max = f, f
-		return nil
-	case yaml.SequenceNode:
-		if len(n.Content) != 2 {
-			return d.ErrAt(n, path, yamlnode.Show(n), "want a number or [min, max] with two numbers")
-		}
-		lo, err := yamlnode.ScalarFloat(n.Content[0])
-		if err != nil {
-			return d.ErrAt(n.Content[0], path, yamlnode.Show(n), "minimum: %v", err)
-		}
-		hi, err := yamlnode.ScalarFloat(n.Content[1])
-		if err != nil {
-			return d.ErrAt(n.Content[1], path, yamlnode.Show(n), "maximum: %v", err)
-		}
-		if lo > hi {
-			return d.ErrAt(n, path, yamlnode.Show(n), "minimum %s is greater than maximum %s; want [min, max] with min ≤ max", fnum(lo), fnum(hi))
-		}
-		r.Min, r.Max = lo, hi
-		return nil
-	}
-	return d.ErrAt(n, path, yamlnode.Show(n), "want a number or [min, max], found %s", yamlnode.KindName(n))
-}
-
-// MarshalJSON writes [min, max].
-func (r Range) MarshalJSON() ([]byte, error) {
-	return []byte("[" + fnum(r.Min) + "," + fnum(r.Max) + "]"), nil
-}
-
-func fnum(f float64) string { return strconv.FormatFloat(f, 'g', -1, 64) }
+type Range = yamlnode.Range
 
 // IntRange is a closed integer interval.
-type IntRange struct{ Min, Max int }
+type IntRange = yamlnode.IntRange
 
-func (r *IntRange) DecodeNode(d *yamlnode.Decoder, n *yaml.Node, path string) error {
-	var fr Range
-	if err := fr.DecodeNode(d, n, path); err != nil {
-		return err
-	}
-	if fr.Min != math.Trunc(fr.Min) || fr.Max != math.Trunc(fr.Max) {
-		return d.ErrAt(n, path, yamlnode.Show(n), "want whole numbers")
-	}
-	r.Min, r.Max = int(fr.Min), int(fr.Max)
-	return nil
-}
-
-// MarshalJSON writes [min, max].
-func (r IntRange) MarshalJSON() ([]byte, error) {
-	return []byte(fmt.Sprintf("[%d,%d]", r.Min, r.Max)), nil
-}
+func fnum(f float64) string { return yamlnode.FormatFloat(f) }
 
 // Count is how many objects a spec yields: fixed, a uniform range, or a
 // weighted choice {count: weight}.

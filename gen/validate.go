@@ -172,7 +172,7 @@ func (r *Recipe) validateBackground(d *yamlnode.Decoder) error {
 		return err
 	}
 	if b.Intensity == nil && b.Colour == nil {
-		b.Intensity = &Range{0, 0}
+		b.Intensity = &Range{Min: 0, Max: 0}
 	}
 	switch b.Kind {
 	case "gradient":
@@ -186,11 +186,11 @@ func (r *Recipe) validateBackground(d *yamlnode.Decoder) error {
 			return d.ErrPath("background.end_intensity", "", "give the gradient's start and end as the same kind: intensity with end_intensity, or colour with end_colour")
 		}
 		if b.Angle == nil {
-			b.Angle = &Range{0, 360}
+			b.Angle = &Range{Min: 0, Max: 360}
 		}
 	case "noise":
 		if b.Cell == nil {
-			b.Cell = &Range{8, 16}
+			b.Cell = &Range{Min: 8, Max: 16}
 		}
 		if b.Cell.Min < 1 {
 			return d.ErrPath("background.cell", fmt.Sprint(b.Cell.Min), "the noise cell size is at least 1 pixel")
@@ -267,7 +267,7 @@ func (r *Recipe) validateLayer(d *yamlnode.Decoder, li int) (int, error) {
 	switch lay.Kind {
 	case "row":
 		if lay.Spacing == nil {
-			lay.Spacing = &Range{0, 0}
+			lay.Spacing = &Range{Min: 0, Max: 0}
 		}
 		if lay.BaselineJitter < 0 {
 			return 0, d.ErrPath(p+".layout.baseline_jitter", fnum(lay.BaselineJitter), "want 0 or more pixels")
@@ -337,13 +337,13 @@ func (r *Recipe) validateObject(d *yamlnode.Decoder, o *ObjectSpec, p string, pa
 		return d.ErrPath(p+".size", fnum(o.Size.Min), "sizes must be greater than 0")
 	}
 	if o.Aspect == nil {
-		o.Aspect = &Range{1, 1}
+		o.Aspect = &Range{Min: 1, Max: 1}
 	}
 	if o.Aspect.Min <= 0 || o.Aspect.Max > 20 {
 		return d.ErrPath(p+".aspect", fmt.Sprintf("[%s, %s]", fnum(o.Aspect.Min), fnum(o.Aspect.Max)), "aspect (width / height) must be in (0, 20]")
 	}
 	if o.Angle == nil {
-		o.Angle = &Range{0, 0}
+		o.Angle = &Range{Min: 0, Max: 0}
 	}
 	if o.Angle.Min < -3600 || o.Angle.Max > 3600 {
 		return d.ErrPath(p+".angle", fmt.Sprintf("[%s, %s]", fnum(o.Angle.Min), fnum(o.Angle.Max)), "angles are degrees within ±3600")
@@ -379,7 +379,7 @@ func (r *Recipe) validateObject(d *yamlnode.Decoder, o *ObjectSpec, p string, pa
 		return err
 	}
 	if o.Intensity == nil && o.Colour == nil {
-		o.Intensity = &Range{255, 255}
+		o.Intensity = &Range{Min: 255, Max: 255}
 	}
 	if err := r.validateShapeParams(d, o, p); err != nil {
 		return err
@@ -440,9 +440,9 @@ func (r *Recipe) validateShapeParams(d *yamlnode.Decoder, o *ObjectSpec, p strin
 	switch o.Shape {
 	case "polygon", "star":
 		if o.Sides == nil {
-			def := IntRange{5, 5}
+			def := IntRange{Min: 5, Max: 5}
 			if o.Shape == "polygon" {
-				def = IntRange{6, 6}
+				def = IntRange{Min: 6, Max: 6}
 			}
 			o.Sides = &def
 		}
@@ -450,14 +450,14 @@ func (r *Recipe) validateShapeParams(d *yamlnode.Decoder, o *ObjectSpec, p strin
 			return d.ErrPath(p+".sides", fmt.Sprintf("[%d, %d]", o.Sides.Min, o.Sides.Max), "want 3 to 64 sides or points")
 		}
 		if o.Shape == "star" {
-			return unit("inner", &o.Inner, Range{0.45, 0.45}, 0.05, 0.95)
+			return unit("inner", &o.Inner, Range{Min: 0.45, Max: 0.45}, 0.05, 0.95)
 		}
 	case "ring":
-		return unit("inner", &o.Inner, Range{0.5, 0.5}, 0.05, 0.95)
+		return unit("inner", &o.Inner, Range{Min: 0.5, Max: 0.5}, 0.05, 0.95)
 	case "rounded-rectangle":
-		return unit("corner", &o.Corner, Range{0.25, 0.25}, 0, 0.5)
+		return unit("corner", &o.Corner, Range{Min: 0.25, Max: 0.25}, 0, 0.5)
 	case "cross":
-		return unit("thickness", &o.Thickness, Range{0.3, 0.3}, 0.05, 0.95)
+		return unit("thickness", &o.Thickness, Range{Min: 0.3, Max: 0.3}, 0.05, 0.95)
 	}
 	return nil
 }

@@ -251,6 +251,11 @@ func shardFromFlagsOrEnv(flag string, shardsFlag int, getenv func(string) string
 		if err != nil {
 			return 0, 0, "", err
 		}
+		if step, ok, err := atoi("SLURM_ARRAY_TASK_STEP"); err != nil {
+			return 0, 0, "", err
+		} else if ok && step != 1 {
+			return 0, 0, "", usagef("SLURM_ARRAY_TASK_STEP=%d: shards need a contiguous array with step 1, such as --array=0-%d", step, n-1)
+		}
 		if id < lo || id-lo >= n {
 			return 0, 0, "", usagef("SLURM_ARRAY_TASK_ID=%d is outside the array's %d tasks from %d; use a contiguous array such as --array=0-%d", id, n, lo, n-1)
 		}

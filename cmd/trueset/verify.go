@@ -157,7 +157,8 @@ func listFiles(root string) (map[string]bool, error) {
 	return files, err
 }
 
-// firstDifference compares two folders file by file in sorted path order.
+// firstDifference compares two folders file by file: sample files in sorted
+// path order, then manifest.jsonl, then dataset.json.
 func firstDifference(a, b string) (string, error) {
 	fa, err := listFiles(a)
 	if err != nil {
@@ -178,7 +179,23 @@ func firstDifference(a, b string) (string, error) {
 	for k := range all {
 		names = append(names, k)
 	}
-	sort.Strings(names)
+	// Sample files first, then the manifest, then dataset.json, so the file
+	// named is the one that caused a difference rather than a checksum of it.
+	rank := func(n string) int {
+		switch n {
+		case manifest.DatasetFile:
+			return 2
+		case manifest.ManifestFile:
+			return 1
+		}
+		return 0
+	}
+	sort.Slice(names, func(i, j int) bool {
+		if ri, rj := rank(names[i]), rank(names[j]); ri != rj {
+			return ri < rj
+		}
+		return names[i] < names[j]
+	})
 	for _, name := range names {
 		switch {
 		case !fa[name]:
