@@ -37,11 +37,23 @@ func NewRenderer(r *Recipe) *Renderer {
 	return &Renderer{r: r, palette: r.ClassTable()}
 }
 
+// GlyphMaxRotate is the largest turn, in degrees, that keeps a glyph's
+// label by default (common practice for character data; not a standard).
+const GlyphMaxRotate = 15.0
+
 // ClassTable returns the recipe's classes with background as id 0.
 func (r *Recipe) ClassTable() []manifest.Class {
 	out := []manifest.Class{{ID: 0, Name: "background", Colour: [3]uint8{0, 0, 0}}}
 	for i, c := range r.Classes {
 		out = append(out, manifest.Class{ID: i + 1, Name: c.Name, Colour: [3]uint8{uint8(c.Colour[0]), uint8(c.Colour[1]), uint8(c.Colour[2])}})
+	}
+	// Glyph classes keep their label under small turns only and never under
+	// a flip: a mirrored glyph is another glyph, a 6 turned over reads 9.
+	for _, o := range r.allSpecs() {
+		if o.Glyph != nil {
+			no, small := false, GlyphMaxRotate
+			out[o.classID].Flip, out[o.classID].MaxRotate = &no, &small
+		}
 	}
 	return out
 }

@@ -155,8 +155,10 @@ func Run(ctx context.Context, o RunOptions) (Summary, error) {
 		return Summary{}, err
 	}
 	var tnames []string
+	var defs []manifest.TargetDef
 	for _, t := range r.Targets {
 		tnames = append(tnames, t.Name)
+		defs = append(defs, manifest.TargetDef{Name: t.Name, Kind: t.Kind, Classes: t.Classes, Of: t.Of})
 	}
 	table := manifest.SplitTable{Names: splits.Names, Spec: splits.String(), Ratios: map[string]float64{}, Counts: map[string]int{},
 		Stratify: o.Stratify, Strata: alloc.Table, Thin: alloc.Thin}
@@ -172,7 +174,7 @@ func Run(ctx context.Context, o RunOptions) (Summary, error) {
 	d := &manifest.Dataset{
 		ToolVersion: o.Version, Recipe: recipeJSON, RecipeSHA256: recipeHash,
 		Seed: o.Seed, Count: o.Count, Width: r.Canvas.Width, Height: r.Canvas.Height,
-		Mode: r.Canvas.Mode, Classes: r.ClassTable(), Targets: tnames, Splits: table,
+		Mode: r.Canvas.Mode, Classes: r.ClassTable(), Targets: tnames, TargetDefs: defs, Splits: table,
 	}
 
 	w, err := manifest.Create(o.Out, o.Force)

@@ -36,8 +36,24 @@ type Dataset struct {
 	Mode           string          `json:"mode"` // "gray" or "rgb"
 	Classes        []Class         `json:"classes"`
 	Targets        []string        `json:"targets"`
+	TargetDefs     []TargetDef     `json:"target_defs"`
 	Splits         SplitTable      `json:"splits"`
+	Augment        *AugmentInfo    `json:"augment,omitempty"`
 	ManifestSHA256 string          `json:"manifest_sha256"`
+}
+
+// AugmentInfo records how an augmented dataset was made from its source.
+type AugmentInfo struct {
+	Plan           json.RawMessage `json:"plan"` // the normalised plan
+	PlanSHA256     string          `json:"plan_sha256"`
+	Seed           uint64          `json:"seed"`
+	Copies         int             `json:"copies"`
+	Splits         []string        `json:"splits"`                  // the splits that got copies
+	Source         string          `json:"source"`                  // "trueset" or "plain"
+	SourceSHA256   string          `json:"source_sha256,omitempty"` // the source's manifest checksum
+	SourceSamples  int             `json:"source_samples"`
+	AllowedChanges bool            `json:"allow_label_change,omitempty"`
+	Skipped        []string        `json:"skipped,omitempty"`
 }
 
 // SplitTable holds the split ratios, the resulting sample counts, and the

@@ -20,7 +20,7 @@ func ihdr(t *testing.T, b []byte) (w, h uint32, depth, ctype byte) {
 }
 
 func TestMaskAndInstanceFormats(t *testing.T) {
-	classes := []Class{{0, "background", [3]uint8{}}, {1, "a", [3]uint8{255, 0, 0}}, {2, "b", [3]uint8{0, 255, 0}}}
+	classes := []Class{{ID: 0, Name: "background"}, {ID: 1, Name: "a", Colour: [3]uint8{255, 0, 0}}, {ID: 2, Name: "b", Colour: [3]uint8{0, 255, 0}}}
 	mask := image.NewPaletted(image.Rect(0, 0, 3, 2), Palette(classes))
 	mask.Pix = []uint8{0, 1, 2, 2, 1, 0}
 	inst := image.NewGray16(image.Rect(0, 0, 3, 2))

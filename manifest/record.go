@@ -115,11 +115,28 @@ func (v *Value) UnmarshalJSON(b []byte) error {
 	return json.Unmarshal(b, &v.Num)
 }
 
-// Class is one entry of the class table. Id 0 is background.
+// Class is one entry of the class table. Id 0 is background. Flip and
+// MaxRotate declare which transforms keep the class's label: Flip false
+// means a mirrored object is no longer of this class (a mirrored glyph);
+// MaxRotate bounds the turn in degrees that keeps it (a 6 turned over reads
+// 9). Absent means any transform keeps the label.
 type Class struct {
-	ID     int      `json:"id"`
-	Name   string   `json:"name"`
-	Colour [3]uint8 `json:"colour"`
+	ID        int      `json:"id"`
+	Name      string   `json:"name"`
+	Colour    [3]uint8 `json:"colour"`
+	Flip      *bool    `json:"flip,omitempty"`
+	MaxRotate *float64 `json:"max_rotate,omitempty"`
+}
+
+// TargetDef says how a target is computed from a record's objects, so that
+// verify can check it and augment can recompute it: Kind is count, sum, min,
+// max, mean (over Of: value, area, size or angle), text or number (the
+// glyphs left to right); Classes restricts it (empty = all classes).
+type TargetDef struct {
+	Name    string   `json:"name"`
+	Kind    string   `json:"kind"`
+	Classes []string `json:"classes,omitempty"`
+	Of      string   `json:"of,omitempty"`
 }
 
 // Round rounds f to the given number of decimals; records store plan factors

@@ -2,7 +2,6 @@ package manifest
 
 import (
 	"bytes"
-	"encoding/json"
 	"fmt"
 	"image"
 	"image/png"
@@ -23,13 +22,6 @@ func (p Problem) String() string {
 		return p.Msg
 	}
 	return "record " + p.ID + ": " + p.Msg
-}
-
-// countTarget is the part of a recipe target Verify can check from masks.
-type countTarget struct {
-	Name    string   `json:"name"`
-	Kind    string   `json:"kind"`
-	Classes []string `json:"classes"`
 }
 
 // Verify checks a dataset folder and calls report for every discrepancy:
@@ -55,10 +47,7 @@ func Verify(dir string, report func(Problem)) (int, error) {
 	if got := SHA256Hex(mb); got != d.ManifestSHA256 {
 		report(Problem{Msg: fmt.Sprintf("%s: SHA-256 %s, dataset.json says %s", ManifestFile, got, d.ManifestSHA256)})
 	}
-	var recipe struct {
-		Targets []countTarget `json:"targets"`
-	}
-	_ = json.Unmarshal(d.Recipe, &recipe)
+	defs := d.TargetDefs
 	classByName := map[string]int{}
 	for _, c := range d.Classes {
 		classByName[c.Name] = c.ID
@@ -113,7 +102,7 @@ func Verify(dir string, report func(Problem)) (int, error) {
 			strata[r.Stratum][r.Split]++
 			stratumGroups[r.Group] = true
 		}
-		verifyRecord(dir, d, r, recipe.Targets, classByName, bad)
+		verifyRecord(dir, d, r, defs, classByName, bad)
 		return nil
 	})
 	if err != nil {
@@ -181,7 +170,7 @@ func decodePNG(dir, rel string, want string, bad func(string, ...any)) image.Ima
 	return m
 }
 
-func verifyRecord(dir string, d *Dataset, r *Record, targets []countTarget, classByName map[string]int, bad func(string, ...any)) {
+func verifyRecord(dir string, d *Dataset, r *Record, targets []TargetDef, classByName map[string]int, bad func(string, ...any)) {
 	for _, f := range [][2]string{{"image", r.Image}, {"mask", r.Mask}, {"instances", r.Instances}} {
 		key, rel := f[0], f[1]
 		if !SafeRel(rel) {
@@ -243,7 +232,8 @@ func verifyRecord(dir string, d *Dataset, r *Record, targets []countTarget, clas
 			bad("instance %d is in the instance mask but not in the record", id)
 		}
 	}
-	// Every pixel's class is its instance's class; no instance means background.
+	// Every pixel's class is its instance's class; no instance means
+	// background or the ignore id.
 	mismatch := 0
 	b := want
 	for y := b.Min.Y; y < b.Max.Y; y++ {
@@ -256,7 +246,7 @@ func verifyRecord(dir string, d *Dataset, r *Record, targets []countTarget, clas
 			} else if id != 0 {
 				continue
 			}
-			if cls != wantCls {
+			if cls != wantCls && !(id == 0 && cls == IgnoreID) {
 				if mismatch == 0 {
 					bad("%s: pixel (%d, %d) has class %d, its instance %d is class %d", r.Mask, x, y, cls, id, wantCls)
 				}
