@@ -53,7 +53,7 @@ anyone can regenerate byte for byte from the recipe and the seed.`,
 	root.SetFlagErrorFunc(func(c *cobra.Command, err error) error {
 		return usageError{fmt.Errorf("%w\nsee: %s --help", err, c.CommandPath())}
 	})
-	root.AddCommand(newGenerateCmd(stdout, stderr), newSplitCmd(stdout, stderr), newVerifyCmd(stdout, stderr),
+	root.AddCommand(newGenerateCmd(stdout, stderr), newAugmentCmd(stdout, stderr), newSplitCmd(stdout, stderr), newVerifyCmd(stdout, stderr),
 		newMergeCmd(stdout), newPresetsCmd(stdout), newVersionCmd(stdout))
 	return root
 }
@@ -64,7 +64,7 @@ func exitCode(err error) int {
 		return exitOK
 	}
 	var ue usageError
-	var re *gen.RecipeError
+	var re *gen.RecipeError // also augment.PlanError: both are yamlnode.Error
 	if errors.As(err, &ue) || errors.As(err, &re) {
 		return exitUsage
 	}

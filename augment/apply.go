@@ -1,0 +1,253 @@
+package augment
+
+import (
+	"fmt"
+	"image"
+	"math"
+
+	"github.com/trueset/trueset/manifest"
+)
+
+// Input is one source sample in memory: its record and its pixels.
+type Input struct {
+	Record manifest.Record
+	Image  *Image
+	Mask   *image.Paletted
+	Inst   *image.Gray16
+}
+
+// Output is one augmented copy.
+type Output struct {
+	Image  image.Image
+	Mask   *image.Paletted
+	Inst   *image.Gray16
+	Record manifest.Record
+}
+
+// Copy makes copy k (k ≥ 1) of source number src. Every draw comes from
+// manifest.RNG(seed, src, k, try): try counts the redraws the resample
+// policy makes when a crop or turn cuts an object below cut.min_visible
+// (bounded by cut.tries; after that the cut objects are dropped). Labels are
+// then measured again from the warped instance mask, and targets recomputed
+// from defs; targets without a definition are carried over unchanged.
+func (p *Plan) Copy(in *Input, seed uint64, src, k int, defs []manifest.TargetDef) (*Output, error) {
+	W, H := in.Image.W, in.Image.H
+	var d *Drawn
+	var inst *image.Gray16
+	var frac map[int]float64
+	policy := p.Cut.Policy
+	min := *p.Cut.MinVisible
+	tries := 1
+	if policy == "resample" {
+		tries = p.Cut.Tries
+	}
+	ok := false
+	for try := 0; try < tries && !ok; try++ {
+		var err error
+		d, err = p.Draw(manifest.RNG(seed, uint64(src), uint64(k), uint64(try)), W, H)
+		if err != nil {
+			return nil, fmt.Errorf("%s copy %d: %w", in.Record.ID, k, err)
+		}
+		inst = WarpInstances(in.Inst, d.M, d.W, d.H)
+		frac = keptFractions(in.Record.Objects, inst, d.M)
+		ok = true
+		if policy == "resample" {
+			for _, f := range frac {
+				if f < min {
+					ok = false
+					break
+				}
+			}
+		}
+	}
+	lineageOps := d.Ops
+	if !ok {
+		policy = "drop"
+		lineageOps = append(lineageOps, manifest.LineageOp{Op: "cut-policy", Params: map[string]float64{"resample_tries": float64(tries), "then_drop": 1}})
+	}
+	fillID := uint8(0)
+	if p.MaskFill == "ignore" {
+		fillID = manifest.IgnoreID
+	}
+	mask := WarpMask(in.Mask, d.M, d.W, d.H, fillID)
+	fill := Fill{Mode: p.Fill.Mode}
+	if p.Fill.Colour != nil {
+		for c := 0; c < 3; c++ {
+			fill.Value[c] = float32(p.Fill.Colour[c])
+		}
+	} else {
+		fill.Value = [3]float32{float32(p.Fill.Intensity), float32(p.Fill.Intensity), float32(p.Fill.Intensity)}
+	}
+	interp := Bilinear
+	if p.Interpolation == "bicubic" {
+		interp = Bicubic
+	}
+	img := WarpImage(in.Image, d.M, d.W, d.H, interp, fill)
+
+	if policy == "drop" {
+		// A dropped object's pixels still show it, so they become "ignore"
+		// rather than background.
+		for id, f := range frac {
+			if f < min {
+				erase(mask, inst, id)
+			}
+		}
+	}
+	for _, op := range d.photo {
+		if (op.op == "hue" || op.op == "saturation") && img.C == 1 {
+			// Colour steps do nothing to a gray image; the lineage says so.
+			op.p["skipped_gray"] = 1
+			continue
+		}
+		if err := applyPhoto(img, mask, inst, op); err != nil {
+			return nil, fmt.Errorf("%s copy %d: %w", in.Record.ID, k, err)
+		}
+	}
+
+	out := &Output{Image: img.ToImage(), Mask: mask, Inst: inst}
+	rec := &out.Record
+	*rec = in.Record
+	rec.Width, rec.Height = d.W, d.H
+	rec.Objects = relabel(in.Record.Objects, inst, d.M, frac)
+	rec.Targets = recompute(defs, rec.Objects, in.Record.Targets)
+	rec.Lineage = &manifest.Lineage{Source: in.Record.ID, Ops: lineageOps, Affine: roundMat(d.M)}
+	return out, nil
+}
+
+func roundMat(m Mat) [6]float64 {
+	var out [6]float64
+	for i, v := range m {
+		out[i] = manifest.Round(v, 9)
+	}
+	return out
+}
+
+// keptFractions returns, for each object of the source, the share of its
+// pixels that survive the warp: warped area / (source area · |det M|).
+func keptFractions(objs []manifest.Object, inst *image.Gray16, m Mat) map[int]float64 {
+	stats := manifest.MeasureInstances(inst)
+	scale := math.Abs(m.Det())
+	out := make(map[int]float64, len(objs))
+	for _, o := range objs {
+		if o.Area == 0 {
+			continue
+		}
+		a := 0
+		if st := stats[o.Instance]; st != nil {
+			a = st.Area
+		}
+		out[o.Instance] = math.Min(1, float64(a)/(float64(o.Area)*scale))
+	}
+	return out
+}
+
+func erase(mask *image.Paletted, inst *image.Gray16, id int) {
+	hi, lo := uint8(id>>8), uint8(id)
+	for i := 0; i+1 < len(inst.Pix); i += 2 {
+		if inst.Pix[i] == hi && inst.Pix[i+1] == lo {
+			inst.Pix[i], inst.Pix[i+1] = 0, 0
+			mask.Pix[i/2] = manifest.IgnoreID
+		}
+	}
+}
+
+// relabel measures the warped instance mask: objects that left the frame (or
+// were dropped) disappear, the rest get their new box, area and visible
+// share, and their factors mapped by m: centre through m, size by √|det m|,
+// angle as the direction m gives the object's own x axis. A part whose parent
+// is gone loses its parent reference.
+func relabel(objs []manifest.Object, inst *image.Gray16, m Mat, frac map[int]float64) []manifest.Object {
+	stats := manifest.MeasureInstances(inst)
+	kept := map[int]bool{}
+	var out []manifest.Object
+	s := math.Sqrt(math.Abs(m.Det()))
+	for _, o := range objs {
+		st := stats[o.Instance]
+		if st == nil {
+			continue
+		}
+		kept[o.Instance] = true
+		n := o
+		n.BBox, n.Area = st.BBox, st.Area
+		f := frac[o.Instance]
+		if o.Area > 0 {
+			// Measured again, since cutouts may have hidden more pixels.
+			f = math.Min(f, float64(st.Area)/(float64(o.Area)*math.Abs(m.Det())))
+		}
+		n.Visible = manifest.Round(math.Min(1, o.Visible*f), 4)
+		cx, cy := m.Apply(o.Centre[0], o.Centre[1])
+		n.Centre = [2]float64{manifest.Round(cx, 3), manifest.Round(cy, 3)}
+		n.Size = manifest.Round(o.Size*s, 3)
+		sn, cs := math.Sincos(o.Angle * math.Pi / 180)
+		dx, dy := m[0]*cs+m[1]*sn, m[3]*cs+m[4]*sn
+		n.Angle = manifest.Round(math.Atan2(dy, dx)*180/math.Pi, 3)
+		out = append(out, n)
+	}
+	for i := range out {
+		if out[i].Parent != 0 && !kept[out[i].Parent] {
+			out[i].Parent = 0
+		}
+	}
+	return out
+}
+
+func applyPhoto(img *Image, mask *image.Paletted, inst *image.Gray16, op photoOp) error {
+	p := op.p
+	rng := manifest.RNG(uint64(p["seed"]))
+	switch op.op {
+	case "gaussian-noise":
+		GaussianNoise(img, rng, p["sigma"])
+	case "salt-and-pepper":
+		SaltPepper(img, rng, p["fraction"])
+	case "shot-noise":
+		ShotNoise(img, rng, p["photons"])
+	case "speckle":
+		Speckle(img, rng, p["sigma"])
+	case "blur":
+		GaussianBlur(img, p["sigma"])
+	case "brightness":
+		Brightness(img, p["delta"])
+	case "contrast":
+		Contrast(img, p["factor"])
+	case "gamma":
+		Gamma(img, p["gamma"])
+	case "hue":
+		return HueShift(img, p["degrees"])
+	case "saturation":
+		return Saturation(img, p["factor"])
+	case "jpeg":
+		return JPEGRoundTrip(img, int(p["quality"]))
+	case "cutout":
+		cutout(img, mask, inst, p)
+	default:
+		return fmt.Errorf("internal: no photometric step %q", op.op)
+	}
+	return nil
+}
+
+// cutout fills rectangles of the image with a constant; with "ignore" their
+// mask pixels become the ignore id and lose their instance.
+func cutout(img *Image, mask *image.Paletted, inst *image.Gray16, p map[string]float64) {
+	n := int(p["count"])
+	v := float32(p["value"])
+	for k := 0; k < n; k++ {
+		w, h := p[fmt.Sprintf("w%d", k)], p[fmt.Sprintf("h%d", k)]
+		cx, cy := p[fmt.Sprintf("u%d", k)]*float64(img.W), p[fmt.Sprintf("v%d", k)]*float64(img.H)
+		x0, y0 := int(math.Round(cx-w/2)), int(math.Round(cy-h/2))
+		x1, y1 := int(math.Round(cx+w/2)), int(math.Round(cy+h/2))
+		x0, y0 = max(x0, 0), max(y0, 0)
+		x1, y1 = min(x1, img.W), min(y1, img.H)
+		for y := y0; y < y1; y++ {
+			for x := x0; x < x1; x++ {
+				for c := 0; c < img.C; c++ {
+					img.Pix[(y*img.W+x)*img.C+c] = v
+				}
+				if p["ignore"] == 1 {
+					mask.Pix[y*mask.Stride+x] = manifest.IgnoreID
+					o := y*inst.Stride + 2*x
+					inst.Pix[o], inst.Pix[o+1] = 0, 0
+				}
+			}
+		}
+	}
+}

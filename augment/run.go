@@ -1,0 +1,440 @@
+package augment
+
+import (
+	"bytes"
+	"context"
+	"crypto/sha256"
+	"encoding/hex"
+	"encoding/json"
+	"fmt"
+	"image"
+	"image/png"
+	"math"
+	"os"
+	"path/filepath"
+	"runtime"
+	"time"
+
+	"github.com/trueset/trueset/manifest"
+)
+
+// RunOptions configures an augmentation run; zero values mean defaults.
+type RunOptions struct {
+	In, Out          string
+	Plan             *Plan
+	Copies           int      // copies per augmented source
+	Seed             uint64   // augmentation seed; copy k of source s draws from (Seed, s, k)
+	Splits           []string // splits whose sources get copies; default train
+	Workers          int      // default runtime.NumCPU()
+	AllowLabelChange bool     // run plans that break a class's declared invariance
+	Force            bool
+	MaxPixels        int    // pixel budget per input image; default DefaultMaxPixels
+	SplitSpec        string // plain folders only: how sources are dealt to splits
+	Stratify         string // plain folders only: stratification key
+	Version          string
+	Progress         func(done, total int)
+}
+
+// DefaultMaxPixels bounds one input image (width × height).
+const DefaultMaxPixels = 64 << 20
+
+// MaxCopies bounds --copies.
+const MaxCopies = 1000
+
+// Summary reports a finished run.
+type Summary struct {
+	Sources, Copies, Records int
+	Elapsed                  time.Duration
+	Bytes                    int64
+	Splits                   manifest.SplitTable
+}
+
+// source is one input sample: its record, and how to get its pixels and
+// (for trueset input) its original file bytes.
+type source struct {
+	rec   manifest.Record
+	plain *Source
+}
+
+type input struct {
+	kind    string // "trueset" or "plain"
+	dir     string
+	base    *manifest.Dataset
+	classes []manifest.Class
+	defs    []manifest.TargetDef
+	targets []string
+	srcs    []source
+	splits  manifest.SplitTable
+	seed    uint64 // the seed the split allocation was dealt with
+}
+
+// Run augments a trueset dataset or a plain labeled folder into a new trueset
+// dataset: every source is carried over unchanged, and each source in one of
+// o.Splits also gets o.Copies augmented copies, which keep its split, group
+// and stratum, so copies never leak across splits.
+func Run(ctx context.Context, o RunOptions) (Summary, error) {
+	start := time.Now()
+	if o.Copies < 0 || o.Copies > MaxCopies {
+		return Summary{}, fmt.Errorf("copies %d: want 0..%d", o.Copies, MaxCopies)
+	}
+	if o.Workers <= 0 {
+		o.Workers = runtime.NumCPU()
+	}
+	if o.MaxPixels <= 0 {
+		o.MaxPixels = DefaultMaxPixels
+	}
+	if len(o.Splits) == 0 {
+		o.Splits = []string{"train"}
+	}
+	in, err := readInput(o)
+	if err != nil {
+		return Summary{}, err
+	}
+	augmented := map[string]bool{}
+	known := map[string]bool{}
+	for _, n := range in.splits.Names {
+		known[n] = true
+	}
+	for _, s := range o.Splits {
+		if !known[s] {
+			return Summary{}, fmt.Errorf("--splits %s: the input has splits %v", s, in.splits.Names)
+		}
+		augmented[s] = true
+	}
+	if !o.AllowLabelChange {
+		if err := CheckInvariance(o.Plan, in.classes, in.defs); err != nil {
+			return Summary{}, err
+		}
+	}
+	// Record positions: each source's original, then its copies.
+	first := make([]int, len(in.srcs)+1)
+	for i, s := range in.srcs {
+		n := 1
+		if augmented[s.rec.Split] {
+			n += o.Copies
+		}
+		first[i+1] = first[i] + n
+	}
+	total := first[len(in.srcs)]
+	digits := len(fmt.Sprint(max(o.Copies, 1)))
+	if digits < 2 {
+		digits = 2
+	}
+
+	w, err := manifest.Create(o.Out, o.Force)
+	if err != nil {
+		return Summary{}, err
+	}
+	counts := map[string]int{}
+	for i, s := range in.srcs {
+		counts[s.rec.Split] += first[i+1] - first[i]
+	}
+	newProduce := func() manifest.Produce {
+		enc := manifest.NewEncoder()
+		return func(i int) ([]*manifest.Record, int64, error) {
+			return in.produce(i, first[i], first[i+1]-first[i]-1, digits, o, enc, w)
+		}
+	}
+	done, bytesOut, err := manifest.RunOrdered(ctx, 0, len(in.srcs), o.Workers, newProduce, w, o.Progress)
+	sum := Summary{Sources: done, Records: first[done], Copies: first[done] - done, Bytes: bytesOut}
+	if err != nil {
+		w.Abort()
+		sum.Elapsed = time.Since(start)
+		return sum, err
+	}
+	d := in.dataset(o, total, counts)
+	n, err := w.Finish(d)
+	sum.Bytes += n
+	sum.Splits = d.Splits
+	sum.Elapsed = time.Since(start)
+	return sum, err
+}
+
+// dataset builds the output dataset.json.
+func (in *input) dataset(o RunOptions, total int, counts map[string]int) *manifest.Dataset {
+	sum := sha256.Sum256(o.Plan.JSON())
+	info := &manifest.AugmentInfo{
+		Plan: o.Plan.JSON(), PlanSHA256: hex.EncodeToString(sum[:]), Seed: o.Seed, Copies: o.Copies,
+		Splits: o.Splits, Source: in.kind, SourceSamples: len(in.srcs), AllowedChanges: o.AllowLabelChange,
+	}
+	t := in.splits
+	t.Counts = map[string]int{}
+	for _, n := range t.Names {
+		t.Counts[n] = counts[n]
+	}
+	d := &manifest.Dataset{
+		ToolVersion: o.Version, Seed: in.seed, Count: total, Classes: in.classes,
+		Targets: in.targets, TargetDefs: in.defs, Splits: t, Augment: info, Recipe: json.RawMessage("null"),
+	}
+	if b := in.base; b != nil {
+		d.Recipe, d.RecipeSHA256, d.Width, d.Height, d.Mode = b.Recipe, b.RecipeSHA256, b.Width, b.Height, b.Mode
+		info.SourceSHA256 = b.ManifestSHA256
+	} else if len(in.srcs) > 0 {
+		s := in.srcs[0].plain
+		d.Width, d.Height, d.Mode = s.Image.W, s.Image.H, "gray"
+		if s.Image.C == 3 {
+			d.Mode = "rgb"
+		}
+	}
+	return d
+}
+
+// produce writes source i's original and its copies.
+func (in *input) produce(i, index, copies, digits int, o RunOptions, enc *manifest.Encoder, w *manifest.Writer) ([]*manifest.Record, int64, error) {
+	s := in.srcs[i]
+	orig := s.rec
+	orig.Index = index
+	var n int64
+	var src *Input
+	var err error
+	if in.kind == "trueset" {
+		n, err = in.copyOriginal(&orig, w)
+		if err == nil && copies > 0 {
+			src, err = in.loadTrueset(&s.rec)
+		}
+	} else {
+		src = &Input{Record: orig, Image: s.plain.Image, Mask: s.plain.Mask, Inst: s.plain.Instances}
+		n, err = w.WriteFiles(&orig, enc, s.plain.Image.ToImage(), s.plain.Mask, s.plain.Instances)
+	}
+	if err != nil {
+		return nil, n, err
+	}
+	recs := []*manifest.Record{&orig}
+	for k := 1; k <= copies; k++ {
+		out, err := o.Plan.Copy(src, o.Seed, i, k, in.defs)
+		if err != nil {
+			return nil, n, err
+		}
+		rec := &out.Record
+		rec.ID = fmt.Sprintf("%s-c%0*d", s.rec.ID, digits, k)
+		rec.Index = index + k
+		m, err := w.WriteFiles(rec, enc, out.Image, out.Mask, out.Inst)
+		n += m
+		if err != nil {
+			return nil, n, err
+		}
+		recs = append(recs, rec)
+	}
+	return recs, n, nil
+}
+
+// copyOriginal carries a trueset sample over byte for byte.
+func (in *input) copyOriginal(rec *manifest.Record, w *manifest.Writer) (int64, error) {
+	var n int64
+	for _, f := range [][2]string{{"image", rec.Image}, {"mask", rec.Mask}, {"instances", rec.Instances}} {
+		b, err := os.ReadFile(filepath.Join(in.dir, f[1]))
+		if err != nil {
+			return n, err
+		}
+		if got := manifest.SHA256Hex(b); got != rec.SHA256[f[0]] {
+			return n, fmt.Errorf("%s: SHA-256 %s, the record says %s; run trueset verify on the input", filepath.Join(in.dir, f[1]), got, rec.SHA256[f[0]])
+		}
+		if err := manifest.WriteFileAtomic(filepath.Join(w.Dir, f[1]), b); err != nil {
+			return n, err
+		}
+		n += int64(len(b))
+	}
+	return n, nil
+}
+
+func decodeFile(p string, maxPixels int) (image.Image, error) {
+	b, err := os.ReadFile(p)
+	if err != nil {
+		return nil, err
+	}
+	cfg, err := png.DecodeConfig(bytes.NewReader(b))
+	if err != nil {
+		return nil, fmt.Errorf("%s: %v", p, err)
+	}
+	if int64(cfg.Width)*int64(cfg.Height) > int64(maxPixels) {
+		return nil, fmt.Errorf("%s: %d×%d pixels is over the budget of %d", p, cfg.Width, cfg.Height, maxPixels)
+	}
+	m, err := png.Decode(bytes.NewReader(b))
+	if err != nil {
+		return nil, fmt.Errorf("%s: %v", p, err)
+	}
+	return m, nil
+}
+
+// loadTrueset decodes a trueset sample's three PNGs.
+func (in *input) loadTrueset(rec *manifest.Record) (*Input, error) {
+	img, err := decodeFile(filepath.Join(in.dir, rec.Image), DefaultMaxPixels)
+	if err != nil {
+		return nil, err
+	}
+	mk, err := decodeFile(filepath.Join(in.dir, rec.Mask), DefaultMaxPixels)
+	if err != nil {
+		return nil, err
+	}
+	ins, err := decodeFile(filepath.Join(in.dir, rec.Instances), DefaultMaxPixels)
+	if err != nil {
+		return nil, err
+	}
+	mask, ok1 := mk.(*image.Paletted)
+	inst, ok2 := ins.(*image.Gray16)
+	if !ok1 || !ok2 {
+		return nil, fmt.Errorf("record %s: masks are not an indexed PNG and a 16-bit gray PNG", rec.ID)
+	}
+	if mask.Rect != img.Bounds() || inst.Rect != img.Bounds() {
+		return nil, fmt.Errorf("record %s: image and masks differ in size", rec.ID)
+	}
+	return &Input{Record: *rec, Image: FromImage(img), Mask: mask, Inst: inst}, nil
+}
+
+func readInput(o RunOptions) (*input, error) {
+	if _, err := os.Stat(filepath.Join(o.In, manifest.DatasetFile)); err == nil {
+		return readTrueset(o)
+	}
+	if IsPlainFolder(o.In) {
+		return readPlain(o)
+	}
+	return nil, fmt.Errorf("%s is neither a trueset dataset (no dataset.json) nor a plain labeled folder (images/ and masks/)", o.In)
+}
+
+func readTrueset(o RunOptions) (*input, error) {
+	d, err := manifest.ReadDataset(o.In)
+	if err != nil {
+		return nil, err
+	}
+	in := &input{kind: "trueset", dir: o.In, base: d, classes: d.Classes, defs: d.TargetDefs, targets: d.Targets, splits: d.Splits, seed: d.Seed}
+	err = manifest.ReadManifest(o.In, func(r *manifest.Record) error {
+		if r.Lineage != nil {
+			return fmt.Errorf("record %s is itself an augmented copy; augment the original dataset instead", r.ID)
+		}
+		in.srcs = append(in.srcs, source{rec: *r})
+		return nil
+	})
+	return in, err
+}
+
+// readPlain reads a plain labeled folder and deals its sources (each its own
+// group) to splits.
+func readPlain(o RunOptions) (*input, error) {
+	f, err := ReadFolder(o.In, o.MaxPixels)
+	if err != nil {
+		return nil, err
+	}
+	spec := o.SplitSpec
+	if spec == "" {
+		spec = manifest.DefaultSplits
+	}
+	sp, err := manifest.ParseSplits(spec)
+	if err != nil {
+		return nil, err
+	}
+	classes := append([]manifest.Class(nil), f.Classes...)
+	for i := range classes {
+		if inv, ok := f.Invariance[classes[i].ID]; ok {
+			flip := inv.Flip
+			classes[i].Flip = &flip
+			if inv.MaxRotate >= 0 {
+				r := inv.MaxRotate
+				classes[i].MaxRotate = &r
+			}
+		}
+	}
+	in := &input{kind: "plain", dir: o.In, classes: classes, targets: append([]string(nil), f.TargetNames...), seed: o.Seed}
+	taken := map[string]bool{}
+	for _, n := range f.TargetNames {
+		taken[n] = true
+	}
+	// Counts computed from the masks, so copies that lose objects stay true.
+	addDef := func(d manifest.TargetDef) {
+		if !taken[d.Name] {
+			taken[d.Name] = true
+			in.defs = append(in.defs, d)
+			in.targets = append(in.targets, d.Name)
+		}
+	}
+	addDef(manifest.TargetDef{Name: "objects", Kind: "count"})
+	for _, c := range classes {
+		if c.ID != 0 {
+			addDef(manifest.TargetDef{Name: "count_" + c.Name, Kind: "count", Classes: []string{c.Name}})
+		}
+	}
+	keys := make([]string, len(f.Sources))
+	for i, s := range f.Sources {
+		rec := manifest.Record{ID: s.ID, Group: s.ID, Width: s.Image.W, Height: s.Image.H, Objects: s.Objects, Targets: map[string]manifest.Value{}}
+		for k, v := range s.Targets {
+			rec.Targets[k] = v
+		}
+		rec.Targets = recompute(in.defs, rec.Objects, rec.Targets)
+		k, err := manifest.StratumOf(&rec, o.Stratify)
+		if err != nil {
+			return nil, err
+		}
+		keys[i] = k
+		rec.Stratum = k
+		in.srcs = append(in.srcs, source{rec: rec, plain: s})
+	}
+	a, err := manifest.AllocateStrata(o.Seed, keys, sp)
+	if err != nil {
+		return nil, err
+	}
+	for i := range in.srcs {
+		in.srcs[i].rec.Split = sp.Names[a.Split[i]]
+	}
+	in.splits = manifest.SplitTable{Names: sp.Names, Spec: sp.String(), Ratios: map[string]float64{}, Stratify: o.Stratify, Strata: a.Table, Thin: a.Thin}
+	for i, n := range sp.Names {
+		in.splits.Ratios[n] = manifest.Round(sp.Ratios[i], 6)
+	}
+	return in, nil
+}
+
+// CheckInvariance refuses, before any work, a plan that would break a
+// class's declared invariance: a flip step for a class that does not keep its
+// label under flips, a turn beyond a class's max_rotate, or a flip or an
+// upside-down turn of samples whose targets read text.
+func CheckInvariance(p *Plan, classes []manifest.Class, defs []manifest.TargetDef) error {
+	reads := ""
+	for _, d := range defs {
+		if d.Kind == "text" || d.Kind == "number" {
+			reads = d.Name
+		}
+	}
+	var walk func(steps []Step, path string) error
+	walk = func(steps []Step, path string) error {
+		for i := range steps {
+			s := &steps[i]
+			sp := fmt.Sprintf("%s[%d]", path, i)
+			if *s.Chance == 0 {
+				continue
+			}
+			switch s.Op {
+			case "one-of":
+				if err := walk(s.Steps, sp+".steps"); err != nil {
+					return err
+				}
+			case "flip":
+				for _, c := range classes {
+					if c.Flip != nil && !*c.Flip {
+						return fmt.Errorf("plan %s (flip %s) would mirror class %q, whose label does not survive a flip (dataset classes: flip false); remove the step or pass --allow-label-change", sp, s.Axis, c.Name)
+					}
+				}
+				if reads != "" {
+					return fmt.Errorf("plan %s (flip %s) would mirror samples whose target %q reads text; remove the step or pass --allow-label-change", sp, s.Axis, reads)
+				}
+			case "rotate", "affine":
+				turn := 0.0
+				if s.Degrees != nil {
+					turn = math.Max(math.Abs(s.Degrees.Min), math.Abs(s.Degrees.Max))
+				}
+				if s.Shear != nil {
+					turn = math.Max(turn, math.Max(math.Abs(s.Shear.Min), math.Abs(s.Shear.Max)))
+				}
+				for _, c := range classes {
+					if c.MaxRotate != nil && turn > *c.MaxRotate {
+						return fmt.Errorf("plan %s (%s up to %s°) turns class %q beyond the %s° that keep its label; narrow the range or pass --allow-label-change", sp, s.Op, fmtDeg(turn), c.Name, fmtDeg(*c.MaxRotate))
+					}
+				}
+				if reads != "" && turn > 90 {
+					return fmt.Errorf("plan %s (%s up to %s°) could turn samples whose target %q reads text upside down; keep turns within ±90° or pass --allow-label-change", sp, s.Op, fmtDeg(turn), reads)
+				}
+			}
+		}
+		return nil
+	}
+	return walk(p.Steps, "steps")
+}
+
+func fmtDeg(f float64) string { return fmt.Sprintf("%g", manifest.Round(f, 3)) }
