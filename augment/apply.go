@@ -4,6 +4,7 @@ import (
 	"fmt"
 	"image"
 	"math"
+	"sort"
 
 	"github.com/trueset/trueset/manifest"
 )
@@ -33,12 +34,10 @@ type Output struct {
 func (p *Plan) Copy(in *Input, seed uint64, src, k int, defs []manifest.TargetDef) (*Output, error) {
 	W, H := in.Image.W, in.Image.H
 	var d *Drawn
-	var inst *image.Gray16
 	var frac map[int]float64
-	policy := p.Cut.Policy
 	min := *p.Cut.MinVisible
 	tries := 1
-	if policy == "resample" {
+	if p.Cut.Policy == "resample" {
 		tries = p.Cut.Tries
 	}
 	ok := false
@@ -48,10 +47,9 @@ func (p *Plan) Copy(in *Input, seed uint64, src, k int, defs []manifest.TargetDe
 		if err != nil {
 			return nil, fmt.Errorf("%s copy %d: %w", in.Record.ID, k, err)
 		}
-		inst = WarpInstances(in.Inst, d.M, d.W, d.H)
-		frac = keptFractions(in.Record.Objects, inst, d.M)
+		frac = keptFractions(in.Record.Objects, WarpInstances(in.Inst, d.M, d.W, d.H), d.M)
 		ok = true
-		if policy == "resample" {
+		if p.Cut.Policy == "resample" {
 			for _, f := range frac {
 				if f < min {
 					ok = false
@@ -60,11 +58,44 @@ func (p *Plan) Copy(in *Input, seed uint64, src, k int, defs []manifest.TargetDe
 			}
 		}
 	}
-	lineageOps := d.Ops
 	if !ok {
-		policy = "drop"
-		lineageOps = append(lineageOps, manifest.LineageOp{Op: "cut-policy", Params: map[string]float64{"resample_tries": float64(tries), "then_drop": 1}})
+		d.Ops = append(d.Ops, manifest.LineageOp{Op: "cut-policy", Params: map[string]float64{"resample_tries": float64(tries), "then_drop": 1}})
 	}
+	return p.render(in, d, defs)
+}
+
+// lineageGeometric are the lineage names of geometric steps (their effect
+// is in the composed matrix).
+var lineageGeometric = map[string]bool{"flip-horizontal": true, "flip-vertical": true, "rotate": true, "affine": true, "crop": true, "resize": true}
+
+// Replay makes a copy again from its lineage alone (the composed matrix and
+// every photometric step's parameters, noise seeds included) and the plan's
+// fill, interpolation and cut settings. It gives the same bytes as the Copy
+// that wrote the lineage.
+func (p *Plan) Replay(in *Input, lin *manifest.Lineage, w, h int, defs []manifest.TargetDef) (*Output, error) {
+	d := &Drawn{M: Mat(lin.Affine), W: w, H: h, Ops: lin.Ops}
+	for i, op := range lin.Ops {
+		if !lineageGeometric[op.Op] && op.Op != "cut-policy" {
+			d.photo = append(d.photo, photoOp{op.Op, op.Params, i})
+		}
+	}
+	return p.render(in, d, defs)
+}
+
+// render warps and relabels a drawn copy: image by the plan's interpolation
+// and fill, masks by nearest neighbour with the same matrix; objects cut below
+// cut.min_visible are erased (to "ignore") under the drop policy, or when a
+// resample ran out of tries; then the photometric steps run in order.
+func (p *Plan) render(in *Input, d *Drawn, defs []manifest.TargetDef) (*Output, error) {
+	inst := WarpInstances(in.Inst, d.M, d.W, d.H)
+	frac := keptFractions(in.Record.Objects, inst, d.M)
+	drop := p.Cut.Policy == "drop"
+	for _, op := range d.Ops {
+		if op.Op == "cut-policy" {
+			drop = true
+		}
+	}
+	min := *p.Cut.MinVisible
 	fillID := uint8(0)
 	if p.MaskFill == "ignore" {
 		fillID = manifest.IgnoreID
@@ -83,14 +114,18 @@ func (p *Plan) Copy(in *Input, seed uint64, src, k int, defs []manifest.TargetDe
 		interp = Bicubic
 	}
 	img := WarpImage(in.Image, d.M, d.W, d.H, interp, fill)
-
-	if policy == "drop" {
+	if drop {
 		// A dropped object's pixels still show it, so they become "ignore"
-		// rather than background.
+		// rather than background. Erased in id order, for determinism.
+		ids := make([]int, 0, len(frac))
 		for id, f := range frac {
 			if f < min {
-				erase(mask, inst, id)
+				ids = append(ids, id)
 			}
+		}
+		sort.Ints(ids)
+		for _, id := range ids {
+			erase(mask, inst, id)
 		}
 	}
 	for _, op := range d.photo {
@@ -100,26 +135,17 @@ func (p *Plan) Copy(in *Input, seed uint64, src, k int, defs []manifest.TargetDe
 			continue
 		}
 		if err := applyPhoto(img, mask, inst, op); err != nil {
-			return nil, fmt.Errorf("%s copy %d: %w", in.Record.ID, k, err)
+			return nil, fmt.Errorf("%s: %w", in.Record.ID, err)
 		}
 	}
-
 	out := &Output{Image: img.ToImage(), Mask: mask, Inst: inst}
 	rec := &out.Record
 	*rec = in.Record
 	rec.Width, rec.Height = d.W, d.H
 	rec.Objects = relabel(in.Record.Objects, inst, d.M, frac)
 	rec.Targets = recompute(defs, rec.Objects, in.Record.Targets)
-	rec.Lineage = &manifest.Lineage{Source: in.Record.ID, Ops: lineageOps, Affine: roundMat(d.M)}
+	rec.Lineage = &manifest.Lineage{Source: in.Record.ID, Ops: d.Ops, Affine: d.M}
 	return out, nil
-}
-
-func roundMat(m Mat) [6]float64 {
-	var out [6]float64
-	for i, v := range m {
-		out[i] = manifest.Round(v, 9)
-	}
-	return out
 }
 
 // keptFractions returns, for each object of the source, the share of its
