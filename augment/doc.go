@@ -1,9 +1,35 @@
-// Package augment will hold label-preserving augmentation: 2×3 affine
-// composition of geometric steps, warp kernels (bilinear and bicubic for
-// images, nearest-neighbour for masks under the same matrix and the pixel-centre
-// convention of package manifest), photometric and noise steps that never touch
-// masks, augmentation plan files, label recomputation from the warped masks,
-// per-class invariance rules, and readers for plain labeled folders.
+// Package augment expands labeled datasets with label-preserving transforms:
+// masks, boxes and counts move with the pixels.
 //
-// It is empty for now; it imports manifest only and never gen.
+// Contract:
+//   - A plan (plan.go, schema/plan.schema.json) is an ordered list of steps,
+//     each applied with a chance and drawing its parameters from ranges.
+//     Copy k of source s draws only from manifest.RNG(seed, s, k, try), so
+//     output bytes do not depend on the worker count.
+//   - All geometric steps of a copy (flip, rotate, affine, crop, resize)
+//     compose into one 2×3 matrix (affine.go) applied once (warp.go): the
+//     image by bilinear or Keys bicubic interpolation, the semantic and
+//     instance masks by nearest neighbour under the same matrix. Every
+//     destination pixel centre (x+0.5, y+0.5) is mapped back to the source.
+//     Quarter turns and flips use exact matrices, so they move pixels
+//     without resampling error.
+//   - Photometric steps (photometric.go) run afterwards on the warped image in
+//     plan order and never touch masks; cutout may mark its pixels "ignore"
+//     (manifest.IgnoreID) when asked.
+//   - Labels are measured again from the warped instance mask (apply.go):
+//     boxes, areas, visible shares, and every target with a definition
+//     (targets.go). Objects a crop or turn cuts below cut.min_visible are
+//     avoided by redrawing (resample), or dropped — their pixels become
+//     "ignore" and the counts fall — never kept silently.
+//   - A class may declare which transforms keep its label (manifest.Class
+//     Flip, MaxRotate); CheckInvariance refuses a plan that breaks one before
+//     any work.
+//   - Every copy records its lineage: source id, each applied step with its
+//     drawn parameters (noise seeds included) and the composed matrix, from
+//     which Replay rebuilds it exactly.
+//   - Inputs are trueset datasets or plain labeled folders (folder.go). The
+//     output is a trueset dataset; sources are carried over unchanged and
+//     copies keep their source's split, group and stratum.
+//
+// augment imports manifest (and internal/yamlnode) only, never gen.
 package augment
