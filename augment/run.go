@@ -229,7 +229,7 @@ func (in *input) copyOriginal(rec *manifest.Record, w *manifest.Writer) (int64, 
 		if got := manifest.SHA256Hex(b); got != rec.SHA256[f[0]] {
 			return n, fmt.Errorf("%s: SHA-256 %s, the record says %s; run trueset verify on the input", filepath.Join(in.dir, f[1]), got, rec.SHA256[f[0]])
 		}
-		if err := manifest.WriteFileAtomic(filepath.Join(w.Dir, f[1]), b); err != nil {
+		if err := w.WriteRaw(f[1], b); err != nil {
 			return n, err
 		}
 		n += int64(len(b))

@@ -27,6 +27,8 @@ type RunOptions struct {
 	RequireCoverage bool   // also set by the recipe's split.require_coverage
 	Shard, Shards   int    // render only shard Shard of Shards (Shards 0 = the whole set)
 	Force           bool
+	Resume          bool          // continue an interrupted run of the same recipe, seed and options in Out
+	FS              manifest.FS   // nil = the real file system
 	Version         string
 	Progress        func(done, total int) // called from one goroutine, in order
 }
@@ -34,6 +36,7 @@ type RunOptions struct {
 // Summary reports a finished run.
 type Summary struct {
 	Samples int
+	Resumed int // samples found complete and kept when resuming
 	Elapsed time.Duration
 	Bytes   int64
 	Splits  manifest.SplitTable
@@ -146,6 +149,7 @@ func Run(ctx context.Context, o RunOptions) (Summary, error) {
 		}
 		lo, hi = ShardRange(o.Shard, o.Shards, o.Count)
 	}
+	first := lo
 	recipeJSON, recipeHash, err := r.RecipeJSON()
 	if err != nil {
 		return Summary{}, err
@@ -177,10 +181,29 @@ func Run(ctx context.Context, o RunOptions) (Summary, error) {
 		Mode: r.Canvas.Mode, Classes: r.ClassTable(), Targets: tnames, TargetDefs: defs, Splits: table,
 	}
 
-	w, err := manifest.Create(o.Out, o.Force)
+	marker, _ := json.Marshal(struct {
+		Run         string `json:"run"`
+		ToolVersion string `json:"tool_version"`
+		Recipe      string `json:"recipe_sha256"`
+		Seed        uint64 `json:"seed"`
+		Count       int    `json:"count"`
+		Splits      string `json:"splits"`
+		Stratify    string `json:"stratify"`
+		Shard       int    `json:"shard"`
+		Shards      int    `json:"shards"`
+	}{"generate", o.Version, recipeHash, o.Seed, o.Count, table.Spec, o.Stratify, o.Shard, o.Shards})
+	co := manifest.CreateOptions{Force: o.Force, FS: o.FS, Marker: marker}
+	var w *manifest.Writer
+	resumed := 0
+	if o.Resume {
+		w, resumed, err = manifest.Resume(o.Out, co, nil)
+	} else {
+		w, err = manifest.CreateWith(o.Out, co)
+	}
 	if err != nil {
 		return Summary{}, err
 	}
+	lo += resumed
 	newProduce := func() manifest.Produce {
 		rd := NewRenderer(r)
 		enc := manifest.NewEncoder()
@@ -194,15 +217,20 @@ func Run(ctx context.Context, o RunOptions) (Summary, error) {
 			return []*manifest.Record{rec}, n, nil
 		}
 	}
-	done, total, firstErr := manifest.RunOrdered(ctx, lo, hi, workers, newProduce, w, o.Progress)
-	sum := Summary{Samples: done, Elapsed: time.Since(start), Bytes: total, Splits: table}
+	progress := o.Progress
+	if progress != nil && resumed > 0 {
+		progress = func(done, total int) { o.Progress(done+resumed, total+resumed) }
+	}
+	done, total, firstErr := manifest.RunOrdered(ctx, lo, hi, workers, newProduce, w, progress)
+	done += resumed
+	sum := Summary{Samples: done, Resumed: resumed, Elapsed: time.Since(start), Bytes: total, Splits: table}
 	if firstErr != nil {
 		w.Abort()
 		return sum, firstErr
 	}
 	var n int64
 	if o.Shards > 0 {
-		n, err = w.FinishShard(&manifest.Shard{Shard: o.Shard, Shards: o.Shards, First: lo, End: hi, Dataset: *d})
+		n, err = w.FinishShard(&manifest.Shard{Shard: o.Shard, Shards: o.Shards, First: first, End: hi, Dataset: *d})
 	} else {
 		n, err = w.Finish(d)
 	}

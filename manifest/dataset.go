@@ -94,30 +94,9 @@ func SHA256Hex(b []byte) string {
 	return hex.EncodeToString(s[:])
 }
 
-// WriteFileAtomic writes b to path through a temporary file in the same folder
-// and renames it into place, so a reader never sees a half-written file.
-func WriteFileAtomic(path string, b []byte) error {
-	dir := filepath.Dir(path)
-	f, err := os.CreateTemp(dir, "."+filepath.Base(path)+".tmp*")
-	if err != nil {
-		return fmt.Errorf("write %s: %w", path, err)
-	}
-	tmp := f.Name()
-	if _, err := f.Write(b); err != nil {
-		f.Close()
-		os.Remove(tmp)
-		return fmt.Errorf("write %s: %w", path, err)
-	}
-	if err := f.Close(); err != nil {
-		os.Remove(tmp)
-		return fmt.Errorf("write %s: %w", path, err)
-	}
-	if err := os.Rename(tmp, path); err != nil {
-		os.Remove(tmp)
-		return fmt.Errorf("write %s: %w", path, err)
-	}
-	return nil
-}
+// WriteFileAtomic writes b to path through a temporary file in the same
+// folder and renames it into place, so a reader never sees a half-written file.
+func WriteFileAtomic(path string, b []byte) error { return writeAtomic(OS, path, b) }
 
 // MarshalRecord encodes one manifest line (without the newline).
 func MarshalRecord(r *Record) ([]byte, error) {

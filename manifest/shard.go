@@ -40,7 +40,10 @@ func (w *Writer) FinishShard(s *Shard) (int64, error) {
 	if err := enc.Encode(s); err != nil {
 		return 0, err
 	}
-	if err := WriteFileAtomic(filepath.Join(w.Dir, ShardFile), buf.Bytes()); err != nil {
+	if err := writeAtomic(w.fs, filepath.Join(w.Dir, ShardFile), buf.Bytes()); err != nil {
+		return 0, err
+	}
+	if err := w.dropMarker(); err != nil {
 		return 0, err
 	}
 	return w.bytes + int64(buf.Len()), nil

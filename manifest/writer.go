@@ -2,47 +2,210 @@ package manifest
 
 import (
 	"bufio"
+	"bytes"
 	"crypto/sha256"
 	"encoding/hex"
+	"encoding/json"
+	"errors"
 	"fmt"
 	"hash"
 	"image"
+	"io"
 	"os"
 	"path/filepath"
+	"strings"
 )
+
+// RunMarkerFile is written when a run starts and removed when it finishes.
+// A folder holding it but no dataset.json is an interrupted run that
+// --resume can continue; its content names the run (recipe or plan hash,
+// seed, count, …) so a resume of anything else is refused.
+const RunMarkerFile = ".trueset-run.json"
 
 // Writer writes one dataset folder: sample files (from any goroutine), then
 // records in index order, then dataset.json, which marks it complete.
 type Writer struct {
-	Dir   string
-	f     *os.File
-	bw    *bufio.Writer
-	sum   hash.Hash
-	bytes int64
+	Dir    string
+	fs     FS
+	f      File
+	bw     *bufio.Writer
+	sum    hash.Hash
+	bytes  int64
+	marker bool
+}
+
+// CreateOptions configures Create and Resume.
+type CreateOptions struct {
+	Force  bool   // write into a folder that is not empty
+	FS     FS     // nil = OS
+	Marker []byte // the run's identity, written to RunMarkerFile; nil = no marker
 }
 
 // Create prepares dir for a new dataset. A folder that already holds files is
 // refused unless force is set.
 func Create(dir string, force bool) (*Writer, error) {
-	if ents, err := os.ReadDir(dir); err == nil && len(ents) > 0 && !force {
+	return CreateWith(dir, CreateOptions{Force: force})
+}
+
+// CreateWith prepares dir for a new dataset with options.
+func CreateWith(dir string, o CreateOptions) (*Writer, error) {
+	fsys := o.FS
+	if fsys == nil {
+		fsys = OS
+	}
+	if ents, err := os.ReadDir(dir); err == nil && len(ents) > 0 && !o.Force {
 		return nil, fmt.Errorf("%s is not empty; choose a new folder or pass --force to write over a previous dataset", dir)
 	}
 	for _, sub := range []string{ImagesDir, MasksDir, InstancesDir} {
-		if err := os.MkdirAll(filepath.Join(dir, sub), 0o755); err != nil {
+		if err := fsys.MkdirAll(filepath.Join(dir, sub), 0o755); err != nil {
 			return nil, err
 		}
 	}
-	// A stale dataset.json would mark a half-written folder complete.
+	// A stale dataset.json would mark a half-written folder complete; it is
+	// removed only when it is a trueset one (--force never deletes files
+	// trueset did not write).
 	for _, name := range []string{DatasetFile, ShardFile} {
-		if err := os.Remove(filepath.Join(dir, name)); err != nil && !os.IsNotExist(err) {
-			return nil, err
+		p := filepath.Join(dir, name)
+		if b, err := os.ReadFile(p); err == nil {
+			var probe struct {
+				Format  string   `json:"format"`
+				Dataset *Dataset `json:"dataset"`
+			}
+			if json.Unmarshal(b, &probe) != nil || (probe.Format != Format && probe.Dataset == nil) {
+				return nil, fmt.Errorf("%s is not a trueset file; move it away before writing a dataset into %s", p, dir)
+			}
+			if err := fsys.Remove(p); err != nil {
+				return nil, err
+			}
 		}
 	}
-	f, err := os.Create(filepath.Join(dir, ManifestFile))
+	w := &Writer{Dir: dir, fs: fsys, sum: sha256.New()}
+	if o.Marker != nil {
+		if err := writeAtomic(fsys, filepath.Join(dir, RunMarkerFile), o.Marker); err != nil {
+			return nil, err
+		}
+		w.marker = true
+	}
+	f, err := fsys.OpenFile(filepath.Join(dir, ManifestFile), os.O_RDWR|os.O_CREATE|os.O_TRUNC, 0o644)
 	if err != nil {
 		return nil, err
 	}
-	return &Writer{Dir: dir, f: f, bw: bufio.NewWriterSize(f, 1<<16), sum: sha256.New()}, nil
+	w.f, w.bw = f, bufio.NewWriterSize(f, 1<<16)
+	return w, nil
+}
+
+// ErrComplete is returned by Resume for a folder that is already finished.
+var ErrComplete = errors.New("the dataset is already complete (dataset.json is there); nothing to resume")
+
+// Resume reopens an interrupted run in dir. The folder's run marker must
+// equal o.Marker. Leftover temporary files are removed; manifest.jsonl is
+// cut back to its longest prefix of complete records whose files are all
+// present with their SHA-256, then to keep(n) records of those n (so a
+// caller can cut back to a whole job). It returns the Writer, positioned to
+// append, and the number of records kept.
+func Resume(dir string, o CreateOptions, keep func(n int) int) (*Writer, int, error) {
+	fsys := o.FS
+	if fsys == nil {
+		fsys = OS
+	}
+	for _, name := range []string{DatasetFile, ShardFile} {
+		if _, err := os.Stat(filepath.Join(dir, name)); err == nil {
+			return nil, 0, ErrComplete
+		}
+	}
+	mp := filepath.Join(dir, RunMarkerFile)
+	got, err := os.ReadFile(mp)
+	if err != nil {
+		return nil, 0, fmt.Errorf("%s holds no interrupted trueset run (%s is missing); start a new run instead", dir, RunMarkerFile)
+	}
+	if !bytes.Equal(bytes.TrimSpace(got), bytes.TrimSpace(o.Marker)) {
+		return nil, 0, fmt.Errorf("%s was started as a different run:\n  there: %s\n  now:   %s\nresume with the same recipe, seed and options, or write to a new folder", dir, bytes.TrimSpace(got), bytes.TrimSpace(o.Marker))
+	}
+	if err := removeTemps(fsys, dir); err != nil {
+		return nil, 0, err
+	}
+	for _, sub := range []string{ImagesDir, MasksDir, InstancesDir} {
+		if err := fsys.MkdirAll(filepath.Join(dir, sub), 0o755); err != nil {
+			return nil, 0, err
+		}
+	}
+	path := filepath.Join(dir, ManifestFile)
+	data, err := os.ReadFile(path)
+	if err != nil && !os.IsNotExist(err) {
+		return nil, 0, err
+	}
+	var ends []int // byte offset after each good record
+	off := 0
+	for off < len(data) {
+		nl := bytes.IndexByte(data[off:], '\n')
+		if nl < 0 {
+			break // a torn last line
+		}
+		line := data[off : off+nl]
+		var rec Record
+		if json.Unmarshal(line, &rec) != nil || !filesIntact(dir, &rec) {
+			break
+		}
+		off += nl + 1
+		ends = append(ends, off)
+	}
+	n := len(ends)
+	if keep != nil {
+		n = keep(n)
+	}
+	cut := 0
+	if n > 0 {
+		cut = ends[n-1]
+	}
+	f, err := fsys.OpenFile(path, os.O_RDWR|os.O_CREATE, 0o644)
+	if err != nil {
+		return nil, 0, err
+	}
+	if err := f.Truncate(int64(cut)); err != nil {
+		f.Close()
+		return nil, 0, fmt.Errorf("truncate %s: %w", path, err)
+	}
+	if _, err := f.Seek(int64(cut), io.SeekStart); err != nil {
+		f.Close()
+		return nil, 0, err
+	}
+	w := &Writer{Dir: dir, fs: fsys, f: f, bw: bufio.NewWriterSize(f, 1<<16), sum: sha256.New(), bytes: int64(cut), marker: true}
+	w.sum.Write(data[:cut])
+	return w, n, nil
+}
+
+// filesIntact reports whether a record's three files exist inside dir and
+// match their checksums.
+func filesIntact(dir string, r *Record) bool {
+	for _, f := range [][2]string{{"image", r.Image}, {"mask", r.Mask}, {"instances", r.Instances}} {
+		if !SafeRel(f[1]) {
+			return false
+		}
+		b, err := os.ReadFile(filepath.Join(dir, f[1]))
+		if err != nil || SHA256Hex(b) != r.SHA256[f[0]] {
+			return false
+		}
+	}
+	return true
+}
+
+// removeTemps deletes the temporary files an interrupted run left behind
+// (names written by writeAtomic: ".NAME.tmp…"); nothing else.
+func removeTemps(fsys FS, dir string) error {
+	for _, sub := range []string{".", ImagesDir, MasksDir, InstancesDir} {
+		ents, err := os.ReadDir(filepath.Join(dir, sub))
+		if err != nil {
+			continue
+		}
+		for _, e := range ents {
+			if n := e.Name(); !e.IsDir() && strings.HasPrefix(n, ".") && strings.Contains(n, ".tmp") {
+				if err := fsys.Remove(filepath.Join(dir, sub, n)); err != nil {
+					return err
+				}
+			}
+		}
+	}
+	return nil
 }
 
 // WriteFiles encodes a sample's image, semantic mask and instance mask as
@@ -62,7 +225,7 @@ func (w *Writer) WriteFiles(rec *Record, enc *Encoder, img, mask, inst image.Ima
 		if err != nil {
 			return n, fmt.Errorf("encode %s: %w", it.rel, err)
 		}
-		if err := WriteFileAtomic(filepath.Join(w.Dir, it.rel), b); err != nil {
+		if err := writeAtomic(w.fs, filepath.Join(w.Dir, it.rel), b); err != nil {
 			return n, err
 		}
 		rec.SHA256[it.key] = SHA256Hex(b)
@@ -81,7 +244,23 @@ func (w *Writer) Append(rec *Record) error {
 	w.sum.Write(b)
 	w.bytes += int64(len(b))
 	if _, err := w.bw.Write(b); err != nil {
-		return fmt.Errorf("write %s: %w", filepath.Join(w.Dir, ManifestFile), err)
+		return fmt.Errorf("write %s: %w", filepath.Join(w.Dir, ManifestFile), unwrapPath(err))
+	}
+	return nil
+}
+
+// WriteRaw writes b to rel inside the dataset atomically (files carried over
+// byte for byte).
+func (w *Writer) WriteRaw(rel string, b []byte) error {
+	return writeAtomic(w.fs, filepath.Join(w.Dir, rel), b)
+}
+
+func (w *Writer) dropMarker() error {
+	if !w.marker {
+		return nil
+	}
+	if err := w.fs.Remove(filepath.Join(w.Dir, RunMarkerFile)); err != nil && !os.IsNotExist(err) {
+		return err
 	}
 	return nil
 }
@@ -96,7 +275,7 @@ func (w *Writer) flush() error {
 	p := filepath.Join(w.Dir, ManifestFile)
 	if err := w.bw.Flush(); err != nil {
 		w.f.Close()
-		return fmt.Errorf("write %s: %w", p, err)
+		return fmt.Errorf("write %s: %w", p, unwrapPath(err))
 	}
 	if err := w.f.Sync(); err != nil {
 		w.f.Close()
@@ -120,7 +299,10 @@ func (w *Writer) Finish(d *Dataset) (int64, error) {
 	if err != nil {
 		return 0, err
 	}
-	if err := WriteFileAtomic(filepath.Join(w.Dir, DatasetFile), b); err != nil {
+	if err := writeAtomic(w.fs, filepath.Join(w.Dir, DatasetFile), b); err != nil {
+		return 0, err
+	}
+	if err := w.dropMarker(); err != nil {
 		return 0, err
 	}
 	return w.bytes + int64(len(b)), nil

@@ -7,8 +7,10 @@ import (
 	"io"
 	"os"
 	"os/signal"
+	"path/filepath"
 	"runtime"
 	"strconv"
+	"strings"
 	"syscall"
 	"time"
 
@@ -34,6 +36,7 @@ type generateOptions struct {
 	shard   string
 	shards  int
 	force   bool
+	resume  bool
 	quiet   bool
 }
 
@@ -92,7 +95,8 @@ The same tool version, recipe and seed give byte-identical files whatever
 	f.BoolVar(&o.cover, "require-coverage", false, "fail if any split lacks any stratum")
 	f.StringVar(&o.shard, "shard", "", "render only shard I of N, as I/N (0-based)")
 	f.IntVar(&o.shards, "shards", 0, "the shard count N when the index comes from JOB_COMPLETION_INDEX")
-	f.BoolVar(&o.force, "force", false, "write into a folder that is not empty")
+	f.BoolVar(&o.force, "force", false, "write into a folder that is not empty (files trueset did not write are never deleted)")
+	f.BoolVar(&o.resume, "resume", false, "continue an interrupted run in --out (same recipe, seed and options); the result equals an uninterrupted run")
 	f.BoolVarP(&o.quiet, "quiet", "q", false, "no progress bar and no summary")
 	return cmd
 }
@@ -146,8 +150,14 @@ func runGenerate(ctx context.Context, o *generateOptions, stdout, stderr io.Writ
 	}
 	// A folder that already holds files is the caller's mistake, not a
 	// failure while working: refuse it before anything is written.
-	if !o.force {
+	if o.resume && o.force {
+		return usagef("give --resume or --force, not both")
+	}
+	if !o.force && !o.resume {
 		if ents, err := os.ReadDir(o.out); err == nil && len(ents) > 0 {
+			if _, err := os.Stat(filepath.Join(o.out, manifest.RunMarkerFile)); err == nil {
+				return usagef("--out %s holds an interrupted run; add --resume to continue it, or --force to start again", o.out)
+			}
 			return usagef("--out %s is not empty; choose a new folder or pass --force to write over a previous dataset", o.out)
 		}
 	}
@@ -173,7 +183,7 @@ func runGenerate(ctx context.Context, o *generateOptions, stdout, stderr io.Writ
 	sum, err := gen.Run(ctx, gen.RunOptions{
 		Recipe: r, Out: o.out, Count: o.count, Seed: o.seed, Workers: o.workers,
 		Splits: o.split, Stratify: o.strat, RequireCoverage: o.cover,
-		Shard: shard, Shards: shards, Force: o.force, Version: version,
+		Shard: shard, Shards: shards, Force: o.force, Resume: o.resume, Version: version,
 		Progress: func(done, total int) {
 			if bar != nil {
 				bar.Set(done)
@@ -188,8 +198,12 @@ func runGenerate(ctx context.Context, o *generateOptions, stdout, stderr io.Writ
 		printSplitTable(stderr, sum.Splits)
 		return fmt.Errorf("%w; nothing was written", err)
 	}
+	if errors.Is(err, manifest.ErrComplete) {
+		fmt.Fprintf(stdout, "%s: %v\n", o.out, err)
+		return nil
+	}
 	if err != nil {
-		return fmt.Errorf("%s: %w (the folder has no dataset.json, so it is visibly incomplete)", o.out, err)
+		return interrupted(o.out, sum.Samples, err, stderr)
 	}
 	if !o.quiet {
 		secs := sum.Elapsed.Seconds()
@@ -197,12 +211,39 @@ func runGenerate(ctx context.Context, o *generateOptions, stdout, stderr io.Writ
 		if shards > 0 {
 			what = fmt.Sprintf("samples (shard %d/%d%s)", shard, shards, from)
 		}
+		if sum.Resumed > 0 {
+			what += fmt.Sprintf(", %d of them kept from the interrupted run", sum.Resumed)
+		}
 		fmt.Fprintf(stdout, "wrote %d %s of %s to %s in %.2fs (%.0f samples/s, %s)\n",
-			sum.Samples, what, r.Name, o.out, secs, float64(sum.Samples)/secs, humanBytes(sum.Bytes))
+			sum.Samples, what, r.Name, o.out, secs, float64(sum.Samples-sum.Resumed)/secs, humanBytes(sum.Bytes))
 		printSplitTable(stdout, sum.Splits)
 	}
 	return nil
 }
+
+// interrupted explains a run that stopped early: the folder has no
+// dataset.json, so it is visibly incomplete, and the same command with
+// --resume continues it.
+func interrupted(out string, done int, err error, stderr io.Writer) error {
+	args := os.Args[1:]
+	has := false
+	for _, a := range args {
+		if a == "--resume" {
+			has = true
+		}
+	}
+	if !has {
+		args = append(args, "--resume")
+	}
+	if errors.Is(err, context.Canceled) {
+		fmt.Fprintf(stderr, "trueset: interrupted after %d samples; %s has no dataset.json yet. Resume with:\n  trueset %s\n", done, out, strings.Join(args, " "))
+		return errInterrupted
+	}
+	return fmt.Errorf("%s: %w (the folder has no dataset.json, so it is visibly incomplete; after fixing the cause, resume with: trueset %s)", out, err, strings.Join(args, " "))
+}
+
+// errInterrupted is a stop by SIGINT or SIGTERM: exit code 1, message already printed.
+var errInterrupted = errors.New("interrupted")
 
 // shardFromFlagsOrEnv returns the shard to render: --shard I/N first, else a
 // Kubernetes Indexed Job's JOB_COMPLETION_INDEX (count from --shards), else a

@@ -80,7 +80,7 @@ func run(args []string, stdout, stderr io.Writer) int {
 	root := newRoot(stdout, stderr)
 	root.SetArgs(args)
 	err := root.Execute()
-	if err != nil {
+	if err != nil && err != errInterrupted {
 		fmt.Fprintln(stderr, "trueset:", err)
 	}
 	return exitCode(err)
