@@ -1,0 +1,1046 @@
+package augment
+
+// Reader for a user's own "plain labeled folder":
+//
+//	FOLDER/images/<stem>.<png|jpg|jpeg|bmp|tif|tiff|webp>
+//	FOLDER/masks/<stem>.png      semantic mask: indexed or 8-bit gray PNG, value = class id
+//	FOLDER/instances/<stem>.png  optional: 16- or 8-bit gray PNG, value = instance id, 0 = none
+//	FOLDER/labels.csv            optional: header row with an "id" column (the stem) and targets
+//	FOLDER/classes.json          optional: [{"id": 1, "name": "leaf", "colour": [r,g,b],
+//	                                         "flip": false, "max_rotate": 15}, ...]
+//
+// Everything is checked before anything is returned: a folder either reads
+// completely or gives one error that names the file (and, where it helps, the
+// value, the pixel, the row or the column) and says what is wrong.
+//
+// Conventions beyond the layout above:
+//   - Names starting with "." (.DS_Store, editor swap files) are skipped in the
+//     three sub-folders; any other entry must be a file of the expected kind.
+//     Extensions are matched without regard to case (A.PNG is stem "A").
+//   - An image's format is taken from its content, not its extension (a PNG
+//     named .jpg reads as a PNG); masks and instances must be PNG content.
+//   - Every file's header is read with image.DecodeConfig first and a file
+//     whose width·height exceeds the pixel budget is refused before any pixel
+//     is decoded, so a decompression bomb costs a header read.
+//   - Mask value 255 (manifest.IgnoreID) means "no label here": it is not a
+//     class and never belongs to an instance.
+//   - Given instance files are used as they are; every instance's pixels must
+//     lie on one nonzero class. Mask pixels of a class with instance 0 are
+//     allowed (regions nobody split into objects) and belong to no object.
+//   - labels.csv cells are trimmed of surrounding spaces; a UTF-8 byte-order
+//     mark before the header is dropped.
+
+import (
+	"bufio"
+	"bytes"
+	"encoding/csv"
+	"encoding/json"
+	"errors"
+	"fmt"
+	"image"
+	"image/color"
+	"image/jpeg"
+	"image/png"
+	"io"
+	"io/fs"
+	"math"
+	"os"
+	"path/filepath"
+	"sort"
+	"strconv"
+	"strings"
+
+	"golang.org/x/image/bmp"
+	"golang.org/x/image/tiff"
+	_ "golang.org/x/image/webp" // registers the WebP decoder (VP8 and VP8L)
+
+	"github.com/trueset/trueset/manifest"
+)
+
+// Source is one labeled input sample.
+type Source struct {
+	ID        string                    // the file stem
+	Image     *Image                    // working image (augment/image.go)
+	Mask      *image.Paletted           // class ids; palette = manifest.Palette(classes), shared by all sources: do not modify it
+	Instances *image.Gray16             // instance ids (from instances/ or connected components)
+	Objects   []manifest.Object         // measured from Instances, sorted by instance id
+	Targets   map[string]manifest.Value // from labels.csv; empty (not nil) without it
+}
+
+// Folder is a plain labeled folder read into memory, sources sorted by ID.
+type Folder struct {
+	Dir string
+	// Classes has id 0 (background) first, then ascending ids. From
+	// classes.json when present (background added if it does not list id 0);
+	// otherwise "class-<id>" for every id found in the masks, coloured from a
+	// fixed palette of distinct colours (golden-angle hues, see
+	// folderClassColour).
+	Classes []manifest.Class
+	// Invariance holds the classes whose classes.json entry declares flip or
+	// max_rotate. A class absent from the map keeps its label under any
+	// transform.
+	Invariance  map[int]Invariance
+	Sources     []*Source
+	TargetNames []string // labels.csv columns other than id, in file order
+}
+
+// Invariance says which geometric transforms keep a class's label true.
+// Flip true means mirror images keep the label (the default when classes.json
+// does not say "flip"). MaxRotate is the largest rotation in degrees that keeps
+// the label; MaxRotate < 0 means no limit (the default when classes.json does
+// not say "max_rotate"), 0 means no rotation at all.
+type Invariance struct {
+	Flip      bool
+	MaxRotate float64
+}
+
+// Limits of a plain folder.
+const (
+	// maxFolderSources is the most images a plain folder may hold.
+	maxFolderSources = 1_000_000
+	// maxFolderClassID is the largest class id: masks are 8-bit and 255 is
+	// manifest.IgnoreID.
+	maxFolderClassID = 254
+	// folderMaxInstanceID is the largest id a 16-bit instance mask can hold.
+	folderMaxInstanceID = 65535
+)
+
+// File and folder names of a plain folder (images/, masks/ and instances/ are
+// manifest.ImagesDir, MasksDir and InstancesDir).
+const (
+	folderLabelsFile  = "labels.csv"
+	folderClassesFile = "classes.json"
+)
+
+// folderImageExts are the image extensions read from images/ (lower case).
+var folderImageExts = map[string]bool{
+	".png": true, ".jpg": true, ".jpeg": true, ".bmp": true,
+	".tif": true, ".tiff": true, ".webp": true,
+}
+
+const folderImagePattern = "<stem>.<png|jpg|jpeg|bmp|tif|tiff|webp>"
+
+// folderFormats are the image.DecodeConfig format names we accept; anything
+// else registered in the binary (say, GIF) is refused as an unknown format.
+var folderFormats = map[string]bool{"png": true, "jpeg": true, "bmp": true, "tiff": true, "webp": true}
+
+// IsPlainFolder reports whether dir has images/ and masks/ folders and no
+// dataset.json (a folder with dataset.json is a trueset dataset).
+func IsPlainFolder(dir string) bool {
+	if _, err := os.Lstat(filepath.Join(dir, manifest.DatasetFile)); !errors.Is(err, fs.ErrNotExist) {
+		return false
+	}
+	return folderIsDir(filepath.Join(dir, manifest.ImagesDir)) && folderIsDir(filepath.Join(dir, manifest.MasksDir))
+}
+
+func folderIsDir(p string) bool {
+	st, err := os.Stat(p)
+	return err == nil && st.IsDir()
+}
+
+// ReadFolder reads a plain labeled folder. maxPixels bounds width·height of
+// every image, mask and instance file; it must be positive.
+func ReadFolder(dir string, maxPixels int) (*Folder, error) {
+	if maxPixels <= 0 {
+		return nil, fmt.Errorf("read %s: the pixel budget must be positive, got %d", dir, maxPixels)
+	}
+	if _, err := os.Lstat(filepath.Join(dir, manifest.DatasetFile)); !errors.Is(err, fs.ErrNotExist) {
+		return nil, fmt.Errorf("%s: has %s: it is a trueset dataset, not a plain labeled folder", dir, manifest.DatasetFile)
+	}
+	imagesDir := filepath.Join(dir, manifest.ImagesDir)
+	masksDir := filepath.Join(dir, manifest.MasksDir)
+	instDir := filepath.Join(dir, manifest.InstancesDir)
+	for _, d := range []string{imagesDir, masksDir} {
+		if !folderIsDir(d) {
+			return nil, fmt.Errorf("%s: missing folder: a plain labeled folder needs %s/ and %s/", d, manifest.ImagesDir, manifest.MasksDir)
+		}
+	}
+
+	images, err := folderList(imagesDir, func(ext string) bool { return folderImageExts[ext] },
+		"an image (.png, .jpg, .jpeg, .bmp, .tif, .tiff or .webp)", folderImagePattern)
+	if err != nil {
+		return nil, err
+	}
+	if len(images) == 0 {
+		return nil, fmt.Errorf("%s: no images", imagesDir)
+	}
+	if err := folderCaseClash(imagesDir, images); err != nil {
+		return nil, err
+	}
+	isPNG := func(ext string) bool { return ext == ".png" }
+	masks, err := folderList(masksDir, isPNG, "a PNG mask (.png)", "<stem>.png")
+	if err != nil {
+		return nil, err
+	}
+	var insts map[string]string
+	if _, err := os.Stat(instDir); err == nil {
+		if !folderIsDir(instDir) {
+			return nil, fmt.Errorf("%s: not a folder", instDir)
+		}
+		if insts, err = folderList(instDir, isPNG, "a PNG instance mask (.png)", "<stem>.png"); err != nil {
+			return nil, err
+		}
+	}
+	stems := folderSortedKeys(images)
+	if err := folderPair(imagesDir, images, masksDir, masks, instDir, insts); err != nil {
+		return nil, err
+	}
+
+	// The small text files first, so a typo there costs no decoding.
+	classes, inv, err := readFolderClasses(filepath.Join(dir, folderClassesFile))
+	if err != nil {
+		return nil, err
+	}
+	var targetNames []string
+	targets := map[string]map[string]manifest.Value{}
+	lp := filepath.Join(dir, folderLabelsFile)
+	if _, err := os.Stat(lp); err == nil {
+		if targetNames, targets, err = readFolderLabels(lp, images); err != nil {
+			return nil, err
+		}
+	} else if !errors.Is(err, fs.ErrNotExist) {
+		return nil, err
+	}
+	known := map[int]bool{}
+	for _, c := range classes {
+		known[c.ID] = true
+	}
+
+	f := &Folder{Dir: dir, Invariance: inv, TargetNames: targetNames}
+	var seen [256]bool // class ids found in the masks
+	classOf := make([]int32, folderMaxInstanceID+1)
+	where := make([]int32, folderMaxInstanceID+1)
+	for _, stem := range stems {
+		s, err := readFolderSource(folderSourceFiles{
+			stem:      stem,
+			image:     filepath.Join(imagesDir, images[stem]),
+			mask:      filepath.Join(masksDir, masks[stem]),
+			instances: folderOptionalPath(instDir, insts[stem]),
+		}, maxPixels, classes != nil, known, &seen, classOf, where)
+		if err != nil {
+			return nil, err
+		}
+		if t := targets[stem]; t != nil {
+			s.Targets = t
+		}
+		f.Sources = append(f.Sources, s)
+	}
+
+	if classes == nil {
+		classes = []manifest.Class{{ID: 0, Name: "background", Colour: folderClassColour(0)}}
+		for id := 1; id <= maxFolderClassID; id++ {
+			if seen[id] {
+				classes = append(classes, manifest.Class{ID: id, Name: fmt.Sprintf("class-%d", id), Colour: folderClassColour(id)})
+			}
+		}
+	}
+	f.Classes = classes
+	names := map[int]string{}
+	for _, c := range classes {
+		names[c.ID] = c.Name
+	}
+	pal := manifest.Palette(classes)
+	for _, s := range f.Sources {
+		s.Mask.Palette = pal
+		for i := range s.Objects {
+			s.Objects[i].ClassName = names[s.Objects[i].Class]
+		}
+	}
+	return f, nil
+}
+
+func folderOptionalPath(dir, name string) string {
+	if name == "" {
+		return ""
+	}
+	return filepath.Join(dir, name)
+}
+
+func folderSortedKeys(m map[string]string) []string {
+	keys := make([]string, 0, len(m))
+	for k := range m {
+		keys = append(keys, k)
+	}
+	sort.Strings(keys)
+	return keys
+}
+
+// folderList maps stem → file name for the files of dir. It refuses
+// sub-folders, files whose extension ok rejects, two files with one stem, and
+// more than maxFolderSources files (reading the listing in batches so a huge
+// folder is refused without listing all of it).
+func folderList(dir string, ok func(ext string) bool, want, pattern string) (map[string]string, error) {
+	d, err := os.Open(dir)
+	if err != nil {
+		return nil, err
+	}
+	defer d.Close()
+	out := map[string]string{}
+	for {
+		batch, err := d.ReadDir(4096)
+		for _, e := range batch {
+			name := e.Name()
+			if strings.HasPrefix(name, ".") {
+				continue
+			}
+			p := filepath.Join(dir, name)
+			regular := e.Type().IsRegular()
+			if !regular && !e.IsDir() {
+				st, err := os.Stat(p) // follow symbolic links
+				if err != nil {
+					return nil, err
+				}
+				regular = st.Mode().IsRegular()
+			}
+			if !regular {
+				return nil, fmt.Errorf("%s: not a regular file; %s/ must hold only files named %s", p, filepath.Base(dir), pattern)
+			}
+			ext := filepath.Ext(name)
+			if !ok(strings.ToLower(ext)) {
+				return nil, fmt.Errorf("%s: not %s", p, want)
+			}
+			stem := strings.TrimSuffix(name, ext)
+			if stem == "" {
+				return nil, fmt.Errorf("%s: empty file stem", p)
+			}
+			if prev, dup := out[stem]; dup {
+				return nil, fmt.Errorf("%s and %s: two files with the stem %q; keep one", filepath.Join(dir, prev), p, stem)
+			}
+			out[stem] = name
+			if len(out) > maxFolderSources {
+				return nil, fmt.Errorf("%s: more than %d files; a plain folder holds at most %d samples", dir, maxFolderSources, maxFolderSources)
+			}
+		}
+		if err == io.EOF {
+			return out, nil
+		}
+		if err != nil {
+			return nil, fmt.Errorf("%s: %w", dir, err)
+		}
+	}
+}
+
+// folderCaseClash refuses stems that differ only in letter case: their
+// outputs would overwrite each other on case-insensitive file systems.
+func folderCaseClash(dir string, files map[string]string) error {
+	lower := map[string]string{}
+	for _, stem := range folderSortedKeys(files) {
+		k := strings.ToLower(stem)
+		if prev, ok := lower[k]; ok {
+			return fmt.Errorf("%s and %s: stems differ only in letter case; outputs would collide on case-insensitive file systems",
+				filepath.Join(dir, files[prev]), filepath.Join(dir, files[stem]))
+		}
+		lower[k] = stem
+	}
+	return nil
+}
+
+// folderPair checks that images and masks pair one to one and that every
+// instance file has an image.
+func folderPair(imagesDir string, images map[string]string, masksDir string, masks map[string]string, instDir string, insts map[string]string) error {
+	var noMask []string
+	for _, stem := range folderSortedKeys(images) {
+		if _, ok := masks[stem]; !ok {
+			noMask = append(noMask, stem)
+		}
+	}
+	if len(noMask) > 0 {
+		s := noMask[0]
+		more := ""
+		if len(noMask) > 1 {
+			more = fmt.Sprintf(" (and %d more images without masks)", len(noMask)-1)
+		}
+		return fmt.Errorf("%s: image without a mask: expected %s%s", filepath.Join(imagesDir, images[s]), filepath.Join(masksDir, s+".png"), more)
+	}
+	for _, stem := range folderSortedKeys(masks) {
+		if _, ok := images[stem]; !ok {
+			return fmt.Errorf("%s: mask without an image: no %s", filepath.Join(masksDir, masks[stem]), filepath.Join(imagesDir, stem+".<png|jpg|jpeg|bmp|tif|tiff|webp>"))
+		}
+	}
+	for _, stem := range folderSortedKeys(insts) {
+		if _, ok := images[stem]; !ok {
+			return fmt.Errorf("%s: instance mask without an image: no %s", filepath.Join(instDir, insts[stem]), filepath.Join(imagesDir, stem+".<png|jpg|jpeg|bmp|tif|tiff|webp>"))
+		}
+	}
+	return nil
+}
+
+// folderClassEntry is one classes.json entry as written; pointers tell an
+// absent field from a zero one.
+type folderClassEntry struct {
+	ID        *int     `json:"id"`
+	Name      *string  `json:"name"`
+	Colour    []int    `json:"colour"`
+	Flip      *bool    `json:"flip"`
+	MaxRotate *float64 `json:"max_rotate"`
+}
+
+// readFolderClasses reads classes.json; a missing file gives nil classes.
+func readFolderClasses(p string) ([]manifest.Class, map[int]Invariance, error) {
+	inv := map[int]Invariance{}
+	b, err := os.ReadFile(p)
+	if errors.Is(err, fs.ErrNotExist) {
+		return nil, inv, nil
+	}
+	if err != nil {
+		return nil, nil, err
+	}
+	dec := json.NewDecoder(bytes.NewReader(b))
+	dec.DisallowUnknownFields()
+	var entries []folderClassEntry
+	if t := bytes.TrimSpace(b); len(t) == 0 || t[0] != '[' {
+		return nil, nil, fmt.Errorf("%s: not a JSON list; expected [{\"id\": 1, \"name\": \"leaf\", \"colour\": [r, g, b], \"flip\": false, \"max_rotate\": 15}, ...]", p)
+	}
+	if err := dec.Decode(&entries); err != nil {
+		var syn *json.SyntaxError
+		var typ *json.UnmarshalTypeError
+		switch {
+		case errors.As(err, &syn):
+			return nil, nil, fmt.Errorf("%s:%d: %v", p, folderLine(b, syn.Offset), err)
+		case errors.As(err, &typ):
+			return nil, nil, fmt.Errorf("%s:%d: %q must be %s, not a JSON %s", p, folderLine(b, typ.Offset), typ.Field, folderJSONKind(typ.Type.String()), typ.Value)
+		}
+		return nil, nil, fmt.Errorf("%s: %v (the fields of a class are \"id\", \"name\", \"colour\", \"flip\" and \"max_rotate\")", p, err)
+	}
+	if dec.More() {
+		return nil, nil, fmt.Errorf("%s: data after the list of classes", p)
+	}
+	byID := map[int]manifest.Class{}
+	names := map[string]int{}
+	for i, e := range entries {
+		at := fmt.Sprintf("%s: entry %d", p, i+1)
+		if e.ID == nil {
+			return nil, nil, fmt.Errorf("%s: no \"id\"", at)
+		}
+		id := *e.ID
+		at = fmt.Sprintf("%s (id %d)", at, id)
+		switch {
+		case id == manifest.IgnoreID:
+			return nil, nil, fmt.Errorf("%s: id 255 is the ignore value (\"no label here\"), not a class", at)
+		case id < 0 || id > maxFolderClassID:
+			return nil, nil, fmt.Errorf("%s: class ids are 0..%d (8-bit masks; 255 = ignore)", at, maxFolderClassID)
+		}
+		if _, dup := byID[id]; dup {
+			return nil, nil, fmt.Errorf("%s: id %d is listed twice", at, id)
+		}
+		c := manifest.Class{ID: id, Name: fmt.Sprintf("class-%d", id), Colour: folderClassColour(id)}
+		if id == 0 {
+			c.Name = "background"
+		}
+		if e.Name != nil {
+			c.Name = strings.TrimSpace(*e.Name)
+			if c.Name == "" {
+				return nil, nil, fmt.Errorf("%s: empty name", at)
+			}
+		}
+		if prev, dup := names[c.Name]; dup {
+			return nil, nil, fmt.Errorf("%s: name %q is already class %d", at, c.Name, prev)
+		}
+		names[c.Name] = id
+		if e.Colour != nil {
+			if len(e.Colour) != 3 {
+				return nil, nil, fmt.Errorf("%s: colour must be [r, g, b], got %d numbers", at, len(e.Colour))
+			}
+			for k, v := range e.Colour {
+				if v < 0 || v > 255 {
+					return nil, nil, fmt.Errorf("%s: colour component %d is %d, outside 0..255", at, k+1, v)
+				}
+				c.Colour[k] = uint8(v)
+			}
+		}
+		if e.Flip != nil || e.MaxRotate != nil {
+			r := Invariance{Flip: true, MaxRotate: -1}
+			if e.Flip != nil {
+				r.Flip = *e.Flip
+			}
+			if e.MaxRotate != nil {
+				m := *e.MaxRotate
+				if math.IsNaN(m) || m < 0 || m > 180 {
+					return nil, nil, fmt.Errorf("%s: max_rotate is %v; it must be 0..180 degrees (leave it out for no limit)", at, m)
+				}
+				r.MaxRotate = m
+			}
+			inv[id] = r
+		}
+		byID[id] = c
+	}
+	if _, ok := byID[0]; !ok {
+		if prev, dup := names["background"]; dup {
+			return nil, nil, fmt.Errorf("%s: class %d is named \"background\", the name of id 0", p, prev)
+		}
+		byID[0] = manifest.Class{ID: 0, Name: "background", Colour: folderClassColour(0)}
+	}
+	classes := make([]manifest.Class, 0, len(byID))
+	for _, c := range byID {
+		classes = append(classes, c)
+	}
+	sort.Slice(classes, func(i, j int) bool { return classes[i].ID < classes[j].ID })
+	return classes, inv, nil
+}
+
+// folderLine is the 1-based line of byte offset off in b.
+func folderLine(b []byte, off int64) int {
+	if off > int64(len(b)) {
+		off = int64(len(b))
+	}
+	return 1 + bytes.Count(b[:off], []byte("\n"))
+}
+
+// folderJSONKind names, for people, the JSON kind a Go field type wants.
+func folderJSONKind(goType string) string {
+	switch {
+	case strings.Contains(goType, "int"):
+		return "a whole number"
+	case strings.Contains(goType, "float"):
+		return "a number"
+	case strings.Contains(goType, "bool"):
+		return "true or false"
+	case strings.Contains(goType, "string"):
+		return "a string"
+	case strings.HasPrefix(goType, "[]"):
+		return "a list"
+	}
+	return "an object"
+}
+
+func folderQuoted(ss []string) string {
+	q := make([]string, len(ss))
+	for i, s := range ss {
+		q[i] = strconv.Quote(s)
+	}
+	return strings.Join(q, ", ")
+}
+
+// folderClassColour is the fixed colour of class id when classes.json does not
+// give one: black for background, else a hue stepped by the golden angle
+// (≈137.5°, so neighbouring ids get far-apart hues; common practice for
+// distinct label colours) with saturation and value cycling through two and
+// three levels. Ids 1..254 get 254 distinct colours, none black or white.
+func folderClassColour(id int) [3]uint8 {
+	if id <= 0 {
+		return [3]uint8{0, 0, 0}
+	}
+	k := id - 1
+	h := math.Mod(float64(k)*0.3819660112501051, 1) * 6 // 1 − 1/φ of a turn, in sextants
+	s := [2]float64{0.85, 0.55}[k%2]
+	v := [3]float64{0.95, 0.75, 0.55}[(k/2)%3]
+	i := math.Floor(h)
+	f := h - i
+	p, q, t := v*(1-s), v*(1-s*f), v*(1-s*(1-f))
+	var r, g, b float64
+	switch int(i) % 6 {
+	case 0:
+		r, g, b = v, t, p
+	case 1:
+		r, g, b = q, v, p
+	case 2:
+		r, g, b = p, v, t
+	case 3:
+		r, g, b = p, q, v
+	case 4:
+		r, g, b = t, p, v
+	default:
+		r, g, b = v, p, q
+	}
+	c := func(x float64) uint8 { return uint8(math.Round(x * 255)) }
+	return [3]uint8{c(r), c(g), c(b)}
+}
+
+type folderSourceFiles struct {
+	stem, image, mask, instances string // instances "" = none
+}
+
+// folderFile is an opened file whose header has been read and checked against
+// the pixel budget.
+type folderFile struct {
+	path   string
+	f      *os.File
+	cfg    image.Config
+	format string
+}
+
+// openFolderFile opens p and reads only its header. It refuses an empty file,
+// an unknown format, a corrupt header and a size over maxPixels.
+func openFolderFile(p string, maxPixels int) (*folderFile, error) {
+	f, err := os.Open(p)
+	if err != nil {
+		return nil, err
+	}
+	if st, err := f.Stat(); err == nil && st.Size() == 0 {
+		f.Close()
+		return nil, fmt.Errorf("%s: empty file", p)
+	}
+	cfg, format, err := image.DecodeConfig(bufio.NewReader(f))
+	if err == nil && !folderFormats[format] {
+		err = image.ErrFormat
+	}
+	if err != nil {
+		f.Close()
+		return nil, fmt.Errorf("%s: %s", p, folderDecodeProblem(err))
+	}
+	if cfg.Width <= 0 || cfg.Height <= 0 {
+		f.Close()
+		return nil, fmt.Errorf("%s: corrupt: the header gives an empty size %d×%d", p, cfg.Width, cfg.Height)
+	}
+	if n := int64(cfg.Width) * int64(cfg.Height); n > int64(maxPixels) {
+		f.Close()
+		return nil, fmt.Errorf("%s: too large: the header says %d×%d = %d pixels, over the budget of %d pixels; not decoded",
+			p, cfg.Width, cfg.Height, n, maxPixels)
+	}
+	return &folderFile{path: p, f: f, cfg: cfg, format: format}, nil
+}
+
+func (ff *folderFile) close() {
+	if ff != nil {
+		ff.f.Close()
+	}
+}
+
+func (ff *folderFile) size() string { return fmt.Sprintf("%d×%d", ff.cfg.Width, ff.cfg.Height) }
+
+// decode decodes the whole file and checks it has the size its header gave.
+func (ff *folderFile) decode() (image.Image, error) {
+	if _, err := ff.f.Seek(0, io.SeekStart); err != nil {
+		return nil, err
+	}
+	m, _, err := image.Decode(bufio.NewReader(ff.f))
+	if err != nil {
+		return nil, fmt.Errorf("%s: %s", ff.path, folderDecodeProblem(err))
+	}
+	if b := m.Bounds(); b.Dx() != ff.cfg.Width || b.Dy() != ff.cfg.Height {
+		return nil, fmt.Errorf("%s: corrupt: the header says %s but the pixels are %d×%d", ff.path, ff.size(), b.Dx(), b.Dy())
+	}
+	return m, nil
+}
+
+// pngKind returns the bit depth and colour type from a PNG's IHDR chunk,
+// which the PNG standard (ISO/IEC 15948 §11.2.2) puts first: 8 signature
+// bytes, length, "IHDR", width, height, bit depth, colour type.
+func (ff *folderFile) pngKind() (depth, colourType byte, err error) {
+	if ff.format != "png" {
+		return 0, 0, fmt.Errorf("%s: %s content; masks and instance masks must be PNG (lossless)", ff.path, strings.ToUpper(ff.format))
+	}
+	var b [26]byte
+	if _, err := ff.f.ReadAt(b[:], 0); err != nil || string(b[12:16]) != "IHDR" {
+		return 0, 0, fmt.Errorf("%s: corrupt: no PNG header chunk", ff.path)
+	}
+	return b[24], b[25], nil
+}
+
+// folderDecodeProblem says in words what a decoder error means.
+func folderDecodeProblem(err error) string {
+	var (
+		pngU  png.UnsupportedError
+		jpegU jpeg.UnsupportedError
+		tiffU tiff.UnsupportedError
+	)
+	switch {
+	case errors.Is(err, image.ErrFormat):
+		return "unknown format: not a PNG, JPEG, BMP, TIFF or WebP file"
+	case errors.Is(err, io.ErrUnexpectedEOF), errors.Is(err, io.EOF):
+		return "truncated: the file ends before the image does"
+	case errors.As(err, &pngU), errors.As(err, &jpegU), errors.As(err, &tiffU), errors.Is(err, bmp.ErrUnsupported):
+		return "unsupported variant of its format: " + err.Error()
+	}
+	return "corrupt: " + err.Error()
+}
+
+func folderColourType(depth, ct byte) string {
+	switch ct {
+	case 0:
+		return fmt.Sprintf("%d-bit gray", depth)
+	case 2:
+		return fmt.Sprintf("%d-bit RGB", depth)
+	case 3:
+		return fmt.Sprintf("%d-bit indexed", depth)
+	case 4:
+		return fmt.Sprintf("%d-bit gray with alpha", depth)
+	case 6:
+		return fmt.Sprintf("%d-bit RGBA", depth)
+	}
+	return fmt.Sprintf("colour type %d", ct)
+}
+
+// readFolderSource reads one image, its mask and its instances. With
+// classesGiven, mask values must be in known; otherwise the values found are
+// added to seen. classOf and where are scratch space of folderMaxInstanceID+1.
+func readFolderSource(files folderSourceFiles, maxPixels int, classesGiven bool, known map[int]bool,
+	seen *[256]bool, classOf, where []int32) (*Source, error) {
+	img, err := openFolderFile(files.image, maxPixels)
+	if err != nil {
+		return nil, err
+	}
+	defer img.close()
+	msk, err := openFolderFile(files.mask, maxPixels)
+	if err != nil {
+		return nil, err
+	}
+	defer msk.close()
+	depth, ct, err := msk.pngKind()
+	if err != nil {
+		return nil, err
+	}
+	if !(ct == 3 || ct == 0 && depth == 8) {
+		hint := ""
+		switch {
+		case ct == 0 && depth == 16:
+			hint = " (16-bit instance ids belong in instances/)"
+		case ct == 0:
+			hint = " (gray below 8 bits is read scaled to 0..255, so its values would not be class ids)"
+		}
+		return nil, fmt.Errorf("%s: the PNG is %s; a semantic mask must be an indexed (paletted) or 8-bit gray PNG whose values are class ids%s",
+			msk.path, folderColourType(depth, ct), hint)
+	}
+	if msk.cfg.Width != img.cfg.Width || msk.cfg.Height != img.cfg.Height {
+		return nil, fmt.Errorf("%s is %s but %s is %s: a mask must have its image's size", msk.path, msk.size(), img.path, img.size())
+	}
+	var inst *folderFile
+	if files.instances != "" {
+		if inst, err = openFolderFile(files.instances, maxPixels); err != nil {
+			return nil, err
+		}
+		defer inst.close()
+		depth, ct, err := inst.pngKind()
+		if err != nil {
+			return nil, err
+		}
+		if ct != 0 || depth != 8 && depth != 16 {
+			return nil, fmt.Errorf("%s: the PNG is %s; an instance mask must be a 16-bit (or 8-bit) gray PNG whose values are instance ids",
+				inst.path, folderColourType(depth, ct))
+		}
+		if inst.cfg.Width != msk.cfg.Width || inst.cfg.Height != msk.cfg.Height {
+			return nil, fmt.Errorf("%s is %s but %s is %s: an instance mask must have its mask's size", inst.path, inst.size(), msk.path, msk.size())
+		}
+	}
+
+	mm, err := msk.decode()
+	if err != nil {
+		return nil, err
+	}
+	w, h := msk.cfg.Width, msk.cfg.Height
+	mask := &image.Paletted{Pix: make([]uint8, w*h), Stride: w, Rect: image.Rect(0, 0, w, h)}
+	switch m := mm.(type) {
+	case *image.Paletted:
+		for y := 0; y < h; y++ {
+			copy(mask.Pix[y*w:(y+1)*w], m.Pix[y*m.Stride:])
+		}
+	case *image.Gray:
+		for y := 0; y < h; y++ {
+			copy(mask.Pix[y*w:(y+1)*w], m.Pix[y*m.Stride:])
+		}
+	default:
+		// Only gray with a tRNS chunk gets here: the colour type was checked.
+		return nil, fmt.Errorf("%s: the gray PNG declares a transparent value (tRNS chunk), so it decodes to %s instead of class ids; remove the tRNS chunk",
+			msk.path, folderModelName(mm.ColorModel()))
+	}
+
+	// Mask values: first pixel of each value, checked against the classes.
+	var first [256]int
+	for i := range first {
+		first[i] = -1
+	}
+	for i, v := range mask.Pix {
+		if first[v] < 0 {
+			first[v] = i
+		}
+	}
+	for v := 0; v < 256; v++ {
+		if first[v] < 0 || v == 0 || v == manifest.IgnoreID {
+			continue
+		}
+		if classesGiven && !known[v] {
+			return nil, fmt.Errorf("%s: value %d (first at pixel x=%d, y=%d) is no class in %s; list it there or use 255 for \"ignore\"",
+				msk.path, v, first[v]%w, first[v]/w, folderClassesFile)
+		}
+		seen[v] = true
+	}
+
+	var ids *image.Gray16
+	var classes []int32 // class per instance id, for components
+	if inst != nil {
+		m, err := inst.decode()
+		if err != nil {
+			return nil, err
+		}
+		ids = image.NewGray16(image.Rect(0, 0, w, h))
+		switch m := m.(type) {
+		case *image.Gray16:
+			for y := 0; y < h; y++ {
+				copy(ids.Pix[y*ids.Stride:(y+1)*ids.Stride], m.Pix[y*m.Stride:])
+			}
+		case *image.Gray:
+			for y := 0; y < h; y++ {
+				for x := 0; x < w; x++ {
+					ids.Pix[y*ids.Stride+2*x+1] = m.Pix[y*m.Stride+x]
+				}
+			}
+		default:
+			return nil, fmt.Errorf("%s: the gray PNG declares a transparent value (tRNS chunk), so it decodes to %s instead of instance ids; remove the tRNS chunk",
+				inst.path, folderModelName(m.ColorModel()))
+		}
+		if classes, err = folderInstanceClasses(ids, mask, classOf, where); err != nil {
+			return nil, fmt.Errorf("%s with %s: %w", inst.path, msk.path, err)
+		}
+	} else {
+		if ids, classes, err = folderComponents(mask); err != nil {
+			return nil, fmt.Errorf("%s: %w; split the objects yourself in %s/%s.png", msk.path, err, manifest.InstancesDir, files.stem)
+		}
+	}
+
+	im, err := img.decode() // last: the label files are checked first
+	if err != nil {
+		return nil, err
+	}
+	stats := manifest.MeasureInstances(ids)
+	objIDs := make([]int, 0, len(stats))
+	for id := range stats {
+		objIDs = append(objIDs, id)
+	}
+	sort.Ints(objIDs)
+	objects := make([]manifest.Object, 0, len(objIDs))
+	for _, id := range objIDs {
+		st := stats[id]
+		objects = append(objects, manifest.Object{
+			Instance: id, Class: int(classes[id]), BBox: st.BBox, Area: st.Area, Visible: 1, Kind: "labeled",
+		})
+	}
+	return &Source{
+		ID:        files.stem,
+		Image:     FromImage(im),
+		Mask:      mask,
+		Instances: ids,
+		Objects:   objects,
+		Targets:   map[string]manifest.Value{},
+	}, nil
+}
+
+func folderModelName(m color.Model) string {
+	switch m {
+	case color.NRGBAModel, color.RGBAModel:
+		return "8-bit colour with alpha"
+	case color.NRGBA64Model, color.RGBA64Model:
+		return "16-bit colour with alpha"
+	}
+	return "colour"
+}
+
+// folderInstanceClasses gives each instance id of a given instance mask the
+// semantic class of its pixels, indexed by id (-1 = absent). It refuses an id
+// on two classes, on background only, or on an ignore pixel. classOf and where
+// are scratch slices of folderMaxInstanceID+1.
+func folderInstanceClasses(ids *image.Gray16, mask *image.Paletted, classOf, where []int32) ([]int32, error) {
+	for i := range classOf {
+		classOf[i] = -1
+	}
+	w := mask.Rect.Dx()
+	for i, c := range mask.Pix {
+		id := int(ids.Pix[2*i])<<8 | int(ids.Pix[2*i+1])
+		if id == 0 {
+			continue
+		}
+		if c == manifest.IgnoreID {
+			return nil, fmt.Errorf("instance %d has pixel x=%d, y=%d where the mask is 255 (ignore); ignore pixels must have instance 0", id, i%w, i/w)
+		}
+		switch prev := classOf[id]; {
+		case prev < 0:
+			classOf[id], where[id] = int32(c), int32(i)
+		case prev != int32(c):
+			p := int(where[id])
+			return nil, fmt.Errorf("instance %d lies on two classes: %d (e.g. pixel x=%d, y=%d) and %d (pixel x=%d, y=%d); an instance must have one class",
+				id, prev, p%w, p/w, c, i%w, i/w)
+		}
+	}
+	for id, c := range classOf {
+		if c == 0 {
+			p := int(where[id])
+			return nil, fmt.Errorf("instance %d lies on background (class 0) only, e.g. pixel x=%d, y=%d", id, p%w, p/w)
+		}
+	}
+	return classOf, nil
+}
+
+// folderComponents labels the 4-connected regions of equal class in a
+// semantic mask (pixels sharing an edge, not just a corner; a common-practice
+// choice for splitting objects that touch diagonally). Background (0) and
+// ignore (255) pixels get instance 0. Ids are 1, 2, … in raster order of each
+// region's first pixel; classes[id] is the region's class (classes[0] = 0).
+// More than 65535 regions is an error: a 16-bit instance mask cannot hold them.
+func folderComponents(mask *image.Paletted) (ids *image.Gray16, classes []int32, err error) {
+	b := mask.Rect
+	w, h := b.Dx(), b.Dy()
+	ids = image.NewGray16(image.Rect(0, 0, w, h))
+	label := make([]uint16, w*h)
+	classes = []int32{0}
+	var stack []int32
+	at := func(i int) uint8 { return mask.Pix[(i/w)*mask.Stride+i%w] }
+	next := 0
+	for i := range label {
+		c := at(i)
+		if c == 0 || c == manifest.IgnoreID || label[i] != 0 {
+			continue
+		}
+		next++
+		if next > folderMaxInstanceID {
+			return nil, nil, fmt.Errorf("more than %d connected regions", folderMaxInstanceID)
+		}
+		classes = append(classes, int32(c))
+		label[i] = uint16(next)
+		stack = append(stack[:0], int32(i))
+		for len(stack) > 0 {
+			j := int(stack[len(stack)-1])
+			stack = stack[:len(stack)-1]
+			x, y := j%w, j/w
+			// The four edge neighbours; -1 where the frame ends.
+			nb := [4]int{-1, -1, -1, -1}
+			if x > 0 {
+				nb[0] = j - 1
+			}
+			if x+1 < w {
+				nb[1] = j + 1
+			}
+			if y > 0 {
+				nb[2] = j - w
+			}
+			if y+1 < h {
+				nb[3] = j + w
+			}
+			for _, k := range nb {
+				if k >= 0 && label[k] == 0 && at(k) == c {
+					label[k] = uint16(next)
+					stack = append(stack, int32(k))
+				}
+			}
+		}
+	}
+	for i, l := range label {
+		ids.Pix[2*i], ids.Pix[2*i+1] = uint8(l>>8), uint8(l)
+	}
+	return ids, classes, nil
+}
+
+// readFolderLabels reads labels.csv for the given stems (stem → image file)
+// and returns the target names in column order and each stem's targets.
+func readFolderLabels(p string, stems map[string]string) ([]string, map[string]map[string]manifest.Value, error) {
+	f, err := os.Open(p)
+	if err != nil {
+		return nil, nil, err
+	}
+	defer f.Close()
+	r := csv.NewReader(bufio.NewReader(f))
+	r.FieldsPerRecord = -1 // checked below with a clearer message
+	header, err := r.Read()
+	if err == io.EOF {
+		return nil, nil, fmt.Errorf("%s: empty: a header row with an \"id\" column is required", p)
+	}
+	if err != nil {
+		return nil, nil, fmt.Errorf("%s: %v", p, err)
+	}
+	header[0] = strings.TrimPrefix(header[0], "\ufeff")
+	idCol := -1
+	cols := map[string]int{}
+	for j, name := range header {
+		name = strings.TrimSpace(name)
+		header[j] = name
+		if name == "" {
+			return nil, nil, fmt.Errorf("%s:1: column %d has no name", p, j+1)
+		}
+		if prev, dup := cols[name]; dup {
+			return nil, nil, fmt.Errorf("%s:1: columns %d and %d are both named %q", p, prev+1, j+1, name)
+		}
+		cols[name] = j
+		if name == "id" {
+			idCol = j
+		}
+	}
+	if idCol < 0 {
+		return nil, nil, fmt.Errorf("%s:1: no \"id\" column in the header (%s); the id column holds each image's file stem", p, strings.Join(header, ","))
+	}
+	type row struct {
+		line  int
+		id    string
+		cells []string
+	}
+	var rows []row
+	lineOf := map[string]int{}
+	for {
+		rec, err := r.Read()
+		if err == io.EOF {
+			break
+		}
+		if err != nil {
+			return nil, nil, fmt.Errorf("%s: %v", p, err)
+		}
+		line, _ := r.FieldPos(0)
+		for j := range rec {
+			rec[j] = strings.TrimSpace(rec[j])
+		}
+		if len(rec) != len(header) {
+			return nil, nil, fmt.Errorf("%s:%d: row has %d fields but the header has %d columns", p, line, len(rec), len(header))
+		}
+		id := rec[idCol]
+		if id == "" {
+			return nil, nil, fmt.Errorf("%s:%d: empty id", p, line)
+		}
+		if _, ok := stems[id]; !ok {
+			return nil, nil, fmt.Errorf("%s:%d: id %q matches no image in %s/", p, line, id, manifest.ImagesDir)
+		}
+		if prev, dup := lineOf[id]; dup {
+			return nil, nil, fmt.Errorf("%s:%d: id %q already has a row on line %d", p, line, id, prev)
+		}
+		lineOf[id] = line
+		for j, cell := range rec {
+			if cell == "" {
+				return nil, nil, fmt.Errorf("%s:%d: column %q is empty for id %q; every cell needs a value", p, line, header[j], id)
+			}
+		}
+		rows = append(rows, row{line, id, rec})
+	}
+	if len(lineOf) < len(stems) {
+		var missing []string
+		for id := range stems {
+			if _, ok := lineOf[id]; !ok {
+				missing = append(missing, id)
+			}
+		}
+		sort.Strings(missing)
+		more := ""
+		if len(missing) > 3 {
+			more = fmt.Sprintf(" and %d more", len(missing)-3)
+			missing = missing[:3]
+		}
+		return nil, nil, fmt.Errorf("%s: no row for %s%s; every image needs a row", p, folderQuoted(missing), more)
+	}
+
+	targets := make(map[string]map[string]manifest.Value, len(rows))
+	for _, rw := range rows {
+		targets[rw.id] = make(map[string]manifest.Value, len(header)-1)
+	}
+	var names []string
+	for j, name := range header {
+		if j == idCol {
+			continue
+		}
+		names = append(names, name)
+		numeric := true
+		nums := make([]float64, len(rows))
+		for i, rw := range rows {
+			v, err := strconv.ParseFloat(rw.cells[j], 64)
+			if err != nil {
+				numeric = false
+				break
+			}
+			nums[i] = v
+		}
+		for i, rw := range rows {
+			if !numeric {
+				targets[rw.id][name] = manifest.Text(rw.cells[j])
+				continue
+			}
+			if math.IsNaN(nums[i]) || math.IsInf(nums[i], 0) {
+				return nil, nil, fmt.Errorf("%s:%d: column %q: %q is not a finite number", p, rw.line, name, rw.cells[j])
+			}
+			targets[rw.id][name] = manifest.Number(nums[i])
+		}
+	}
+	return names, targets, nil
+}
