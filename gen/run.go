@@ -27,8 +27,8 @@ type RunOptions struct {
 	RequireCoverage bool   // also set by the recipe's split.require_coverage
 	Shard, Shards   int    // render only shard Shard of Shards (Shards 0 = the whole set)
 	Force           bool
-	Resume          bool          // continue an interrupted run of the same recipe, seed and options in Out
-	FS              manifest.FS   // nil = the real file system
+	Resume          bool        // continue an interrupted run of the same recipe, seed and options in Out
+	FS              manifest.FS // nil = the real file system
 	Version         string
 	Progress        func(done, total int) // called from one goroutine, in order
 }
