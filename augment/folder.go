@@ -82,6 +82,7 @@ type Folder struct {
 	Invariance  map[int]Invariance
 	Sources     []*Source
 	TargetNames []string // labels.csv columns other than id, in file order
+	Skipped     []string // with ReadFolderSkipping: the sources left out, each with its error
 }
 
 // Invariance says which geometric transforms keep a class's label true.
@@ -141,6 +142,15 @@ func folderIsDir(p string) bool {
 // ReadFolder reads a plain labeled folder. maxPixels bounds width·height of
 // every image, mask and instance file; it must be positive.
 func ReadFolder(dir string, maxPixels int) (*Folder, error) {
+	return ReadFolderSkipping(dir, maxPixels, false)
+}
+
+// ReadFolderSkipping is ReadFolder, but with skip set a source whose image,
+// mask or instances cannot be read (corrupt, truncated, over the pixel
+// budget, mismatched sizes, unknown mask values) is left out and its error
+// listed in Folder.Skipped instead of failing the whole folder. Problems of
+// the folder itself (layout, labels.csv, classes.json) still fail.
+func ReadFolderSkipping(dir string, maxPixels int, skip bool) (*Folder, error) {
 	if maxPixels <= 0 {
 		return nil, fmt.Errorf("read %s: the pixel budget must be positive, got %d", dir, maxPixels)
 	}
@@ -218,6 +228,10 @@ func ReadFolder(dir string, maxPixels int) (*Folder, error) {
 			instances: folderOptionalPath(instDir, insts[stem]),
 		}, maxPixels, classes != nil, known, &seen, classOf, where)
 		if err != nil {
+			if skip {
+				f.Skipped = append(f.Skipped, err.Error())
+				continue
+			}
 			return nil, err
 		}
 		if t := targets[stem]; t != nil {

@@ -28,9 +28,12 @@ type RunOptions struct {
 	Workers          int      // default runtime.NumCPU()
 	AllowLabelChange bool     // run plans that break a class's declared invariance
 	Force            bool
-	MaxPixels        int    // pixel budget per input image; default DefaultMaxPixels
-	SplitSpec        string // plain folders only: how sources are dealt to splits
-	Stratify         string // plain folders only: stratification key
+	MaxPixels        int         // pixel budget per input image; default DefaultMaxPixels
+	SplitSpec        string      // plain folders only: how sources are dealt to splits
+	Stratify         string      // plain folders only: stratification key
+	OnError          string      // "fail" (default): a bad source stops the run; "skip": it is left out and listed
+	Resume           bool        // continue an interrupted run of the same input, plan, seed and options in Out
+	FS               manifest.FS // nil = the real file system
 	Version          string
 	Progress         func(done, total int)
 }
@@ -44,6 +47,8 @@ const MaxCopies = 1000
 // Summary reports a finished run.
 type Summary struct {
 	Sources, Copies, Records int
+	Resumed                  int      // records kept from the interrupted run
+	Skipped                  []string // sources left out by OnError "skip", with their errors
 	Elapsed                  time.Duration
 	Bytes                    int64
 	Splits                   manifest.SplitTable
@@ -57,15 +62,17 @@ type source struct {
 }
 
 type input struct {
-	kind    string // "trueset" or "plain"
-	dir     string
-	base    *manifest.Dataset
-	classes []manifest.Class
-	defs    []manifest.TargetDef
-	targets []string
-	srcs    []source
-	splits  manifest.SplitTable
-	seed    uint64 // the seed the split allocation was dealt with
+	kind      string // "trueset" or "plain"
+	dir       string
+	base      *manifest.Dataset
+	classes   []manifest.Class
+	defs      []manifest.TargetDef
+	targets   []string
+	srcs      []source
+	splits    manifest.SplitTable
+	seed      uint64 // the seed the split allocation was dealt with
+	maxPixels int
+	skipped   []string // sources left out, with their errors
 }
 
 // Run augments a trueset dataset or a plain labeled folder into a new trueset
@@ -86,9 +93,19 @@ func Run(ctx context.Context, o RunOptions) (Summary, error) {
 	if len(o.Splits) == 0 {
 		o.Splits = []string{"train"}
 	}
+	switch o.OnError {
+	case "":
+		o.OnError = "fail"
+	case "fail", "skip":
+	default:
+		return Summary{}, fmt.Errorf("on-error %q: want fail or skip", o.OnError)
+	}
 	in, err := readInput(o)
 	if err != nil {
 		return Summary{}, err
+	}
+	if o.OnError == "skip" && in.kind == "trueset" {
+		in.dropBadSources(o.MaxPixels)
 	}
 	augmented := map[string]bool{}
 	known := map[string]bool{}
@@ -121,7 +138,24 @@ func Run(ctx context.Context, o RunOptions) (Summary, error) {
 		digits = 2
 	}
 
-	w, err := manifest.Create(o.Out, o.Force)
+	marker, err := in.marker(o)
+	if err != nil {
+		return Summary{}, err
+	}
+	co := manifest.CreateOptions{Force: o.Force, FS: o.FS, Marker: marker}
+	var w *manifest.Writer
+	startJob, resumed := 0, 0
+	if o.Resume {
+		w, resumed, err = manifest.Resume(o.Out, co, func(n int) int {
+			// Keep whole sources only: the last job may be half appended.
+			for startJob < len(in.srcs) && first[startJob+1] <= n {
+				startJob++
+			}
+			return first[startJob]
+		})
+	} else {
+		w, err = manifest.CreateWith(o.Out, co)
+	}
 	if err != nil {
 		return Summary{}, err
 	}
@@ -135,8 +169,9 @@ func Run(ctx context.Context, o RunOptions) (Summary, error) {
 			return in.produce(i, first[i], first[i+1]-first[i]-1, digits, o, enc, w)
 		}
 	}
-	done, bytesOut, err := manifest.RunOrdered(ctx, 0, len(in.srcs), o.Workers, newProduce, w, o.Progress)
-	sum := Summary{Sources: done, Records: first[done], Copies: first[done] - done, Bytes: bytesOut}
+	done, bytesOut, err := manifest.RunOrdered(ctx, startJob, len(in.srcs), o.Workers, newProduce, w, o.Progress)
+	done += startJob
+	sum := Summary{Sources: done, Records: first[done], Copies: first[done] - done, Bytes: bytesOut, Resumed: resumed, Skipped: in.skipped}
 	if err != nil {
 		w.Abort()
 		sum.Elapsed = time.Since(start)
@@ -150,12 +185,90 @@ func Run(ctx context.Context, o RunOptions) (Summary, error) {
 	return sum, err
 }
 
+// marker names the run for --resume: tool version, plan, seed, copies,
+// splits, on-error, and a checksum of every source record (for trueset input
+// those hold the files' checksums; for a plain folder the pixels are hashed).
+func (in *input) marker(o RunOptions) ([]byte, error) {
+	h := sha256.New()
+	for _, s := range in.srcs {
+		b, err := manifest.MarshalRecord(&s.rec)
+		if err != nil {
+			return nil, err
+		}
+		h.Write(b)
+		if p := s.plain; p != nil {
+			for _, v := range p.Image.Pix {
+				h.Write([]byte{byte(math.Float32bits(v)), byte(math.Float32bits(v) >> 8), byte(math.Float32bits(v) >> 16), byte(math.Float32bits(v) >> 24)})
+			}
+			h.Write(p.Mask.Pix)
+			h.Write(p.Instances.Pix)
+		}
+	}
+	plan := sha256.Sum256(o.Plan.JSON())
+	return json.Marshal(struct {
+		Run         string   `json:"run"`
+		ToolVersion string   `json:"tool_version"`
+		Plan        string   `json:"plan_sha256"`
+		Input       string   `json:"input_sha256"`
+		Seed        uint64   `json:"seed"`
+		Copies      int      `json:"copies"`
+		Splits      []string `json:"splits"`
+		OnError     string   `json:"on_error"`
+		Allow       bool     `json:"allow_label_change"`
+	}{"augment", o.Version, hex.EncodeToString(plan[:]), hex.EncodeToString(h.Sum(nil)), o.Seed, o.Copies, o.Splits, o.OnError, o.AllowLabelChange})
+}
+
+// dropBadSources leaves out, and lists, the trueset sources whose files are
+// missing, altered or undecodable, so a bad source costs only itself.
+func (in *input) dropBadSources(maxPixels int) {
+	kept := in.srcs[:0]
+	for _, s := range in.srcs {
+		if err := in.checkSource(&s.rec, maxPixels); err != nil {
+			in.skipped = append(in.skipped, err.Error())
+			continue
+		}
+		kept = append(kept, s)
+	}
+	in.srcs = kept
+}
+
+func (in *input) checkSource(rec *manifest.Record, maxPixels int) error {
+	for _, f := range [][2]string{{"image", rec.Image}, {"mask", rec.Mask}, {"instances", rec.Instances}} {
+		p, err := in.safePath(f[1])
+		if err != nil {
+			return fmt.Errorf("record %s: %w", rec.ID, err)
+		}
+		b, err := os.ReadFile(p)
+		if err != nil {
+			return fmt.Errorf("record %s: %w", rec.ID, err)
+		}
+		if got := manifest.SHA256Hex(b); got != rec.SHA256[f[0]] {
+			return fmt.Errorf("record %s: %s: SHA-256 %s, the record says %s", rec.ID, p, got, rec.SHA256[f[0]])
+		}
+		cfg, err := png.DecodeConfig(bytes.NewReader(b))
+		if err != nil {
+			return fmt.Errorf("record %s: %s: %v", rec.ID, p, err)
+		}
+		if int64(cfg.Width)*int64(cfg.Height) > int64(maxPixels) {
+			return fmt.Errorf("record %s: %s: %d×%d pixels is over the budget of %d", rec.ID, p, cfg.Width, cfg.Height, maxPixels)
+		}
+	}
+	return nil
+}
+
+// safePath resolves a record path inside the input folder, refusing paths
+// that leave it, symbolic links included.
+func (in *input) safePath(rel string) (string, error) {
+	return manifest.ResolveInside(in.dir, rel)
+}
+
 // dataset builds the output dataset.json.
 func (in *input) dataset(o RunOptions, total int, counts map[string]int) *manifest.Dataset {
 	sum := sha256.Sum256(o.Plan.JSON())
 	info := &manifest.AugmentInfo{
 		Plan: o.Plan.JSON(), PlanSHA256: hex.EncodeToString(sum[:]), Seed: o.Seed, Copies: o.Copies,
 		Splits: o.Splits, Source: in.kind, SourceSamples: len(in.srcs), AllowedChanges: o.AllowLabelChange,
+		Skipped: in.skipped,
 	}
 	t := in.splits
 	t.Counts = map[string]int{}
@@ -222,12 +335,16 @@ func (in *input) produce(i, index, copies, digits int, o RunOptions, enc *manife
 func (in *input) copyOriginal(rec *manifest.Record, w *manifest.Writer) (int64, error) {
 	var n int64
 	for _, f := range [][2]string{{"image", rec.Image}, {"mask", rec.Mask}, {"instances", rec.Instances}} {
-		b, err := os.ReadFile(filepath.Join(in.dir, f[1]))
+		p, err := in.safePath(f[1])
+		if err != nil {
+			return n, fmt.Errorf("record %s: %w", rec.ID, err)
+		}
+		b, err := os.ReadFile(p)
 		if err != nil {
 			return n, err
 		}
 		if got := manifest.SHA256Hex(b); got != rec.SHA256[f[0]] {
-			return n, fmt.Errorf("%s: SHA-256 %s, the record says %s; run trueset verify on the input", filepath.Join(in.dir, f[1]), got, rec.SHA256[f[0]])
+			return n, fmt.Errorf("%s: SHA-256 %s, the record says %s; run trueset verify on the input", p, got, rec.SHA256[f[0]])
 		}
 		if err := w.WriteRaw(f[1], b); err != nil {
 			return n, err
@@ -258,18 +375,17 @@ func decodeFile(p string, maxPixels int) (image.Image, error) {
 
 // loadTrueset decodes a trueset sample's three PNGs.
 func (in *input) loadTrueset(rec *manifest.Record) (*Input, error) {
-	img, err := decodeFile(filepath.Join(in.dir, rec.Image), DefaultMaxPixels)
-	if err != nil {
-		return nil, err
+	var ims [3]image.Image
+	for i, rel := range []string{rec.Image, rec.Mask, rec.Instances} {
+		p, err := in.safePath(rel)
+		if err != nil {
+			return nil, fmt.Errorf("record %s: %w", rec.ID, err)
+		}
+		if ims[i], err = decodeFile(p, in.maxPixels); err != nil {
+			return nil, err
+		}
 	}
-	mk, err := decodeFile(filepath.Join(in.dir, rec.Mask), DefaultMaxPixels)
-	if err != nil {
-		return nil, err
-	}
-	ins, err := decodeFile(filepath.Join(in.dir, rec.Instances), DefaultMaxPixels)
-	if err != nil {
-		return nil, err
-	}
+	img, mk, ins := ims[0], ims[1], ims[2]
 	mask, ok1 := mk.(*image.Paletted)
 	inst, ok2 := ins.(*image.Gray16)
 	if !ok1 || !ok2 {
@@ -296,7 +412,7 @@ func readTrueset(o RunOptions) (*input, error) {
 	if err != nil {
 		return nil, err
 	}
-	in := &input{kind: "trueset", dir: o.In, base: d, classes: d.Classes, defs: d.TargetDefs, targets: d.Targets, splits: d.Splits, seed: d.Seed}
+	in := &input{kind: "trueset", dir: o.In, base: d, classes: d.Classes, defs: d.TargetDefs, targets: d.Targets, splits: d.Splits, seed: d.Seed, maxPixels: o.MaxPixels}
 	err = manifest.ReadManifest(o.In, func(r *manifest.Record) error {
 		if r.Lineage != nil {
 			return fmt.Errorf("record %s is itself an augmented copy; augment the original dataset instead", r.ID)
@@ -310,7 +426,7 @@ func readTrueset(o RunOptions) (*input, error) {
 // readPlain reads a plain labeled folder and deals its sources (each its own
 // group) to splits.
 func readPlain(o RunOptions) (*input, error) {
-	f, err := ReadFolder(o.In, o.MaxPixels)
+	f, err := ReadFolderSkipping(o.In, o.MaxPixels, o.OnError == "skip")
 	if err != nil {
 		return nil, err
 	}
@@ -333,7 +449,7 @@ func readPlain(o RunOptions) (*input, error) {
 			}
 		}
 	}
-	in := &input{kind: "plain", dir: o.In, classes: classes, targets: append([]string(nil), f.TargetNames...), seed: o.Seed}
+	in := &input{kind: "plain", dir: o.In, classes: classes, targets: append([]string(nil), f.TargetNames...), seed: o.Seed, skipped: f.Skipped, maxPixels: o.MaxPixels}
 	taken := map[string]bool{}
 	for _, n := range f.TargetNames {
 		taken[n] = true

@@ -88,6 +88,28 @@ func SafeRel(p string) bool {
 	return c == p && c != "." && c != ".." && !strings.HasPrefix(c, "../")
 }
 
+// ResolveInside joins a record path to dir and refuses it when it leaves
+// dir: an unsafe path (absolute, "..") or a symbolic link anywhere along it
+// that resolves outside dir.
+func ResolveInside(dir, rel string) (string, error) {
+	if !SafeRel(rel) {
+		return "", fmt.Errorf("path %q leaves the dataset folder", rel)
+	}
+	p := filepath.Join(dir, rel)
+	root, err := filepath.EvalSymlinks(dir)
+	if err != nil {
+		return "", err
+	}
+	real, err := filepath.EvalSymlinks(p)
+	if err != nil {
+		return p, nil // missing files are reported by whoever opens them
+	}
+	if r, err := filepath.Rel(root, real); err != nil || r == ".." || strings.HasPrefix(r, "../") {
+		return "", fmt.Errorf("path %q is a symbolic link to %s, outside the dataset folder", rel, real)
+	}
+	return p, nil
+}
+
 // SHA256Hex returns the lowercase hex SHA-256 of b (FIPS 180-4).
 func SHA256Hex(b []byte) string {
 	s := sha256.Sum256(b)

@@ -7,6 +7,7 @@ import (
 	"io"
 	"os"
 	"os/signal"
+	"path/filepath"
 	"runtime"
 	"strings"
 	"syscall"
@@ -16,6 +17,7 @@ import (
 	"github.com/spf13/cobra"
 
 	"github.com/trueset/trueset/augment"
+	"github.com/trueset/trueset/manifest"
 )
 
 // augmentOptions are the flags of `trueset augment`.
@@ -31,6 +33,8 @@ type augmentOptions struct {
 	maxPixels     int
 	split         string
 	strat         string
+	onError       string
+	resume        bool
 }
 
 func newAugmentCmd(stdout, stderr io.Writer) *cobra.Command {
@@ -77,7 +81,9 @@ A plan that would break a class's declared invariance (a flipped glyph, a
 	f.StringVar(&o.splits, "splits", "train", "comma-separated splits whose sources get copies")
 	f.IntVarP(&o.workers, "workers", "j", runtime.NumCPU(), "parallel workers (output does not depend on it)")
 	f.BoolVar(&o.allow, "allow-label-change", false, "run a plan even where it breaks a class's declared invariance")
-	f.BoolVar(&o.force, "force", false, "write into a folder that is not empty")
+	f.BoolVar(&o.force, "force", false, "write into a folder that is not empty (files trueset did not write are never deleted)")
+	f.BoolVar(&o.resume, "resume", false, "continue an interrupted run in --out (same input, plan, seed and options); the result equals an uninterrupted run")
+	f.StringVar(&o.onError, "on-error", "fail", "a source that cannot be read: fail (stop the run) or skip (leave it out; listed in the summary and dataset.json)")
 	f.BoolVarP(&o.quiet, "quiet", "q", false, "no progress bar and no summary")
 	f.IntVar(&o.maxPixels, "max-pixels", augment.DefaultMaxPixels, "refuse input images with more pixels than this")
 	f.StringVar(&o.split, "split", "", "plain folders: split names and ratios (default train=0.8,val=0.1,test=0.1)")
@@ -101,8 +107,17 @@ func runAugment(ctx context.Context, o *augmentOptions, stdout, stderr io.Writer
 	if st, err := os.Stat(o.in); err != nil || !st.IsDir() {
 		return usagef("--in %s is not a folder", o.in)
 	}
-	if !o.force {
+	if o.onError != "fail" && o.onError != "skip" {
+		return usagef("--on-error %q: want fail or skip", o.onError)
+	}
+	if o.resume && o.force {
+		return usagef("give --resume or --force, not both")
+	}
+	if !o.force && !o.resume {
 		if ents, err := os.ReadDir(o.out); err == nil && len(ents) > 0 {
+			if _, err := os.Stat(filepath.Join(o.out, manifest.RunMarkerFile)); err == nil {
+				return usagef("--out %s holds an interrupted run; add --resume to continue it, or --force to start again", o.out)
+			}
 			return usagef("--out %s is not empty; choose a new folder or pass --force", o.out)
 		}
 	}
@@ -124,7 +139,7 @@ func runAugment(ctx context.Context, o *augmentOptions, stdout, stderr io.Writer
 	opts := augment.RunOptions{
 		In: o.in, Out: o.out, Plan: plan, Copies: o.copies, Seed: o.seed, Splits: strings.Split(o.splits, ","),
 		Workers: o.workers, AllowLabelChange: o.allow, Force: o.force, MaxPixels: o.maxPixels,
-		SplitSpec: o.split, Stratify: o.strat, Version: version,
+		SplitSpec: o.split, Stratify: o.strat, OnError: o.onError, Resume: o.resume, Version: version,
 		Progress: func(done, total int) {
 			if bar == nil && !o.quiet && isTerminal(stderr) {
 				bar = progressbar.NewOptions(total, progressbar.OptionSetWriter(stderr),
@@ -140,17 +155,31 @@ func runAugment(ctx context.Context, o *augmentOptions, stdout, stderr io.Writer
 	if bar != nil {
 		bar.Finish()
 	}
+	if errors.Is(err, manifest.ErrComplete) {
+		fmt.Fprintf(stdout, "%s: %v\n", o.out, err)
+		return nil
+	}
 	if err != nil {
 		var pe *augment.PlanError
 		if errors.As(err, &pe) || strings.HasPrefix(err.Error(), "plan ") || strings.HasPrefix(err.Error(), "--splits") {
 			return usageError{err}
 		}
-		return fmt.Errorf("%s: %w (the folder has no dataset.json, so it is visibly incomplete)", o.out, err)
+		return interrupted(o.out, sum.Records, err, stderr)
+	}
+	for _, s := range sum.Skipped {
+		fmt.Fprintf(stderr, "skipped: %s\n", s)
 	}
 	if !o.quiet {
 		secs := sum.Elapsed.Seconds()
-		fmt.Fprintf(stdout, "wrote %d records (%d sources, %d copies) to %s in %.2fs (%.0f copies/s, %s)\n",
-			sum.Records, sum.Sources, sum.Copies, o.out, secs, float64(sum.Copies)/secs, humanBytes(sum.Bytes))
+		extra := ""
+		if sum.Resumed > 0 {
+			extra = fmt.Sprintf(", %d records kept from the interrupted run", sum.Resumed)
+		}
+		if len(sum.Skipped) > 0 {
+			extra += fmt.Sprintf(", %d sources skipped", len(sum.Skipped))
+		}
+		fmt.Fprintf(stdout, "wrote %d records (%d sources, %d copies%s) to %s in %.2fs (%.0f copies/s, %s)\n",
+			sum.Records, sum.Sources, sum.Copies, extra, o.out, secs, float64(sum.Copies)/secs, humanBytes(sum.Bytes))
 		printSplitTable(stdout, sum.Splits)
 	}
 	return nil

@@ -225,6 +225,9 @@ func runGenerate(ctx context.Context, o *generateOptions, stdout, stderr io.Writ
 // dataset.json, so it is visibly incomplete, and the same command with
 // --resume continues it.
 func interrupted(out string, done int, err error, stderr io.Writer) error {
+	if _, serr := os.Stat(filepath.Join(out, manifest.RunMarkerFile)); serr != nil {
+		return err // stopped before anything was written: nothing to resume
+	}
 	args := os.Args[1:]
 	has := false
 	for _, a := range args {

@@ -12,7 +12,8 @@ import (
 // maxTableRows bounds the strata printed; dataset.json keeps them all.
 const maxTableRows = 30
 
-// printSplitTable prints the strata × splits table (in groups) with totals.
+// printSplitTable prints the strata × splits table, counted in groups, with
+// the groups per split and, when they differ (augmented copies), the samples.
 func printSplitTable(w io.Writer, t manifest.SplitTable) {
 	if len(t.Strata) == 0 {
 		return
@@ -35,13 +36,31 @@ func printSplitTable(w io.Writer, t manifest.SplitTable) {
 		}
 		fmt.Fprintf(tw, "\t%d\t\n", st.Groups)
 	}
-	fmt.Fprintf(tw, "total")
-	all := 0
-	for _, n := range t.Names {
-		fmt.Fprintf(tw, "\t%d", t.Counts[n])
-		all += t.Counts[n]
+	groups := map[string]int{}
+	for _, st := range t.Strata {
+		for _, n := range t.Names {
+			groups[n] += st.Splits[n]
+		}
 	}
-	fmt.Fprintf(tw, "\t%d\t\n", all)
+	row := func(label string, per map[string]int) {
+		fmt.Fprintf(tw, "%s", label)
+		all := 0
+		for _, n := range t.Names {
+			fmt.Fprintf(tw, "\t%d", per[n])
+			all += per[n]
+		}
+		fmt.Fprintf(tw, "\t%d\t\n", all)
+	}
+	row("groups", groups)
+	differ := false
+	for _, n := range t.Names {
+		if groups[n] != t.Counts[n] {
+			differ = true
+		}
+	}
+	if differ {
+		row("samples", t.Counts)
+	}
 	tw.Flush()
 	if len(t.Thin) > 0 {
 		fmt.Fprintf(w, "thin strata (fewer groups than splits, so some split lacks them): %s\n", strings.Join(t.Thin, ", "))
