@@ -13,6 +13,7 @@ import (
 	"os"
 	"path/filepath"
 	"runtime"
+	"sort"
 	"time"
 
 	"github.com/trueset/trueset/manifest"
@@ -185,6 +186,47 @@ func Run(ctx context.Context, o RunOptions) (Summary, error) {
 	return sum, err
 }
 
+// recountStrata counts the strata × splits table (in groups) of the sources
+// that are left, for an input some of whose sources were skipped.
+func (in *input) recountStrata(t manifest.SplitTable) ([]manifest.Stratum, []string) {
+	seen := map[string]bool{}
+	rows := map[string]*manifest.Stratum{}
+	var keys []string
+	for _, s := range in.srcs {
+		if seen[s.rec.Group] {
+			continue
+		}
+		seen[s.rec.Group] = true
+		st := rows[s.rec.Stratum]
+		if st == nil {
+			st = &manifest.Stratum{Key: s.rec.Stratum, Splits: map[string]int{}}
+			for _, n := range t.Names {
+				st.Splits[n] = 0
+			}
+			rows[s.rec.Stratum] = st
+			keys = append(keys, s.rec.Stratum)
+		}
+		st.Groups++
+		st.Splits[s.rec.Split]++
+	}
+	sort.Slice(keys, func(a, b int) bool { return manifest.NaturalLess(keys[a], keys[b]) })
+	nonzero := 0
+	for _, r := range t.Ratios {
+		if r > 0 {
+			nonzero++
+		}
+	}
+	var out []manifest.Stratum
+	var thin []string
+	for _, k := range keys {
+		out = append(out, *rows[k])
+		if rows[k].Groups < nonzero {
+			thin = append(thin, k)
+		}
+	}
+	return out, thin
+}
+
 // marker names the run for --resume: tool version, plan, seed, copies,
 // splits, on-error, and a checksum of every source record (for trueset input
 // those hold the files' checksums; for a plain folder the pixels are hashed).
@@ -274,6 +316,9 @@ func (in *input) dataset(o RunOptions, total int, counts map[string]int) *manife
 	t.Counts = map[string]int{}
 	for _, n := range t.Names {
 		t.Counts[n] = counts[n]
+	}
+	if len(in.skipped) > 0 {
+		t.Strata, t.Thin = in.recountStrata(t)
 	}
 	d := &manifest.Dataset{
 		ToolVersion: o.Version, Seed: in.seed, Count: total, Classes: in.classes,

@@ -115,7 +115,10 @@ func Verify(dir string, report func(Problem)) (int, error) {
 	// (AllocateStrata, as generate and split deal it): name every record
 	// that is elsewhere. Skipped when the records are incomplete or a group
 	// spans splits, where the allocation cannot be recomputed meaningfully.
-	if sp, perr := ParseSplits(d.Splits.Spec); err == nil && perr == nil && n == d.Count && !spans && slices.Equal(sp.Names, d.Splits.Names) {
+	// An augmented set that skipped bad sources lacks their groups, so its
+	// split is the source's allocation minus them and cannot be recomputed.
+	skipped := d.Augment != nil && len(d.Augment.Skipped) > 0
+	if sp, perr := ParseSplits(d.Splits.Spec); err == nil && perr == nil && n == d.Count && !spans && !skipped && slices.Equal(sp.Names, d.Splits.Names) {
 		if a, aerr := AllocateStrata(d.Seed, groupKeys, sp); aerr == nil {
 			for _, p := range placedRecs {
 				if want := sp.Names[a.Split[p.group]]; splitOK[p.split] && p.split != want {
@@ -151,18 +154,34 @@ func Verify(dir string, report func(Problem)) (int, error) {
 	return n, nil
 }
 
-func decodePNG(dir, rel string, want string, bad func(string, ...any)) image.Image {
-	if !SafeRel(rel) {
-		bad("%s path %q leaves the dataset folder", want, rel)
+// MaxVerifyPixels bounds one image verify decodes (width × height).
+const MaxVerifyPixels = 64 << 20
+
+func decodePNG(dir, rel string, want string, w, h int, bad func(string, ...any)) image.Image {
+	p, err := ResolveInside(dir, rel)
+	if err != nil {
+		bad("%s: %v", want, err)
 		return nil
 	}
-	f, err := os.Open(filepath.Join(dir, rel))
+	b, err := os.ReadFile(p)
 	if err != nil {
 		bad("%s: %v", rel, err)
 		return nil
 	}
-	defer f.Close()
-	m, err := png.Decode(f)
+	cfg, err := png.DecodeConfig(bytes.NewReader(b))
+	if err != nil {
+		bad("%s: not a readable PNG: %v", rel, err)
+		return nil
+	}
+	if cfg.Width != w || cfg.Height != h {
+		bad("%s is %dx%d, the record says %dx%d", rel, cfg.Width, cfg.Height, w, h)
+		return nil
+	}
+	if int64(w)*int64(h) > MaxVerifyPixels {
+		bad("%s: %dx%d is over verify's budget of %d pixels", rel, w, h, MaxVerifyPixels)
+		return nil
+	}
+	m, err := png.Decode(bytes.NewReader(b))
 	if err != nil {
 		bad("%s: not a readable PNG: %v", rel, err)
 		return nil
@@ -176,7 +195,11 @@ func verifyRecord(dir string, d *Dataset, r *Record, targets []TargetDef, classB
 		if !SafeRel(rel) {
 			continue // reported when decoded
 		}
-		b, err := os.ReadFile(filepath.Join(dir, rel))
+		p, err := ResolveInside(dir, rel)
+		if err != nil {
+			continue // reported when decoded
+		}
+		b, err := os.ReadFile(p)
 		if err != nil {
 			continue // reported when decoded
 		}
@@ -184,9 +207,9 @@ func verifyRecord(dir string, d *Dataset, r *Record, targets []TargetDef, classB
 			bad("%s: SHA-256 %s, record says %s", rel, got, r.SHA256[key])
 		}
 	}
-	img := decodePNG(dir, r.Image, "image", bad)
-	mk := decodePNG(dir, r.Mask, "mask", bad)
-	in := decodePNG(dir, r.Instances, "instances", bad)
+	img := decodePNG(dir, r.Image, "image", r.Width, r.Height, bad)
+	mk := decodePNG(dir, r.Mask, "mask", r.Width, r.Height, bad)
+	in := decodePNG(dir, r.Instances, "instances", r.Width, r.Height, bad)
 	want := image.Rect(0, 0, r.Width, r.Height)
 	for _, m := range []image.Image{img, mk, in} {
 		if m != nil && m.Bounds() != want {
