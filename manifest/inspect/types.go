@@ -1,0 +1,86 @@
+package inspect
+
+import "github.com/trueset/trueset/manifest"
+
+// Stats is everything `trueset stats` reports; `--json` prints it as is.
+type Stats struct {
+	Dataset  string              `json:"dataset"`  // the folder
+	Records  int                 `json:"records"`  // samples in all
+	Splits   []SplitStats        `json:"splits"`   // in dataset.json's split order
+	Strata   manifest.SplitTable `json:"strata"`   // the strata × splits table from dataset.json
+	Pixels   PixelStats          `json:"pixels"`   // normalisation, over the train split
+	Classes  []ClassStats        `json:"classes"`  // in class-id order, background included
+	Targets  []TargetStats       `json:"targets"`  // in dataset.json's target order
+	Leakage  Leakage             `json:"leakage"`  // near-duplicates across splits
+	Warnings []string            `json:"warnings"` // anything a user should look at
+}
+
+// SplitStats counts one split.
+type SplitStats struct {
+	Name    string `json:"name"`
+	Samples int    `json:"samples"`
+	Groups  int    `json:"groups"`
+}
+
+// PixelStats is the per-channel mean and standard deviation of the image
+// intensities of one split (the train split), in 0..255 units, computed in
+// one streaming pass (Welford). Normalise a pixel v of channel c as
+// (v − Mean[c]) / Std[c] to reach mean 0 and variance 1.
+type PixelStats struct {
+	Split    string    `json:"split"`
+	Channels int       `json:"channels"`
+	Count    int64     `json:"count"` // values per channel
+	Mean     []float64 `json:"mean"`
+	Std      []float64 `json:"std"`
+}
+
+// ClassStats is one class's share of the mask pixels and its objects.
+type ClassStats struct {
+	ID        int     `json:"id"`
+	Name      string  `json:"name"`
+	Pixels    int64   `json:"pixels"`    // mask pixels of this class (train split)
+	Frequency float64 `json:"frequency"` // Pixels / all labeled pixels (ignore excluded)
+	// WeightInverse is 1/Frequency, normalised so the weights of classes
+	// present average 1; WeightMedian is median-frequency balancing
+	// (Eigen & Fergus 2015): median(freq_c) / freq_c, with freq_c the
+	// class's pixels over the pixels of the images where it appears.
+	WeightInverse float64        `json:"weight_inverse"`
+	WeightMedian  float64        `json:"weight_median"`
+	Objects       int            `json:"objects"`  // instances in all splits
+	AreaMin       int            `json:"area_min"` // object areas in pixels
+	AreaMedian    float64        `json:"area_median"`
+	AreaMax       int            `json:"area_max"`
+	PerSample     map[string]int `json:"per_sample"` // samples by number of objects of this class ("0", "1", …)
+}
+
+// TargetStats describes one target over all samples (train split for the
+// scale figures).
+type TargetStats struct {
+	Name     string  `json:"name"`
+	Numeric  bool    `json:"numeric"`
+	Count    int     `json:"count"`
+	Min      float64 `json:"min"`
+	Max      float64 `json:"max"`
+	Mean     float64 `json:"mean"`
+	Std      float64 `json:"std"`
+	Distinct int     `json:"distinct"` // distinct values (text targets)
+}
+
+// Leakage reports identical or near-identical images in different splits,
+// by a 64-bit difference hash (dHash) with a Hamming-distance threshold, and
+// groups that span splits.
+type Leakage struct {
+	Method        string     `json:"method"`    // "dhash-64"
+	Threshold     int        `json:"threshold"` // pairs at distance ≤ Threshold are reported
+	Pairs         []LeakPair `json:"pairs"`
+	GroupsSpanned []string   `json:"groups_spanning_splits"`
+}
+
+// LeakPair is one near-duplicate pair across splits.
+type LeakPair struct {
+	A        string `json:"a"`
+	SplitA   string `json:"split_a"`
+	B        string `json:"b"`
+	SplitB   string `json:"split_b"`
+	Distance int    `json:"distance"`
+}
