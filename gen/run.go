@@ -162,7 +162,7 @@ func Run(ctx context.Context, o RunOptions) (Summary, error) {
 	var defs []manifest.TargetDef
 	for _, t := range r.Targets {
 		tnames = append(tnames, t.Name)
-		defs = append(defs, manifest.TargetDef{Name: t.Name, Kind: t.Kind, Classes: t.Classes, Of: t.Of})
+		defs = append(defs, t.def())
 	}
 	table := manifest.SplitTable{Names: splits.Names, Spec: splits.String(), Ratios: map[string]float64{}, Counts: map[string]int{},
 		Stratify: o.Stratify, Strata: alloc.Table, Thin: alloc.Thin}
