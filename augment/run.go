@@ -545,7 +545,9 @@ func readPlain(o RunOptions) (*input, error) {
 // CheckInvariance refuses, before any work, a plan that would break a
 // class's declared invariance: a flip step for a class that does not keep its
 // label under flips, a turn beyond a class's max_rotate, or a flip or an
-// upside-down turn of samples whose targets read text.
+// upside-down turn of samples whose targets read text. Turns compose, so the
+// bound is on the worst-case sum of every turn so far (of a one-of, its
+// widest child), not on each step alone.
 func CheckInvariance(p *Plan, classes []manifest.Class, defs []manifest.TargetDef) error {
 	reads := ""
 	for _, d := range defs {
@@ -553,49 +555,66 @@ func CheckInvariance(p *Plan, classes []manifest.Class, defs []manifest.TargetDe
 			reads = d.Name
 		}
 	}
-	var walk func(steps []Step, path string) error
-	walk = func(steps []Step, path string) error {
-		for i := range steps {
-			s := &steps[i]
-			sp := fmt.Sprintf("%s[%d]", path, i)
-			if *s.Chance == 0 {
-				continue
-			}
-			switch s.Op {
-			case "one-of":
-				if err := walk(s.Steps, sp+".steps"); err != nil {
-					return err
-				}
-			case "flip":
-				for _, c := range classes {
-					if c.Flip != nil && !*c.Flip {
-						return fmt.Errorf("plan %s (flip %s) would mirror class %q, whose label does not survive a flip (dataset classes: flip false); remove the step or pass --allow-label-change", sp, s.Axis, c.Name)
-					}
-				}
-				if reads != "" {
-					return fmt.Errorf("plan %s (flip %s) would mirror samples whose target %q reads text; remove the step or pass --allow-label-change", sp, s.Axis, reads)
-				}
-			case "rotate", "affine":
-				turn := 0.0
-				if s.Degrees != nil {
-					turn = math.Max(math.Abs(s.Degrees.Min), math.Abs(s.Degrees.Max))
-				}
-				if s.Shear != nil {
-					turn = math.Max(turn, math.Max(math.Abs(s.Shear.Min), math.Abs(s.Shear.Max)))
-				}
-				for _, c := range classes {
-					if c.MaxRotate != nil && turn > *c.MaxRotate {
-						return fmt.Errorf("plan %s (%s up to %s°) turns class %q beyond the %s° that keep its label; narrow the range or pass --allow-label-change", sp, s.Op, fmtDeg(turn), c.Name, fmtDeg(*c.MaxRotate))
-					}
-				}
-				if reads != "" && turn > 90 {
-					return fmt.Errorf("plan %s (%s up to %s°) could turn samples whose target %q reads text upside down; keep turns within ±90° or pass --allow-label-change", sp, s.Op, fmtDeg(turn), reads)
-				}
-			}
+	// step checks one step given the worst turn acc of the steps before it
+	// and returns the worst turn after it.
+	var step func(s *Step, sp string, acc float64) (float64, error)
+	step = func(s *Step, sp string, acc float64) (float64, error) {
+		if *s.Chance == 0 {
+			return acc, nil
 		}
-		return nil
+		switch s.Op {
+		case "one-of":
+			worst := acc
+			for j := range s.Steps {
+				a, err := step(&s.Steps[j], fmt.Sprintf("%s.steps[%d]", sp, j), acc)
+				if err != nil {
+					return 0, err
+				}
+				worst = math.Max(worst, a)
+			}
+			return worst, nil
+		case "flip":
+			for _, c := range classes {
+				if c.Flip != nil && !*c.Flip {
+					return 0, fmt.Errorf("plan %s (flip %s) would mirror class %q, whose label does not survive a flip (dataset classes: flip false); remove the step or pass --allow-label-change", sp, s.Axis, c.Name)
+				}
+			}
+			if reads != "" {
+				return 0, fmt.Errorf("plan %s (flip %s) would mirror samples whose target %q reads text; remove the step or pass --allow-label-change", sp, s.Axis, reads)
+			}
+		case "rotate", "affine":
+			turn := 0.0
+			if s.Degrees != nil {
+				turn = math.Max(math.Abs(s.Degrees.Min), math.Abs(s.Degrees.Max))
+			}
+			if s.Shear != nil {
+				turn = math.Max(turn, math.Max(math.Abs(s.Shear.Min), math.Abs(s.Shear.Max)))
+			}
+			total := acc + turn
+			also := ""
+			if acc > 0 && turn > 0 {
+				also = fmt.Sprintf(", %s° with the turns before it", fmtDeg(total))
+			}
+			for _, c := range classes {
+				if c.MaxRotate != nil && total > *c.MaxRotate {
+					return 0, fmt.Errorf("plan %s (%s up to %s°%s) turns class %q beyond the %s° that keep its label; narrow the range or pass --allow-label-change", sp, s.Op, fmtDeg(turn), also, c.Name, fmtDeg(*c.MaxRotate))
+				}
+			}
+			if reads != "" && total > 90 {
+				return 0, fmt.Errorf("plan %s (%s up to %s°%s) could turn samples whose target %q reads text upside down; keep turns within ±90° or pass --allow-label-change", sp, s.Op, fmtDeg(turn), also, reads)
+			}
+			return total, nil
+		}
+		return acc, nil
 	}
-	return walk(p.Steps, "steps")
+	acc := 0.0
+	for i := range p.Steps {
+		var err error
+		if acc, err = step(&p.Steps[i], fmt.Sprintf("steps[%d]", i), acc); err != nil {
+			return err
+		}
+	}
+	return nil
 }
 
 func fmtDeg(f float64) string { return fmt.Sprintf("%g", manifest.Round(f, 3)) }
