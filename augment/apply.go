@@ -201,12 +201,16 @@ func relabel(objs []manifest.Object, inst *image.Gray16, m Mat, frac map[int]flo
 			f = math.Min(f, float64(st.Area)/(float64(o.Area)*math.Abs(m.Det())))
 		}
 		n.Visible = manifest.Round(math.Min(1, o.Visible*f), 4)
-		cx, cy := m.Apply(o.Centre[0], o.Centre[1])
-		n.Centre = [2]float64{manifest.Round(cx, 3), manifest.Round(cy, 3)}
-		n.Size = manifest.Round(o.Size*s, 3)
-		sn, cs := math.Sincos(o.Angle * math.Pi / 180)
-		dx, dy := m[0]*cs+m[1]*sn, m[3]*cs+m[4]*sn
-		n.Angle = manifest.Round(math.Atan2(dy, dx)*180/math.Pi, 3)
+		// Objects read from a plain folder have no plan factors (size 0);
+		// theirs stay unset rather than be made up from (0, 0) and 0°.
+		if o.Size > 0 {
+			cx, cy := m.Apply(o.Centre[0], o.Centre[1])
+			n.Centre = [2]float64{manifest.Round(cx, 3), manifest.Round(cy, 3)}
+			n.Size = manifest.Round(o.Size*s, 3)
+			sn, cs := math.Sincos(o.Angle * math.Pi / 180)
+			dx, dy := m[0]*cs+m[1]*sn, m[3]*cs+m[4]*sn
+			n.Angle = manifest.Round(math.Atan2(dy, dx)*180/math.Pi, 3)
+		}
 		out = append(out, n)
 	}
 	for i := range out {

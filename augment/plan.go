@@ -132,7 +132,7 @@ func ParsePlan(file string, data []byte) (*Plan, error) {
 	}
 	var root yaml.Node
 	if err := yaml.Unmarshal(data, &root); err != nil {
-		return nil, &PlanError{File: file, Msg: "YAML syntax: " + strings.TrimPrefix(err.Error(), "yaml: ")}
+		return nil, planSyntaxError(file, err)
 	}
 	if root.Kind == 0 || len(root.Content) == 0 {
 		return nil, &PlanError{File: file, Msg: "plan is empty"}
@@ -146,6 +146,18 @@ func ParsePlan(file string, data []byte) (*Plan, error) {
 		return nil, err
 	}
 	return p, nil
+}
+
+// planSyntaxError carries the line yaml.v3 names ("yaml: line N: ...") into
+// the error's Line, as recipes do.
+func planSyntaxError(file string, err error) *PlanError {
+	msg := strings.TrimPrefix(err.Error(), "yaml: ")
+	var line int
+	if _, scanErr := fmt.Sscanf(msg, "line %d:", &line); scanErr == nil && line > 0 {
+		rest := strings.TrimPrefix(msg, fmt.Sprintf("line %d:", line))
+		return &PlanError{File: file, Line: line, Column: 1, Msg: "YAML syntax:" + rest}
+	}
+	return &PlanError{File: file, Msg: "YAML syntax: " + msg}
 }
 
 // LoadPlan reads and parses a plan file.
@@ -306,11 +318,12 @@ func checkStepFields(d *yamlnode.Decoder, s *Step, sp string, allowed []string) 
 	for _, f := range allowed {
 		ok[f] = true
 	}
-	v := reflect.ValueOf(s).Elem()
-	t := v.Type()
+	// Presence, not the value: "expand: false" or "sigma: ~" on a flip is
+	// refused too.
+	t := reflect.TypeOf(*s)
 	for i := 0; i < t.NumField(); i++ {
 		name := yamlnode.FieldName(t.Field(i))
-		if name == "" || ok[name] || v.Field(i).IsZero() {
+		if name == "" || ok[name] || !d.Written(sp+"."+name) {
 			continue
 		}
 		return d.ErrPath(sp+"."+name, "", "%s does not take %s; it takes %s", s.Op, name, strings.Join(allowed, ", "))

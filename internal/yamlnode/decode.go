@@ -59,6 +59,12 @@ func NewDecoder(file string) *Decoder { return &Decoder{file: file, at: map[stri
 // File is the name errors carry.
 func (d *Decoder) File() string { return d.file }
 
+// Written reports whether the document gave a value at path (null included).
+func (d *Decoder) Written(path string) bool {
+	_, ok := d.at[path]
+	return ok
+}
+
 // NodeDecoder is implemented by recipe types with a flexible YAML form (a
 // scalar or a [min, max] pair, say).
 type NodeDecoder interface {
@@ -151,7 +157,7 @@ func (d *Decoder) Decode(n *yaml.Node, v reflect.Value, path string) error {
 		n = n.Content[0]
 	}
 	if n.Kind == yaml.AliasNode {
-		return d.ErrAt(n, path, "", "YAML aliases are not allowed in recipes")
+		return d.ErrAt(n, path, "", "YAML aliases are not allowed; write the value out")
 	}
 	d.at[path] = pos{n.Line, n.Column}
 	if v.Kind() == reflect.Pointer {
