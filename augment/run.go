@@ -328,10 +328,17 @@ func (in *input) dataset(o RunOptions, total int, counts map[string]int) *manife
 		d.Recipe, d.RecipeSHA256, d.Width, d.Height, d.Mode = b.Recipe, b.RecipeSHA256, b.Width, b.Height, b.Mode
 		info.SourceSHA256 = b.ManifestSHA256
 	} else if len(in.srcs) > 0 {
+		// The sources' common size and mode; 0 and "mixed" when they differ
+		// (each record carries its own size either way).
 		s := in.srcs[0].plain
-		d.Width, d.Height, d.Mode = s.Image.W, s.Image.H, "gray"
-		if s.Image.C == 3 {
-			d.Mode = "rgb"
+		d.Width, d.Height, d.Mode = s.Image.W, s.Image.H, modeOf(s.Image)
+		for _, o := range in.srcs[1:] {
+			if o.plain.Image.W != d.Width || o.plain.Image.H != d.Height {
+				d.Width, d.Height = 0, 0
+			}
+			if modeOf(o.plain.Image) != d.Mode {
+				d.Mode = "mixed"
+			}
 		}
 	}
 	return d
@@ -618,3 +625,10 @@ func CheckInvariance(p *Plan, classes []manifest.Class, defs []manifest.TargetDe
 }
 
 func fmtDeg(f float64) string { return fmt.Sprintf("%g", manifest.Round(f, 3)) }
+
+func modeOf(m *Image) string {
+	if m.C == 3 {
+		return "rgb"
+	}
+	return "gray"
+}
