@@ -35,6 +35,7 @@ type augmentOptions struct {
 	strat         string
 	onError       string
 	resume        bool
+	json          bool
 }
 
 func newAugmentCmd(stdout, stderr io.Writer) *cobra.Command {
@@ -88,7 +89,23 @@ A plan that would break a class's declared invariance (a flipped glyph, a
 	f.IntVar(&o.maxPixels, "max-pixels", augment.DefaultMaxPixels, "refuse input images with more pixels than this")
 	f.StringVar(&o.split, "split", "", "plain folders: split names and ratios (default train=0.8,val=0.1,test=0.1)")
 	f.StringVar(&o.strat, "stratify", "", "plain folders: stratify by a labels.csv column, count_<class>, class:NAME or classes")
+	f.BoolVar(&o.json, "json", false, "print the summary as one JSON document on stdout instead of text (errors still go to stderr)")
 	return cmd
+}
+
+// augmentJSON is the summary `augment --json` prints. Bytes and Seconds
+// count this run only; Resumed records were kept from an interrupted one;
+// Skipped lists the sources left out by --on-error skip, with their errors.
+type augmentJSON struct {
+	Out     string              `json:"out"`
+	Sources int                 `json:"sources"`
+	Copies  int                 `json:"copies"`
+	Records int                 `json:"records"`
+	Resumed int                 `json:"resumed"`
+	Skipped []string            `json:"skipped"`
+	Seconds float64             `json:"seconds"`
+	Bytes   int64               `json:"bytes"`
+	Splits  manifest.SplitTable `json:"splits"`
 }
 
 func runAugment(ctx context.Context, o *augmentOptions, stdout, stderr io.Writer) error {
@@ -156,6 +173,10 @@ func runAugment(ctx context.Context, o *augmentOptions, stdout, stderr io.Writer
 		bar.Finish()
 	}
 	if errors.Is(err, manifest.ErrComplete) {
+		if o.json {
+			fmt.Fprintf(stderr, "%s: %v\n", o.out, err)
+			return writeAugmentDone(stdout, o.out)
+		}
 		fmt.Fprintf(stdout, "%s: %v\n", o.out, err)
 		return nil
 	}
@@ -168,6 +189,14 @@ func runAugment(ctx context.Context, o *augmentOptions, stdout, stderr io.Writer
 	}
 	for _, s := range sum.Skipped {
 		fmt.Fprintf(stderr, "skipped: %s\n", s)
+	}
+	if o.json {
+		j := augmentJSON{Out: o.out, Sources: sum.Sources, Copies: sum.Copies, Records: sum.Records, Resumed: sum.Resumed,
+			Skipped: sum.Skipped, Seconds: manifest.Round(sum.Elapsed.Seconds(), 3), Bytes: sum.Bytes, Splits: sum.Splits}
+		if j.Skipped == nil {
+			j.Skipped = []string{}
+		}
+		return writeJSON(stdout, j)
 	}
 	if !o.quiet {
 		secs := sum.Elapsed.Seconds()
@@ -183,4 +212,28 @@ func runAugment(ctx context.Context, o *augmentOptions, stdout, stderr io.Writer
 		printSplitTable(stdout, sum.Splits)
 	}
 	return nil
+}
+
+// writeAugmentDone describes, for --json, an augmented dataset that was
+// already complete: nothing was written, every record was kept.
+func writeAugmentDone(stdout io.Writer, out string) error {
+	d, err := manifest.ReadDataset(out)
+	if err != nil {
+		return err
+	}
+	j := augmentJSON{Out: out, Skipped: []string{}, Splits: d.Splits}
+	if err := manifest.ReadManifest(out, func(r *manifest.Record) error {
+		j.Records++
+		if r.Lineage != nil {
+			j.Copies++
+		}
+		return nil
+	}); err != nil {
+		return err
+	}
+	j.Sources, j.Resumed = j.Records-j.Copies, j.Records
+	if d.Augment != nil && d.Augment.Skipped != nil {
+		j.Skipped = d.Augment.Skipped
+	}
+	return writeJSON(stdout, j)
 }

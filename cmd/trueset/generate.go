@@ -38,6 +38,7 @@ type generateOptions struct {
 	force   bool
 	resume  bool
 	quiet   bool
+	json    bool
 }
 
 func newGenerateCmd(stdout, stderr io.Writer) *cobra.Command {
@@ -98,7 +99,23 @@ The same tool version, recipe and seed give byte-identical files whatever
 	f.BoolVar(&o.force, "force", false, "write into a folder that is not empty (files trueset did not write are never deleted)")
 	f.BoolVar(&o.resume, "resume", false, "continue an interrupted run in --out (same recipe, seed and options); the result equals an uninterrupted run")
 	f.BoolVarP(&o.quiet, "quiet", "q", false, "no progress bar and no summary")
+	f.BoolVar(&o.json, "json", false, "print the summary as one JSON document on stdout instead of text (errors still go to stderr)")
 	return cmd
+}
+
+// generateJSON is the summary `generate --json` prints. Bytes and Seconds
+// count this run only; Resumed samples were kept from an interrupted one.
+type generateJSON struct {
+	Out              string              `json:"out"`
+	Recipe           string              `json:"recipe"`
+	Samples          int                 `json:"samples"`
+	Resumed          int                 `json:"resumed"`
+	Seconds          float64             `json:"seconds"`
+	SamplesPerSecond float64             `json:"samples_per_second"`
+	Bytes            int64               `json:"bytes"`
+	Shard            *int                `json:"shard,omitempty"`
+	Shards           int                 `json:"shards,omitempty"`
+	Splits           manifest.SplitTable `json:"splits"`
 }
 
 func runGenerate(ctx context.Context, o *generateOptions, stdout, stderr io.Writer) error {
@@ -199,11 +216,31 @@ func runGenerate(ctx context.Context, o *generateOptions, stdout, stderr io.Writ
 		return fmt.Errorf("%w; nothing was written", err)
 	}
 	if errors.Is(err, manifest.ErrComplete) {
+		if o.json {
+			fmt.Fprintf(stderr, "%s: %v\n", o.out, err)
+			d, derr := manifest.ReadDataset(o.out)
+			if derr != nil {
+				return derr
+			}
+			return writeJSON(stdout, generateJSON{Out: o.out, Recipe: r.Name, Samples: d.Count, Resumed: d.Count, Splits: d.Splits})
+		}
 		fmt.Fprintf(stdout, "%s: %v\n", o.out, err)
 		return nil
 	}
 	if err != nil {
 		return interrupted(o.out, sum.Samples, err, stderr)
+	}
+	if o.json {
+		secs := sum.Elapsed.Seconds()
+		j := generateJSON{Out: o.out, Recipe: r.Name, Samples: sum.Samples, Resumed: sum.Resumed, Seconds: manifest.Round(secs, 3),
+			Bytes: sum.Bytes, Splits: sum.Splits}
+		if secs > 0 {
+			j.SamplesPerSecond = manifest.Round(float64(sum.Samples-sum.Resumed)/secs, 1)
+		}
+		if shards > 0 {
+			j.Shard, j.Shards = &shard, shards
+		}
+		return writeJSON(stdout, j)
 	}
 	if !o.quiet {
 		secs := sum.Elapsed.Seconds()

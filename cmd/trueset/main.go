@@ -3,6 +3,7 @@
 package main
 
 import (
+	"encoding/json"
 	"errors"
 	"fmt"
 	"io"
@@ -55,6 +56,7 @@ anyone can regenerate byte for byte from the recipe and the seed.`,
 	})
 	root.AddCommand(newGenerateCmd(stdout, stderr), newAugmentCmd(stdout, stderr), newSplitCmd(stdout, stderr), newVerifyCmd(stdout, stderr),
 		newMergeCmd(stdout), newPresetsCmd(stdout), newVersionCmd(stdout))
+	root.AddCommand(newCompletionCmd(stdout), newManCmd(stdout))
 	return root
 }
 
@@ -74,6 +76,15 @@ func exitCode(err error) int {
 		return exitUsage
 	}
 	return exitFailure
+}
+
+// writeJSON writes v as the one JSON document of a --json run: indented,
+// ending in a newline, with <, > and & as they are.
+func writeJSON(w io.Writer, v any) error {
+	enc := json.NewEncoder(w)
+	enc.SetEscapeHTML(false)
+	enc.SetIndent("", "  ")
+	return enc.Encode(v)
 }
 
 func run(args []string, stdout, stderr io.Writer) int {

@@ -1,0 +1,61 @@
+#!/usr/bin/env bash
+# CI for the Python loader (examples/python): installs Debian's numpy and
+# Pillow if they are missing, builds trueset, generates a small set of every
+# preset, an augmented set and an augmented plain folder, and checks the
+# loader against all of them.
+# Runs the same locally (`bash .ci/python.sh`) and in CI (root on Debian).
+set -euo pipefail
+
+cd "$(dirname "${BASH_SOURCE[0]}")/.."
+
+# Debian's own python3: a python3 earlier on PATH (pyenv, a venv) may lack
+# the packages apt installs.
+PY=/usr/bin/python3
+COUNT=${COUNT:-30}
+
+echo "== numpy and Pillow for $PY"
+if ! "$PY" -c 'import numpy, PIL' 2>/dev/null; then
+	if [ "$(id -u)" -ne 0 ]; then
+		echo "$PY lacks numpy or Pillow; as root run: apt-get install python3-numpy python3-pil" >&2
+		exit 1
+	fi
+	apt-get update
+	DEBIAN_FRONTEND=noninteractive apt-get install -y python3-numpy python3-pil
+fi
+"$PY" -c 'import numpy, PIL; print("numpy", numpy.__version__, "Pillow", PIL.__version__)'
+
+work="$(mktemp -d)"
+trap 'rm -rf "$work"' EXIT
+
+echo "== go build ./cmd/trueset"
+go build -o "$work/trueset" ./cmd/trueset
+
+# Preset names from `trueset presets`: the name, then WIDTHxHEIGHT (the
+# default preset's line starts with "*").
+presets="$("$work/trueset" presets | awk '{ if ($1 == "*") { n = $2; s = $3 } else { n = $1; s = $2 } } s ~ /^[0-9]+x[0-9]+$/ { print n }')"
+if [ -z "$presets" ]; then
+	echo "no presets listed by trueset presets" >&2
+	exit 1
+fi
+
+dirs=()
+for p in $presets; do
+	echo "== generate $p ($COUNT samples)"
+	"$work/trueset" generate --preset "$p" --count "$COUNT" --seed 1 --out "$work/$p" --quiet
+	dirs+=("$work/$p")
+done
+# every-step flips and turns, which glyph classes refuse; dice take it.
+aug=tabletop-dice
+if [ -d "$work/$aug" ]; then
+	echo "== augment $aug (every-step plan, 1 copy per training sample)"
+	"$work/trueset" augment --in "$work/$aug" --out "$work/$aug-aug" --plan testdata/plans/every-step.yaml --copies 1 --quiet
+	dirs+=("$work/$aug-aug")
+fi
+
+echo "== augment testdata/plain (a plain labeled folder; upright plan, 2 copies)"
+"$work/trueset" augment --in testdata/plain --out "$work/plain-aug" --plan testdata/plans/upright.yaml --copies 2 \
+	--split train=0.5,val=0.25,test=0.25 --quiet
+dirs+=("$work/plain-aug")
+
+echo "== $PY examples/python/test_loader.py"
+"$PY" examples/python/test_loader.py "${dirs[@]}"
