@@ -55,7 +55,7 @@ anyone can regenerate byte for byte from the recipe and the seed.`,
 		return usageError{fmt.Errorf("%w\nsee: %s --help", err, c.CommandPath())}
 	})
 	root.AddCommand(newGenerateCmd(stdout, stderr), newAugmentCmd(stdout, stderr), newSplitCmd(stdout, stderr), newVerifyCmd(stdout, stderr),
-		newMergeCmd(stdout), newPresetsCmd(stdout), newVersionCmd(stdout))
+		newMergeCmd(stdout), newPresetsCmd(stdout), newVersionCmd(stdout), newStatsCmd(stdout), newPreviewCmd(stdout))
 	root.AddCommand(newCompletionCmd(stdout), newManCmd(stdout))
 	return root
 }

@@ -13,6 +13,11 @@ type Stats struct {
 	Targets  []TargetStats       `json:"targets"`  // in dataset.json's target order
 	Leakage  Leakage             `json:"leakage"`  // near-duplicates across splits
 	Warnings []string            `json:"warnings"` // anything a user should look at
+
+	// LabeledPixels and IgnorePixels count the mask pixels of the train
+	// split with a class id and with the ignore id 255.
+	LabeledPixels int64 `json:"labeled_pixels"`
+	IgnorePixels  int64 `json:"ignore_pixels"`
 }
 
 // SplitStats counts one split.
@@ -25,13 +30,17 @@ type SplitStats struct {
 // PixelStats is the per-channel mean and standard deviation of the image
 // intensities of one split (the train split), in 0..255 units, computed in
 // one streaming pass (Welford). Normalise a pixel v of channel c as
-// (v − Mean[c]) / Std[c] to reach mean 0 and variance 1.
+// (v − Mean[c]) / Std[c] to reach mean 0 and variance 1. Std is the
+// population standard deviation (divided by Count, not Count − 1).
 type PixelStats struct {
 	Split    string    `json:"split"`
 	Channels int       `json:"channels"`
 	Count    int64     `json:"count"` // values per channel
 	Mean     []float64 `json:"mean"`
 	Std      []float64 `json:"std"`
+
+	Names     []string `json:"names"`     // "gray", or "R", "G", "B"
+	Estimator string   `json:"estimator"` // "population"
 }
 
 // ClassStats is one class's share of the mask pixels and its objects.
@@ -51,10 +60,14 @@ type ClassStats struct {
 	AreaMedian    float64        `json:"area_median"`
 	AreaMax       int            `json:"area_max"`
 	PerSample     map[string]int `json:"per_sample"` // samples by number of objects of this class ("0", "1", …)
+
+	PresentPixels  int64          `json:"present_pixels"`   // labeled pixels of the train images containing the class
+	ObjectsBySplit map[string]int `json:"objects_by_split"` // instances per split
 }
 
-// TargetStats describes one target over all samples (train split for the
-// scale figures).
+// TargetStats describes one target over the samples of one split (the
+// train split): Count samples carry it with Distinct values; Min, Max, Mean
+// and Std (population, Welford) are over its numeric values.
 type TargetStats struct {
 	Name     string  `json:"name"`
 	Numeric  bool    `json:"numeric"`
@@ -64,6 +77,8 @@ type TargetStats struct {
 	Mean     float64 `json:"mean"`
 	Std      float64 `json:"std"`
 	Distinct int     `json:"distinct"` // distinct values (text targets)
+
+	Split string `json:"split"`
 }
 
 // Leakage reports identical or near-identical images in different splits,
@@ -74,6 +89,10 @@ type Leakage struct {
 	Threshold     int        `json:"threshold"` // pairs at distance ≤ Threshold are reported
 	Pairs         []LeakPair `json:"pairs"`
 	GroupsSpanned []string   `json:"groups_spanning_splits"`
+
+	Index      string `json:"index"`       // the search: "all pairs" or the pigeonhole multi-index
+	Images     int    `json:"images"`      // images hashed (all splits)
+	PairsFound int    `json:"pairs_found"` // Pairs lists the first MaxLeakPairs, in record order
 }
 
 // LeakPair is one near-duplicate pair across splits.
@@ -83,4 +102,6 @@ type LeakPair struct {
 	B        string `json:"b"`
 	SplitB   string `json:"split_b"`
 	Distance int    `json:"distance"`
+
+	Identical bool `json:"identical"` // the records give both images the same SHA-256
 }

@@ -1,0 +1,113 @@
+package main
+
+import (
+	"bytes"
+	"image"
+	"image/color"
+	"image/png"
+	"os"
+	"path/filepath"
+	"testing"
+
+	"github.com/trueset/trueset/gen"
+)
+
+// A contact sheet per preset: a PNG (decoded with the standard library's
+// image/png) of the size the layout gives, whose legend row shows each
+// class colour as a solid swatch; the same seed gives the same bytes,
+// another seed other samples; nothing but the sheet is left in the folder
+// (the write is atomic).
+func TestPreviewSheets(t *testing.T) {
+	// Layout: margin 10, gap 10, title 23, caption 4 + 2×15, legend rows 19.
+	// Set TRUESET_KEEP_SHEETS=DIR to keep the sheets for a look.
+	// 64×64 images: scale 3 → 192×192 cells, 4 columns × 4 rows:
+	//   width 10 + 4·192 + 3·10 + 10 = 818,
+	//   height 10 + 23 + 4·(192 + 34) + 3·10 + 10 + 19 + 10 = 1006.
+	// bin-labels 128×48: scale round(192/128) = 2 → 256×96 cells; the square
+	// grid would have 2.9 columns, 4 leave no empty cell, so 4 × 4:
+	//   width 10 + 4·256 + 3·10 + 10 = 1074,
+	//   height 10 + 23 + 4·(96 + 34) + 3·10 + 10 + 19 + 10 = 622.
+	for _, c := range []struct {
+		preset string
+		w, h   int
+	}{{gen.DefaultPreset, 818, 1006}, {"tabletop-dice", 818, 1006}, {"bin-labels", 1074, 622}} {
+		t.Run(c.preset, func(t *testing.T) {
+			dir := statsGenerate(t, c.preset, 60)
+			outDir := t.TempDir()
+			sheet := filepath.Join(outDir, "sheet.png")
+			stdout, _ := wantCode(t, exitOK, "preview", dir, "--out", sheet)
+			t.Log(stdout)
+			b, err := os.ReadFile(sheet)
+			if err != nil {
+				t.Fatal(err)
+			}
+			m, err := png.Decode(bytes.NewReader(b))
+			if err != nil {
+				t.Fatal(err)
+			}
+			if got := m.Bounds().Size(); got != image.Pt(c.w, c.h) {
+				t.Errorf("sheet is %v, want %dx%d", got, c.w, c.h)
+			}
+			// The legend is the last row band above the bottom margin.
+			legend := image.Rect(0, c.h-10-19, c.w, c.h-10)
+			d := readDataset(t, dir)
+			for _, cl := range d.Classes {
+				if cl.ID == 0 {
+					continue // background is not tinted and has no swatch
+				}
+				want := color.RGBA{cl.Colour[0], cl.Colour[1], cl.Colour[2], 255}
+				if n := countColour(m, legend, want); n < 12*12 {
+					t.Errorf("legend has %d pixels of class %s's colour %v, want a 12×12 swatch", n, cl.Name, want)
+				}
+			}
+			if es, _ := os.ReadDir(outDir); len(es) != 1 {
+				t.Errorf("the output folder holds %d entries, want only the sheet", len(es))
+			}
+			again := filepath.Join(outDir, "again.png")
+			wantCode(t, exitOK, "preview", dir, "--out", again, "-q")
+			if b2, _ := os.ReadFile(again); !bytes.Equal(b, b2) {
+				t.Errorf("the same flags drew a different sheet")
+			}
+			other := filepath.Join(outDir, "other.png")
+			wantCode(t, exitOK, "preview", dir, "--out", other, "--seed", "2", "-q")
+			if b3, _ := os.ReadFile(other); bytes.Equal(b, b3) {
+				t.Errorf("--seed 2 drew the same sheet as --seed 1")
+			}
+			if os.Getenv("TRUESET_KEEP_SHEETS") != "" {
+				_ = os.WriteFile(filepath.Join(os.Getenv("TRUESET_KEEP_SHEETS"), c.preset+".png"), b, 0o644)
+			}
+		})
+	}
+}
+
+func countColour(m image.Image, r image.Rectangle, want color.RGBA) int {
+	n := 0
+	for y := r.Min.Y; y < r.Max.Y; y++ {
+		for x := r.Min.X; x < r.Max.X; x++ {
+			if color.RGBAModel.Convert(m.At(x, y)).(color.RGBA) == want {
+				n++
+			}
+		}
+	}
+	return n
+}
+
+// Bad flags are usage errors; a split with fewer samples than --count shows
+// them all; --split all draws from every split.
+func TestPreviewUsageAndSmallSplits(t *testing.T) {
+	dir := statsGenerate(t, gen.DefaultPreset, 30)
+	out := filepath.Join(t.TempDir(), "s.png")
+	wantCode(t, exitUsage, "preview", dir)
+	wantCode(t, exitUsage, "preview", dir, "--out", out, "--count", "0")
+	wantCode(t, exitUsage, "preview", dir, "--out", out, "--split", "nope")
+	wantCode(t, exitUsage, "preview", "--out", out)
+	wantCode(t, exitFailure, "preview", t.TempDir(), "--out", out)
+	stdout, _ := wantCode(t, exitOK, "preview", dir, "--out", out, "--split", "test")
+	if !bytes.Contains([]byte(stdout), []byte("3 of 3 samples")) {
+		t.Errorf("test split of 30 samples: %q", stdout)
+	}
+	stdout, _ = wantCode(t, exitOK, "preview", dir, "--out", out, "--split", "all", "--count", "9")
+	if !bytes.Contains([]byte(stdout), []byte("9 of 30 samples (3×3 grid")) {
+		t.Errorf("all splits: %q", stdout)
+	}
+}
