@@ -42,12 +42,14 @@ mask pixels per class with their frequency and two sets of loss weights
 median-frequency balancing, Eigen & Fergus 2015; the ignore id 255 is left
 out); object counts, areas and objects per sample per class; each target's
 range, mean and std; and leakage: images in different splits whose 64-bit
-difference hashes (dHash) are within --threshold bits, and groups present in
-more than one split. The hash sees a 9×8 thumbnail: it catches copies and
-re-encodes, but scenes with the same coarse layout (one die on the same
-felt, a label's text in the same place) can collide, so pairs are
-candidates to look at. Warnings name classes missing from the split, thin
-strata, leakage and constant targets.
+difference hashes (dHash) are within --threshold bits, each candidate then
+confirmed by comparing the two images at full size (mean absolute gray
+difference of at most 4 levels), and groups present in more than one split.
+The hash sees a 9×8 thumbnail, so scenes with the same coarse layout (one
+die on the same felt) are candidates; the full-size comparison keeps copies,
+re-encodes and lightly noised duplicates and drops those look-alikes.
+Warnings name classes missing from the split, thin strata, leakage and
+constant targets.
 
 Checksums are not verified (that is ` + "`trueset verify`" + `).`,
 		Example: `  trueset stats demo
@@ -207,12 +209,12 @@ func printStats(w io.Writer, d *manifest.Dataset, st *inspect.Stats) {
 	}
 
 	l := st.Leakage
-	fmt.Fprintf(w, "\nleakage (64-bit dHash of %d images, Hamming distance ≤ %d across splits, %s):\n", l.Images, l.Threshold, l.Index)
+	fmt.Fprintf(w, "\nleakage (64-bit dHash of %d images, Hamming distance ≤ %d across splits, %s; %d candidates, confirmed when %s):\n", l.Images, l.Threshold, l.Index, l.Candidates, l.Confirm)
 	if l.PairsFound == 0 {
 		fmt.Fprintln(w, "  no near-duplicate pairs across splits")
 	} else {
 		tw = table()
-		fmt.Fprintf(tw, "a\tsplit\tb\tsplit\tdistance\tidentical\t\n")
+		fmt.Fprintf(tw, "a\tsplit\tb\tsplit\tdistance\tmean diff\tidentical\t\n")
 		for i, pr := range l.Pairs {
 			if i == maxLeakRows {
 				break
@@ -221,13 +223,12 @@ func printStats(w io.Writer, d *manifest.Dataset, st *inspect.Stats) {
 			if pr.Identical {
 				same = "yes"
 			}
-			fmt.Fprintf(tw, "%s\t%s\t%s\t%s\t%d\t%s\t\n", pr.A, pr.SplitA, pr.B, pr.SplitB, pr.Distance, same)
+			fmt.Fprintf(tw, "%s\t%s\t%s\t%s\t%d\t%.2f\t%s\t\n", pr.A, pr.SplitA, pr.B, pr.SplitB, pr.Distance, pr.MeanAbsDiff, same)
 		}
 		tw.Flush()
 		if l.PairsFound > maxLeakRows {
 			fmt.Fprintf(w, "  … %d pairs in all (--json lists up to %d)\n", l.PairsFound, inspect.MaxLeakPairs)
 		}
-		fmt.Fprintln(w, "  candidates: the hash sees a 9×8 thumbnail, so different scenes with the same coarse layout can collide;")
 		fmt.Fprintln(w, "  identical = the records give both images the same SHA-256")
 	}
 	if len(l.GroupsSpanned) == 0 {

@@ -134,6 +134,45 @@ func (w Welford) Std() float64 { return math.Sqrt(w.Var()) }
 // ---------------------------------------------------------------------------
 // Difference hash.
 
+// ConfirmMAD is the largest mean absolute difference of gray values (0..255)
+// at full size for which a dHash candidate pair counts as near-identical. A
+// 64-bit dHash sees a 9×8 thumbnail, so synthetic scenes with the same rough
+// layout (one die in the same place) collide; comparing the pixels themselves
+// keeps re-encoded or lightly noised copies (differences of a few levels) and
+// drops look-alikes. Common practice; not a standard value.
+const ConfirmMAD = 4.0
+
+// MaxConfirmPairs bounds the candidate pairs decoded for confirmation.
+const MaxConfirmPairs = 100000
+
+// confirm decodes images i and j and reports their mean absolute gray
+// difference and whether it is within ConfirmMAD.
+func (a *accumulator) confirm(dir string, i, j int) (float64, bool) {
+	if a.sizes[i] != a.sizes[j] {
+		return 0, false
+	}
+	mi, err := decode(dir, a.paths[i], a.sizes[i][0], a.sizes[i][1])
+	if err != nil {
+		return 0, false
+	}
+	mj, err := decode(dir, a.paths[j], a.sizes[j][0], a.sizes[j][1])
+	if err != nil {
+		return 0, false
+	}
+	gi, gj := toGray(mi), toGray(mj)
+	b := gi.Bounds()
+	sum := 0.0
+	for y := b.Min.Y; y < b.Max.Y; y++ {
+		for x := b.Min.X; x < b.Max.X; x++ {
+			p := color.GrayModel.Convert(gi.At(x, y)).(color.Gray).Y
+			q := color.GrayModel.Convert(gj.At(x, y)).(color.Gray).Y
+			sum += math.Abs(float64(p) - float64(q))
+		}
+	}
+	mad := sum / float64(b.Dx()*b.Dy())
+	return mad, mad <= ConfirmMAD
+}
+
 // DHash is a 64-bit difference hash (Neal Krawetz, "Kind of Like That",
 // The Hacker Factor Blog, 2013; described from memory): the image is made
 // gray (ITU-R BT.601 luma, as color.GrayModel), scaled to 9×8 with
@@ -582,6 +621,8 @@ type accumulator struct {
 	part   []int
 	ids    []string
 	sums   []string // image SHA-256 from the records
+	paths  []string // image path and size, to confirm candidate pairs
+	sizes  [][2]int
 }
 
 type targetAcc struct {
@@ -660,6 +701,8 @@ func (a *accumulator) add(s *sample) {
 	a.part = append(a.part, si)
 	a.ids = append(a.ids, r.ID)
 	a.sums = append(a.sums, r.SHA256["image"])
+	a.paths = append(a.paths, r.Image)
+	a.sizes = append(a.sizes, [2]int{r.Width, r.Height})
 
 	// Objects, in all splits.
 	per := map[int]int{}
@@ -878,15 +921,25 @@ func (a *accumulator) finish(dir string) *Stats {
 		warn("thin strata (fewer groups than splits, so some split lacks them): %s", strings.Join(a.d.Splits.Thin, ", "))
 	}
 
-	// Leakage.
-	pairs, found, method := NearPairs(a.hashes, a.part, a.o.Threshold, false, MaxLeakPairs)
+	// Leakage: dHash candidates, each confirmed at full size.
+	cands, candFound, method := NearPairs(a.hashes, a.part, a.o.Threshold, false, MaxConfirmPairs)
 	st.Leakage = Leakage{Method: "dhash-64", Threshold: a.o.Threshold, Index: method, Images: len(a.hashes),
-		PairsFound: found, Pairs: []LeakPair{}, GroupsSpanned: []string{}}
-	for _, p := range pairs {
-		st.Leakage.Pairs = append(st.Leakage.Pairs, LeakPair{A: a.ids[p.I], SplitA: a.splits[a.part[p.I]].Name,
-			B: a.ids[p.J], SplitB: a.splits[a.part[p.J]].Name, Distance: p.Distance,
-			Identical: a.sums[p.I] != "" && a.sums[p.I] == a.sums[p.J]})
+		Candidates: candFound, Confirm: fmt.Sprintf("same size and mean absolute gray difference ≤ %g", ConfirmMAD),
+		Pairs: []LeakPair{}, GroupsSpanned: []string{}}
+	found := 0
+	for _, p := range cands {
+		mad, ok := a.confirm(dir, p.I, p.J)
+		if !ok {
+			continue
+		}
+		found++
+		if len(st.Leakage.Pairs) < MaxLeakPairs {
+			st.Leakage.Pairs = append(st.Leakage.Pairs, LeakPair{A: a.ids[p.I], SplitA: a.splits[a.part[p.I]].Name,
+				B: a.ids[p.J], SplitB: a.splits[a.part[p.J]].Name, Distance: p.Distance, MeanAbsDiff: manifest.Round(mad, 3),
+				Identical: a.sums[p.I] != "" && a.sums[p.I] == a.sums[p.J]})
+		}
 	}
+	st.Leakage.PairsFound = found
 	for g := range a.spanned {
 		st.Leakage.GroupsSpanned = append(st.Leakage.GroupsSpanned, g)
 	}
@@ -899,8 +952,8 @@ func (a *accumulator) finish(dir string) *Stats {
 				identical++
 			}
 		}
-		warn("%d near-duplicate image pairs across splits (dHash distance ≤ %d; %d of those listed identical by SHA-256), e.g. %s (%s) and %s (%s) at distance %d: look at the pairs before trusting the held-out splits",
-			found, a.o.Threshold, identical, p.A, p.SplitA, p.B, p.SplitB, p.Distance)
+		warn("%d near-duplicate image pairs across splits (dHash distance ≤ %d, confirmed: %s; %d of those listed identical by SHA-256), e.g. %s (%s) and %s (%s) at distance %d: look at the pairs before trusting the held-out splits",
+			found, a.o.Threshold, st.Leakage.Confirm, identical, p.A, p.SplitA, p.B, p.SplitB, p.Distance)
 	}
 	if n := len(st.Leakage.GroupsSpanned); n > 0 {
 		list := st.Leakage.GroupsSpanned

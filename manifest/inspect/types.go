@@ -81,8 +81,9 @@ type TargetStats struct {
 	Split string `json:"split"`
 }
 
-// Leakage reports identical or near-identical images in different splits,
-// by a 64-bit difference hash (dHash) with a Hamming-distance threshold, and
+// Leakage reports identical or near-identical images in different splits —
+// candidates by a 64-bit difference hash (dHash) within a Hamming-distance
+// threshold, each confirmed by comparing the two images at full size — and
 // groups that span splits.
 type Leakage struct {
 	Method        string     `json:"method"`    // "dhash-64"
@@ -92,7 +93,10 @@ type Leakage struct {
 
 	Index      string `json:"index"`       // the search: "all pairs" or the pigeonhole multi-index
 	Images     int    `json:"images"`      // images hashed (all splits)
-	PairsFound int    `json:"pairs_found"` // Pairs lists the first MaxLeakPairs, in record order
+	PairsFound int    `json:"pairs_found"` // confirmed pairs; Pairs lists the first MaxLeakPairs, in record order
+
+	Candidates int    `json:"candidates"` // pairs within the dHash threshold, before confirmation
+	Confirm    string `json:"confirm"`    // the full-size test a candidate must pass
 }
 
 // LeakPair is one near-duplicate pair across splits.
@@ -103,5 +107,6 @@ type LeakPair struct {
 	SplitB   string `json:"split_b"`
 	Distance int    `json:"distance"`
 
-	Identical bool `json:"identical"` // the records give both images the same SHA-256
+	Identical   bool    `json:"identical"`     // the records give both images the same SHA-256
+	MeanAbsDiff float64 `json:"mean_abs_diff"` // mean absolute gray difference at full size
 }
