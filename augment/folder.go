@@ -157,6 +157,14 @@ func ReadFolderSkipping(dir string, maxPixels int, skip bool) (*Folder, error) {
 	if _, err := os.Lstat(filepath.Join(dir, manifest.DatasetFile)); !errors.Is(err, fs.ErrNotExist) {
 		return nil, fmt.Errorf("%s: has %s: it is a trueset dataset, not a plain labeled folder", dir, manifest.DatasetFile)
 	}
+	// A trueset folder without dataset.json is an incomplete dataset (an
+	// interrupted or failed run), not a plain folder to read afresh.
+	for _, name := range []string{manifest.ManifestFile, manifest.RunMarkerFile} {
+		if _, err := os.Lstat(filepath.Join(dir, name)); !errors.Is(err, fs.ErrNotExist) {
+			return nil, fmt.Errorf("%s: has %s but no %s: it is an incomplete trueset dataset (an interrupted run; finish it with --resume), not a plain labeled folder",
+				dir, name, manifest.DatasetFile)
+		}
+	}
 	imagesDir := filepath.Join(dir, manifest.ImagesDir)
 	masksDir := filepath.Join(dir, manifest.MasksDir)
 	instDir := filepath.Join(dir, manifest.InstancesDir)
@@ -1039,7 +1047,10 @@ func readFolderLabels(p string, stems map[string]string) ([]string, map[string]m
 		nums := make([]float64, len(rows))
 		for i, rw := range rows {
 			v, err := strconv.ParseFloat(rw.cells[j], 64)
-			if err != nil {
+			// An overflowing number (1e999) stays a number and is refused
+			// below as not finite, like inf, rather than turning the column
+			// into text.
+			if err != nil && !(errors.Is(err, strconv.ErrRange) && math.IsInf(v, 0)) {
 				numeric = false
 				break
 			}

@@ -5,6 +5,7 @@ import (
 	"crypto/sha256"
 	"encoding/hex"
 	"encoding/json"
+	"errors"
 	"fmt"
 	"runtime"
 	"strings"
@@ -192,6 +193,20 @@ func Run(ctx context.Context, o RunOptions) (Summary, error) {
 		Shard       int    `json:"shard"`
 		Shards      int    `json:"shards"`
 	}{"generate", o.Version, recipeHash, o.Seed, o.Count, table.Spec, o.Stratify, o.Shard, o.Shards})
+	// A layout no sample can meet fails here, before the folder is touched,
+	// rather than after the run has started (and invited a --resume).
+	if _, err := NewRenderer(r).Generate(o.Seed, first); err != nil {
+		var le *LayoutError
+		if errors.As(err, &le) {
+			file := r.file
+			if file == "" {
+				file = r.Name
+			}
+			err = &RecipeError{File: file, Path: fmt.Sprintf("layers[%d].layout", le.Layer),
+				Msg: fmt.Sprintf("sample %d cannot be laid out: %s (gave up after %d attempts); loosen the layout: fewer or smaller objects, a larger region or more overlap", le.Index, le.Constraint, MaxAttempts)}
+		}
+		return Summary{Splits: table}, err
+	}
 	co := manifest.CreateOptions{Force: o.Force, FS: o.FS, Marker: marker}
 	var w *manifest.Writer
 	resumed := 0

@@ -9,6 +9,7 @@ import (
 	"reflect"
 	"strings"
 	"unicode"
+	"unicode/utf8"
 
 	"github.com/trueset/trueset/manifest"
 )
@@ -491,12 +492,14 @@ func (r *Recipe) validateGlyph(d *yamlnode.Decoder, o *ObjectSpec, p string, par
 	if g.Chars == "" {
 		return d.ErrPath(p+".glyph.chars", "", "want at least one character")
 	}
+	// The bound is on the characters as written, repeats included, so it
+	// holds whatever the font covers.
+	if n := utf8.RuneCountInString(g.Chars); n > MaxChars {
+		return d.ErrPath(p+".glyph.chars", fmt.Sprintf("%d characters", n), "at most %d characters", MaxChars)
+	}
 	seen := map[rune]bool{}
 	o.chars = o.chars[:0]
 	for _, ch := range g.Chars {
-		if len(o.chars) >= MaxChars {
-			return d.ErrPath(p+".glyph.chars", "", "at most %d characters", MaxChars)
-		}
 		if unicode.IsSpace(ch) || !unicode.IsPrint(ch) {
 			return d.ErrPath(p+".glyph.chars", fmt.Sprintf("%q", ch), "characters must be printable and not blank")
 		}

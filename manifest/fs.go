@@ -4,9 +4,11 @@ import (
 	"errors"
 	"fmt"
 	"io"
+	"io/fs"
 	"os"
 	"path/filepath"
 	"sync"
+	"sync/atomic"
 	"syscall"
 )
 
@@ -101,7 +103,7 @@ func (w failFile) Write(b []byte) (int, error) {
 // and renames it into place, so a reader never sees a half-written file.
 // Temporary names start with "." and contain ".tmp", which resume cleans up.
 func writeAtomic(fsys FS, path string, b []byte) error {
-	f, err := fsys.CreateTemp(filepath.Dir(path), "."+filepath.Base(path)+".tmp*")
+	f, err := createTemp(fsys, path)
 	if err != nil {
 		return fmt.Errorf("write %s: %w", path, err)
 	}
@@ -117,6 +119,23 @@ func writeAtomic(fsys FS, path string, b []byte) error {
 		return fmt.Errorf("write %s: %w", path, err)
 	}
 	return nil
+}
+
+// tempSeq numbers this process's temporary files.
+var tempSeq atomic.Uint64
+
+// createTemp creates ".NAME.tmp<pid>-<n>" beside path with mode 0644 less
+// the umask, as os.WriteFile would; os.CreateTemp's 0600 would leave every
+// dataset file unreadable to the rest of a team.
+func createTemp(fsys FS, path string) (File, error) {
+	dir, base := filepath.Split(path)
+	for {
+		tmp := filepath.Join(dir, fmt.Sprintf(".%s.tmp%d-%d", base, os.Getpid(), tempSeq.Add(1)))
+		f, err := fsys.OpenFile(tmp, os.O_WRONLY|os.O_CREATE|os.O_EXCL, 0o644)
+		if !errors.Is(err, fs.ErrExist) {
+			return f, err
+		}
+	}
 }
 
 // unwrapPath drops an *os.PathError's own path (a temporary name) so the

@@ -13,6 +13,7 @@ import (
 	"io"
 	"os"
 	"path/filepath"
+	"sort"
 	"strings"
 )
 
@@ -56,11 +57,6 @@ func CreateWith(dir string, o CreateOptions) (*Writer, error) {
 	if ents, err := os.ReadDir(dir); err == nil && len(ents) > 0 && !o.Force {
 		return nil, fmt.Errorf("%s is not empty; choose a new folder or pass --force to write over a previous dataset", dir)
 	}
-	for _, sub := range []string{ImagesDir, MasksDir, InstancesDir} {
-		if err := fsys.MkdirAll(filepath.Join(dir, sub), 0o755); err != nil {
-			return nil, err
-		}
-	}
 	// A stale dataset.json would mark a half-written folder complete; it is
 	// removed only when it is a trueset one (--force never deletes files
 	// trueset did not write).
@@ -79,12 +75,22 @@ func CreateWith(dir string, o CreateOptions) (*Writer, error) {
 			}
 		}
 	}
+	// The marker goes first, so a run that cannot even write it (a full
+	// disk) leaves nothing behind that a new run would have to --force over.
+	if err := fsys.MkdirAll(dir, 0o755); err != nil {
+		return nil, err
+	}
 	w := &Writer{Dir: dir, fs: fsys, sum: sha256.New()}
 	if o.Marker != nil {
 		if err := writeAtomic(fsys, filepath.Join(dir, RunMarkerFile), o.Marker); err != nil {
 			return nil, err
 		}
 		w.marker = true
+	}
+	for _, sub := range []string{ImagesDir, MasksDir, InstancesDir} {
+		if err := fsys.MkdirAll(filepath.Join(dir, sub), 0o755); err != nil {
+			return nil, err
+		}
 	}
 	f, err := fsys.OpenFile(filepath.Join(dir, ManifestFile), os.O_RDWR|os.O_CREATE|os.O_TRUNC, 0o644)
 	if err != nil {
@@ -97,8 +103,77 @@ func CreateWith(dir string, o CreateOptions) (*Writer, error) {
 // ErrComplete is returned by Resume for a folder that is already finished.
 var ErrComplete = errors.New("the dataset is already complete (dataset.json is there); nothing to resume")
 
+// ErrNoRun matches (errors.Is) Resume's error for a folder without a run
+// marker.
+var ErrNoRun = errors.New("no run to resume")
+
+type noRunError struct{ dir string }
+
+func (e noRunError) Error() string {
+	return fmt.Sprintf("%s holds no interrupted trueset run (%s is missing); start a new run instead", e.dir, RunMarkerFile)
+}
+
+func (e noRunError) Is(target error) bool { return target == ErrNoRun }
+
+// MismatchError is Resume's refusal of a folder whose run marker names
+// another run (another seed, recipe, count, …).
+type MismatchError struct {
+	Dir        string
+	There, Now []byte // the run markers: in the folder, and of this run
+}
+
+func (e *MismatchError) Error() string {
+	return fmt.Sprintf("%s was started as a different run (%s); resume with the same recipe, seed and options, or write to a new folder",
+		e.Dir, strings.Join(markerDiff(e.There, e.Now), "; "))
+}
+
+// markerDiff names the fields in which two run markers differ, as
+// "seed is 1 there, 2 now"; both markers whole when they are not JSON objects.
+func markerDiff(there, now []byte) []string {
+	var a, b map[string]json.RawMessage
+	if json.Unmarshal(there, &a) != nil || json.Unmarshal(now, &b) != nil {
+		return []string{fmt.Sprintf("there: %s, now: %s", there, now)}
+	}
+	keys := map[string]bool{}
+	for k := range a {
+		keys[k] = true
+	}
+	for k := range b {
+		keys[k] = true
+	}
+	var diffs []string
+	for _, k := range sortedKeys(keys) {
+		x, y := a[k], b[k]
+		if bytes.Equal(x, y) {
+			continue
+		}
+		show := func(v json.RawMessage) string {
+			if v == nil {
+				return "absent"
+			}
+			return string(v)
+		}
+		diffs = append(diffs, fmt.Sprintf("%s is %s there, %s now", k, show(x), show(y)))
+	}
+	if len(diffs) == 0 {
+		return []string{fmt.Sprintf("there: %s, now: %s", there, now)}
+	}
+	return diffs
+}
+
+func sortedKeys(m map[string]bool) []string {
+	out := make([]string, 0, len(m))
+	for k := range m {
+		out = append(out, k)
+	}
+	sort.Strings(out)
+	return out
+}
+
 // Resume reopens an interrupted run in dir. The folder's run marker must
-// equal o.Marker. Leftover temporary files are removed; manifest.jsonl is
+// equal o.Marker (else a *MismatchError; no marker: an error wrapping
+// ErrNoRun; dataset.json there: ErrComplete, and a stale marker beside it is
+// removed). Leftover temporary files are removed; manifest.jsonl is
 // cut back to its longest prefix of complete records whose files are all
 // present with their SHA-256, then to keep(n) records of those n (so a
 // caller can cut back to a whole job). It returns the Writer, positioned to
@@ -108,18 +183,28 @@ func Resume(dir string, o CreateOptions, keep func(n int) int) (*Writer, int, er
 	if fsys == nil {
 		fsys = OS
 	}
+	mp := filepath.Join(dir, RunMarkerFile)
 	for _, name := range []string{DatasetFile, ShardFile} {
 		if _, err := os.Stat(filepath.Join(dir, name)); err == nil {
+			// A run killed between writing dataset.json and removing its
+			// marker is complete; the marker and temporary files are stale.
+			if _, err := os.Stat(mp); err == nil {
+				if err := removeTemps(fsys, dir); err != nil {
+					return nil, 0, err
+				}
+				if err := fsys.Remove(mp); err != nil {
+					return nil, 0, err
+				}
+			}
 			return nil, 0, ErrComplete
 		}
 	}
-	mp := filepath.Join(dir, RunMarkerFile)
 	got, err := os.ReadFile(mp)
 	if err != nil {
-		return nil, 0, fmt.Errorf("%s holds no interrupted trueset run (%s is missing); start a new run instead", dir, RunMarkerFile)
+		return nil, 0, noRunError{dir}
 	}
 	if !bytes.Equal(bytes.TrimSpace(got), bytes.TrimSpace(o.Marker)) {
-		return nil, 0, fmt.Errorf("%s was started as a different run:\n  there: %s\n  now:   %s\nresume with the same recipe, seed and options, or write to a new folder", dir, bytes.TrimSpace(got), bytes.TrimSpace(o.Marker))
+		return nil, 0, &MismatchError{Dir: dir, There: bytes.TrimSpace(got), Now: bytes.TrimSpace(o.Marker)}
 	}
 	if err := removeTemps(fsys, dir); err != nil {
 		return nil, 0, err

@@ -185,6 +185,9 @@ func runAugment(ctx context.Context, o *augmentOptions, stdout, stderr io.Writer
 		if errors.As(err, &pe) || strings.HasPrefix(err.Error(), "plan ") || strings.HasPrefix(err.Error(), "--splits") {
 			return usageError{err}
 		}
+		if resumeRefused(err) {
+			return usageError{err}
+		}
 		return interrupted(o.out, sum.Records, err, stderr)
 	}
 	for _, s := range sum.Skipped {

@@ -227,6 +227,9 @@ func runGenerate(ctx context.Context, o *generateOptions, stdout, stderr io.Writ
 		fmt.Fprintf(stdout, "%s: %v\n", o.out, err)
 		return nil
 	}
+	if resumeRefused(err) {
+		return usageError{err}
+	}
 	if err != nil {
 		return interrupted(o.out, sum.Samples, err, stderr)
 	}
@@ -280,6 +283,14 @@ func interrupted(out string, done int, err error, stderr io.Writer) error {
 		return errInterrupted
 	}
 	return fmt.Errorf("%s: %w (the folder has no dataset.json, so it is visibly incomplete; after fixing the cause, resume with: trueset %s)", out, err, strings.Join(args, " "))
+}
+
+// resumeRefused reports whether --resume was refused because --out holds
+// no interrupted run or another run's: the caller's mistake (exit 2), which
+// resuming again would not mend.
+func resumeRefused(err error) bool {
+	var mm *manifest.MismatchError
+	return errors.As(err, &mm) || errors.Is(err, manifest.ErrNoRun)
 }
 
 // errInterrupted is a stop by SIGINT or SIGTERM: exit code 1, message already printed.
