@@ -57,6 +57,7 @@ anyone can regenerate byte for byte from the recipe and the seed.`,
 	root.AddCommand(newGenerateCmd(stdout, stderr), newAugmentCmd(stdout, stderr), newSplitCmd(stdout, stderr), newVerifyCmd(stdout, stderr),
 		newMergeCmd(stdout), newPresetsCmd(stdout), newVersionCmd(stdout), newStatsCmd(stdout), newPreviewCmd(stdout))
 	root.AddCommand(newCompletionCmd(stdout), newManCmd(stdout))
+	root.AddCommand(newReportCmd(stdout))
 	return root
 }
 
