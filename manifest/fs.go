@@ -102,7 +102,23 @@ func (w failFile) Write(b []byte) (int, error) {
 // writeAtomic writes b to path through a temporary file in the same folder
 // and renames it into place, so a reader never sees a half-written file.
 // Temporary names start with "." and contain ".tmp", which resume cleans up.
+// On the real file system it takes the fast path (writeFileAtomic, fewer
+// system calls); through any other FS, or when that path's temporary name is
+// taken, the reference path below (os.CreateTemp rules).
 func writeAtomic(fsys FS, path string, b []byte) error {
+	if _, real := fsys.(osFS); real {
+		if ok, err := writeFileAtomic(path, b); ok {
+			if err != nil {
+				return fmt.Errorf("write %s: %w", path, err)
+			}
+			return nil
+		}
+	}
+	return writeAtomicReference(fsys, path, b)
+}
+
+// writeAtomicReference is writeAtomic through the FS interface.
+func writeAtomicReference(fsys FS, path string, b []byte) error {
 	f, err := createTemp(fsys, path)
 	if err != nil {
 		return fmt.Errorf("write %s: %w", path, err)

@@ -8,13 +8,18 @@ import (
 )
 
 // Encoder encodes images, semantic masks and instance masks as PNG
-// (ISO/IEC 15948). It keeps its deflate buffers between calls, like
-// image/png's EncoderBuffer, so a hot loop allocates little. An Encoder is not
-// safe for concurrent use; give each worker its own.
+// (ISO/IEC 15948). The images trueset writes (8-bit gray, opaque RGBA,
+// indexed masks, 16-bit instance maps) take a fast path (png_fast.go) with a
+// row filter and deflate level chosen per kind and buffers kept between
+// calls, so a hot loop allocates nothing; any other image goes through
+// image/png (encodeReference). Both give standard PNGs that decode to the
+// same pixels. An Encoder is not safe for concurrent use; give each worker
+// its own.
 type Encoder struct {
 	enc  png.Encoder
 	pool onePool
 	buf  bytes.Buffer
+	fast fastState
 }
 
 type onePool struct{ b *png.EncoderBuffer }
@@ -22,7 +27,7 @@ type onePool struct{ b *png.EncoderBuffer }
 func (p *onePool) Get() *png.EncoderBuffer  { return p.b }
 func (p *onePool) Put(b *png.EncoderBuffer) { p.b = b }
 
-// NewEncoder returns an Encoder using the default deflate level.
+// NewEncoder returns an Encoder.
 func NewEncoder() *Encoder {
 	e := &Encoder{}
 	e.enc.BufferPool = &e.pool
@@ -31,6 +36,15 @@ func NewEncoder() *Encoder {
 
 // Encode returns the PNG bytes of m. The slice is valid until the next call.
 func (e *Encoder) Encode(m image.Image) ([]byte, error) {
+	if b, ok, err := e.encodeFast(m); ok {
+		return b, err
+	}
+	return e.encodeReference(m)
+}
+
+// encodeReference is the simple path: image/png at its default settings
+// (zlib default level, adaptive row filters, none for indexed images).
+func (e *Encoder) encodeReference(m image.Image) ([]byte, error) {
 	e.buf.Reset()
 	if err := e.enc.Encode(&e.buf, m); err != nil {
 		return nil, err

@@ -3,8 +3,17 @@ package manifest
 import (
 	"bytes"
 	"encoding/binary"
+	"fmt"
+	"hash/crc32"
 	"image"
+	"image/color"
 	"image/png"
+	"math/rand/v2"
+	"os"
+	"os/exec"
+	"path/filepath"
+	"reflect"
+	"strings"
 	"testing"
 )
 
@@ -74,5 +83,222 @@ func TestMeasureInstancesLiteral(t *testing.T) {
 	s := MeasureInstances(m)
 	if len(s) != 2 || s[1].Area != 3 || s[1].BBox != [4]int{1, 0, 3, 2} || s[2].Area != 1 || s[2].BBox != [4]int{2, 1, 3, 2} {
 		t.Fatalf("got %+v %+v", s[1], s[2])
+	}
+}
+
+// decodeSame decodes a and b with image/png (the standard library's decoder,
+// an implementation we did not write) and fails unless both give the same
+// image type, bounds, pixels and palette.
+func decodeSame(t *testing.T, name string, a, b []byte) {
+	t.Helper()
+	ma, err := png.Decode(bytes.NewReader(a))
+	if err != nil {
+		t.Fatalf("%s: fast path output does not decode: %v", name, err)
+	}
+	mb, err := png.Decode(bytes.NewReader(b))
+	if err != nil {
+		t.Fatalf("%s: reference output does not decode: %v", name, err)
+	}
+	if fmt.Sprintf("%T", ma) != fmt.Sprintf("%T", mb) || ma.Bounds() != mb.Bounds() {
+		t.Fatalf("%s: fast decodes to %T %v, reference to %T %v", name, ma, ma.Bounds(), mb, mb.Bounds())
+	}
+	var pa, pb []uint8
+	switch ma := ma.(type) {
+	case *image.Gray:
+		pa, pb = ma.Pix, mb.(*image.Gray).Pix
+	case *image.RGBA:
+		pa, pb = ma.Pix, mb.(*image.RGBA).Pix
+	case *image.Gray16:
+		pa, pb = ma.Pix, mb.(*image.Gray16).Pix
+	case *image.Paletted:
+		pa, pb = ma.Pix, mb.(*image.Paletted).Pix
+		if !reflect.DeepEqual(ma.Palette, mb.(*image.Paletted).Palette) {
+			t.Fatalf("%s: palettes differ", name)
+		}
+	default:
+		t.Fatalf("%s: unexpected decoded type %T", name, ma)
+	}
+	if !bytes.Equal(pa, pb) {
+		t.Fatalf("%s: pixels differ", name)
+	}
+}
+
+// fastAndReference encodes m both ways; the fast path must take it.
+func fastAndReference(t *testing.T, name string, m image.Image) (fast, ref []byte) {
+	t.Helper()
+	e := NewEncoder()
+	b, ok, err := e.encodeFast(m)
+	if !ok || err != nil {
+		t.Fatalf("%s: fast path refused (%v, %v)", name, ok, err)
+	}
+	fast = append([]byte(nil), b...)
+	r, err := e.encodeReference(m)
+	if err != nil {
+		t.Fatal(err)
+	}
+	return fast, append([]byte(nil), r...)
+}
+
+// testImages returns gray, RGB, indexed and 16-bit images: tiny literal ones
+// (checkable by eye), random ones of odd sizes (every Paeth case: the
+// predictor picks a, b and c), flat and extreme ones, and sub-images whose
+// bounds do not start at the origin.
+func testImages() map[string]image.Image {
+	classes := []Class{{ID: 0, Name: "background"}, {ID: 1, Name: "a", Colour: [3]uint8{255, 0, 0}}, {ID: 2, Name: "b", Colour: [3]uint8{0, 255, 0}}}
+	out := map[string]image.Image{}
+
+	g := image.NewGray(image.Rect(0, 0, 3, 2))
+	g.Pix = []uint8{0, 128, 255, 7, 0, 200}
+	out["gray literal"] = g
+	c := image.NewRGBA(image.Rect(0, 0, 2, 2))
+	c.Pix = []uint8{255, 0, 0, 255, 0, 255, 0, 255, 0, 0, 255, 255, 10, 20, 30, 255}
+	out["rgb literal"] = c
+	p := image.NewPaletted(image.Rect(0, 0, 3, 2), Palette(classes))
+	p.Pix = []uint8{0, 1, 2, 2, 1, IgnoreID}
+	out["indexed literal"] = p
+	i16 := image.NewGray16(image.Rect(0, 0, 3, 2))
+	i16.Pix = []uint8{0, 0, 0, 1, 1, 44, 0, 0, 255, 255, 0, 1}
+	out["gray16 literal"] = i16
+
+	rng := rand.New(rand.NewPCG(7, 7))
+	for _, sz := range [][2]int{{1, 1}, {1, 9}, {9, 1}, {7, 5}, {64, 64}, {129, 33}} {
+		r := image.Rect(0, 0, sz[0], sz[1])
+		g, c, p, i16 := image.NewGray(r), image.NewRGBA(r), image.NewPaletted(r, Palette(classes)), image.NewGray16(r)
+		for k := range g.Pix {
+			g.Pix[k] = uint8(rng.IntN(256))
+			p.Pix[k] = uint8(rng.IntN(3))
+		}
+		for k := range c.Pix {
+			c.Pix[k] = uint8(rng.IntN(256))
+			if k%4 == 3 {
+				c.Pix[k] = 255
+			}
+		}
+		for k := range i16.Pix {
+			i16.Pix[k] = uint8(rng.IntN(256))
+		}
+		n := fmt.Sprintf("%dx%d", sz[0], sz[1])
+		out["gray random "+n], out["rgb random "+n], out["indexed random "+n], out["gray16 random "+n] = g, c, p, i16
+	}
+	flat := image.NewGray(image.Rect(0, 0, 40, 30))
+	for k := range flat.Pix {
+		flat.Pix[k] = 255
+	}
+	out["gray flat white"] = flat
+	big := image.NewGray16(image.Rect(0, 0, 40, 30))
+	for k := range big.Pix {
+		big.Pix[k] = 0xff
+	}
+	out["gray16 all 65535"] = big
+	r := image.Rect(3, 2, 50, 40)
+	out["gray sub-image"] = out["gray random 64x64"].(*image.Gray).SubImage(r)
+	out["rgb sub-image"] = out["rgb random 64x64"].(*image.RGBA).SubImage(r)
+	out["indexed sub-image"] = out["indexed random 64x64"].(*image.Paletted).SubImage(r)
+	out["gray16 sub-image"] = out["gray16 random 64x64"].(*image.Gray16).SubImage(r)
+	return out
+}
+
+// The fast path decodes, with image/png, to the same pixels as the
+// reference path for every kind of image trueset writes, and its IHDR says
+// the same colour type and bit depth.
+func TestFastEncoderMatchesReference(t *testing.T) {
+	for name, m := range testImages() {
+		fast, ref := fastAndReference(t, name, m)
+		decodeSame(t, name, fast, ref)
+		fw, fh, fd, fc := ihdr(t, fast)
+		rw, rh, rd, rc := ihdr(t, ref)
+		if fw != rw || fh != rh || fd != rd || fc != rc {
+			t.Fatalf("%s: fast IHDR %dx%d depth %d type %d, reference %dx%d depth %d type %d", name, fw, fh, fd, fc, rw, rh, rd, rc)
+		}
+	}
+}
+
+// Images the fast path does not handle go the reference way, and Encode
+// gives image/png's bytes for them.
+func TestFastEncoderDeclines(t *testing.T) {
+	r := image.Rect(0, 0, 4, 4)
+	translucent := image.NewRGBA(r)
+	translucent.Pix[3] = 128
+	small := image.NewPaletted(r, color.Palette{color.Black, color.White})
+	seeThrough := image.NewPaletted(r, append(Palette(nil)[:255:255], color.RGBA{}))
+	for name, m := range map[string]image.Image{
+		"translucent RGBA": translucent, "2-entry palette": small, "translucent palette entry": seeThrough,
+		"NRGBA": image.NewNRGBA(r), "empty": image.NewGray(image.Rect(0, 0, 0, 0)),
+	} {
+		e := NewEncoder()
+		if _, ok, _ := e.encodeFast(m); ok {
+			t.Fatalf("%s: fast path took it", name)
+		}
+		got, gerr := e.Encode(m)
+		var want bytes.Buffer
+		werr := png.Encode(&want, m)
+		if (gerr == nil) != (werr == nil) || !bytes.Equal(got, want.Bytes()) {
+			t.Fatalf("%s: Encode differs from image/png (%v, %v)", name, gerr, werr)
+		}
+	}
+}
+
+// Every chunk the fast path writes has a correct length and CRC-32 (ISO/IEC
+// 15948 §5.3), the chunks come in the order IHDR [PLTE] IDAT IEND, and the
+// zlib header is valid (RFC 1950 §2.2: CMF·256 + FLG is a multiple of 31).
+func TestFastEncoderChunks(t *testing.T) {
+	for name, m := range testImages() {
+		b, _ := fastAndReference(t, name, m)
+		var types []string
+		for off := 8; off < len(b); {
+			n := int(binary.BigEndian.Uint32(b[off:]))
+			typ := string(b[off+4 : off+8])
+			if crc32.ChecksumIEEE(b[off+4:off+8+n]) != binary.BigEndian.Uint32(b[off+8+n:]) {
+				t.Fatalf("%s: %s CRC wrong", name, typ)
+			}
+			if typ == "IDAT" && (uint16(b[off+8])<<8|uint16(b[off+9]))%31 != 0 {
+				t.Fatalf("%s: zlib header %x %x", name, b[off+8], b[off+9])
+			}
+			types = append(types, typ)
+			off += 12 + n
+		}
+		want := "IHDR IDAT IEND"
+		if _, ok := m.(*image.Paletted); ok {
+			want = "IHDR PLTE IDAT IEND"
+		}
+		if got := strings.Join(types, " "); got != want {
+			t.Fatalf("%s: chunks %s, want %s", name, got, want)
+		}
+	}
+}
+
+// The fast path allocates nothing once its buffers have grown.
+func TestFastEncoderAllocs(t *testing.T) {
+	ims := testImages()
+	e := NewEncoder()
+	for _, name := range []string{"gray random 64x64", "rgb random 64x64", "indexed random 64x64", "gray16 random 64x64"} {
+		m := ims[name]
+		e.Encode(m)
+		if n := testing.AllocsPerRun(20, func() { e.Encode(m) }); n != 0 {
+			t.Fatalf("%s: %v allocations per encode", name, n)
+		}
+	}
+}
+
+// pngcheck (Debian's package of the libpng project's checker) accepts the
+// fast path's files, when it is installed; bench/run.sh installs it.
+func TestFastEncoderPngcheck(t *testing.T) {
+	bin, err := exec.LookPath("pngcheck")
+	if err != nil {
+		t.Skip("pngcheck not installed (apt-get install pngcheck)")
+	}
+	dir := t.TempDir()
+	var files []string
+	for name, m := range testImages() {
+		b, _ := fastAndReference(t, name, m)
+		f := filepath.Join(dir, strings.ReplaceAll(name, " ", "_")+".png")
+		if err := os.WriteFile(f, b, 0o644); err != nil {
+			t.Fatal(err)
+		}
+		files = append(files, f)
+	}
+	out, err := exec.Command(bin, append([]string{"-q"}, files...)...).CombinedOutput()
+	if err != nil {
+		t.Fatalf("pngcheck: %v\n%s", err, out)
 	}
 }
