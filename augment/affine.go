@@ -10,22 +10,28 @@ type Mat [6]float64
 // Identity is the identity map.
 var Identity = Mat{1, 0, 0, 0, 1, 0}
 
-// Apply maps a point.
+// Apply maps a point. Every product is rounded before it is added: the
+// float64 conversions forbid fusing a multiply and an add into one FMA, which
+// the compiler does where it may (a GOAMD64=v3 build does; the default v1
+// does not), so every build computes what the default one does, and the warp
+// kernels (warp_fast.go) can compute the same sums from precomputed terms.
 func (m Mat) Apply(x, y float64) (float64, float64) {
-	return m[0]*x + m[1]*y + m[2], m[3]*x + m[4]*y + m[5]
+	return float64(m[0]*x) + float64(m[1]*y) + m[2], float64(m[3]*x) + float64(m[4]*y) + m[5]
 }
 
 // Then returns the map "m, then n" (n·m as 3×3 matrices with last row 0 0 1).
+// Like Apply, Then, Det and Invert round every product before adding it, so
+// no build fuses them into FMAs (the matrices go into the lineage).
 func (m Mat) Then(n Mat) Mat {
 	return Mat{
-		n[0]*m[0] + n[1]*m[3], n[0]*m[1] + n[1]*m[4], n[0]*m[2] + n[1]*m[5] + n[2],
-		n[3]*m[0] + n[4]*m[3], n[3]*m[1] + n[4]*m[4], n[3]*m[2] + n[4]*m[5] + n[5],
+		float64(n[0]*m[0]) + float64(n[1]*m[3]), float64(n[0]*m[1]) + float64(n[1]*m[4]), float64(n[0]*m[2]) + float64(n[1]*m[5]) + n[2],
+		float64(n[3]*m[0]) + float64(n[4]*m[3]), float64(n[3]*m[1]) + float64(n[4]*m[4]), float64(n[3]*m[2]) + float64(n[4]*m[5]) + n[5],
 	}
 }
 
 // Det is the determinant of the linear part: the factor areas scale by (its
 // sign is negative for a flip).
-func (m Mat) Det() float64 { return m[0]*m[4] - m[1]*m[3] }
+func (m Mat) Det() float64 { return float64(m[0]*m[4]) - float64(m[1]*m[3]) }
 
 // Invert returns the inverse map; ok is false for a singular matrix.
 func (m Mat) Invert() (Mat, bool) {
@@ -34,7 +40,7 @@ func (m Mat) Invert() (Mat, bool) {
 		return Mat{}, false
 	}
 	a, b, e, f := m[4]/d, -m[1]/d, -m[3]/d, m[0]/d
-	return Mat{a, b, -(a*m[2] + b*m[5]), e, f, -(e*m[2] + f*m[5])}, true
+	return Mat{a, b, -(float64(a*m[2]) + float64(b*m[5])), e, f, -(float64(e*m[2]) + float64(f*m[5]))}, true
 }
 
 // Translate moves by (tx, ty).

@@ -35,6 +35,7 @@ func (p *Plan) Copy(in *Input, seed uint64, src, k int, defs []manifest.TargetDe
 	W, H := in.Image.W, in.Image.H
 	var d *Drawn
 	var frac map[int]float64
+	var inst *image.Gray16
 	min := *p.Cut.MinVisible
 	tries := 1
 	if p.Cut.Policy == "resample" {
@@ -47,7 +48,8 @@ func (p *Plan) Copy(in *Input, seed uint64, src, k int, defs []manifest.TargetDe
 		if err != nil {
 			return nil, fmt.Errorf("%s copy %d: %w", in.Record.ID, k, err)
 		}
-		frac = keptFractions(in.Record.Objects, WarpInstances(in.Inst, d.M, d.W, d.H), d.M)
+		inst = WarpInstances(in.Inst, d.M, d.W, d.H)
+		frac = keptFractions(in.Record.Objects, inst, d.M)
 		ok = true
 		if p.Cut.Policy == "resample" {
 			for _, f := range frac {
@@ -61,7 +63,9 @@ func (p *Plan) Copy(in *Input, seed uint64, src, k int, defs []manifest.TargetDe
 	if !ok {
 		d.Ops = append(d.Ops, manifest.LineageOp{Op: "cut-policy", Params: map[string]float64{"resample_tries": float64(tries), "then_drop": 1}})
 	}
-	return p.render(in, d, defs)
+	// The last try's warped instance mask and kept fractions are what render
+	// would compute again from the same matrix; it takes them over.
+	return p.render(in, d, defs, inst, frac)
 }
 
 // lineageGeometric are the lineage names of geometric steps (their effect
@@ -79,16 +83,20 @@ func (p *Plan) Replay(in *Input, lin *manifest.Lineage, w, h int, defs []manifes
 			d.photo = append(d.photo, photoOp{op.Op, op.Params, i})
 		}
 	}
-	return p.render(in, d, defs)
+	return p.render(in, d, defs, nil, nil)
 }
 
 // render warps and relabels a drawn copy: image by the plan's interpolation
 // and fill, masks by nearest neighbour with the same matrix; objects cut below
 // cut.min_visible are erased (to "ignore") under the drop policy, or when a
-// resample ran out of tries; then the photometric steps run in order.
-func (p *Plan) render(in *Input, d *Drawn, defs []manifest.TargetDef) (*Output, error) {
-	inst := WarpInstances(in.Inst, d.M, d.W, d.H)
-	frac := keptFractions(in.Record.Objects, inst, d.M)
+// resample ran out of tries; then the photometric steps run in order. inst
+// and frac, when not nil, are the instance mask already warped by d.M and its
+// keptFractions (render owns inst from then on).
+func (p *Plan) render(in *Input, d *Drawn, defs []manifest.TargetDef, inst *image.Gray16, frac map[int]float64) (*Output, error) {
+	if inst == nil {
+		inst = WarpInstances(in.Inst, d.M, d.W, d.H)
+		frac = keptFractions(in.Record.Objects, inst, d.M)
+	}
 	drop := p.Cut.Policy == "drop"
 	for _, op := range d.Ops {
 		if op.Op == "cut-policy" {

@@ -12,7 +12,9 @@
 //     instance masks by nearest neighbour under the same matrix. Every
 //     destination pixel centre (x+0.5, y+0.5) is mapped back to the source.
 //     Quarter turns and flips use exact matrices, so they move pixels
-//     without resampling error.
+//     without resampling error. The warps run fast kernels (warp_fast.go:
+//     raw planes, per-row terms, direct taps inside, copies for quarter
+//     turns) that give the reference kernels' values bit for bit.
 //   - Photometric steps (photometric.go) run afterwards on the warped image in
 //     plan order and never touch masks; cutout may mark its pixels "ignore"
 //     (manifest.IgnoreID) when asked.

@@ -4,7 +4,6 @@ import (
 	"image"
 	"image/color"
 	"image/draw"
-	"math"
 )
 
 // Image is a working image: C channels (1 = gray, 3 = RGB) of float32
@@ -76,7 +75,9 @@ func isGray(m image.Image) bool {
 	return false
 }
 
-// u8 rounds to nearest and clamps to 0..255.
+// u8 rounds to nearest and clamps to 0..255: floor(v + ½), computed as the
+// integer truncation of v + ½, which is the floor for the positive values
+// that reach it (TestU8 checks it against the definition).
 func u8(v float32) uint8 {
 	if !(v > 0) { // also NaN
 		return 0
@@ -84,7 +85,7 @@ func u8(v float32) uint8 {
 	if v >= 255 {
 		return 255
 	}
-	return uint8(math.Floor(float64(v) + 0.5))
+	return uint8(float64(v) + 0.5)
 }
 
 // ToImage rounds to 8 bits: *image.Gray for C = 1, opaque *image.RGBA for C = 3.
@@ -98,11 +99,10 @@ func (m *Image) ToImage() image.Image {
 		return g
 	}
 	out := image.NewRGBA(r)
-	for i := 0; i < m.W*m.H; i++ {
-		out.Pix[4*i] = u8(m.Pix[3*i])
-		out.Pix[4*i+1] = u8(m.Pix[3*i+1])
-		out.Pix[4*i+2] = u8(m.Pix[3*i+2])
-		out.Pix[4*i+3] = 255
+	src, dst := m.Pix[:3*m.W*m.H], out.Pix[:4*m.W*m.H]
+	for len(src) >= 3 && len(dst) >= 4 {
+		dst[0], dst[1], dst[2], dst[3] = u8(src[0]), u8(src[1]), u8(src[2]), 255
+		src, dst = src[3:], dst[4:]
 	}
 	return out
 }

@@ -47,14 +47,21 @@ func (f Fill) index(i, n int) (int, bool) {
 // keys is Keys' cubic convolution kernel with a = −0.5 (R. Keys, "Cubic
 // convolution interpolation for digital image processing", IEEE Trans.
 // ASSP 29(6), 1981).
+//
+// The float64 conversions round each product before it is added, so no
+// build fuses them into FMAs and the kernel has the same values everywhere
+// (see Mat.Apply).
 func keys(t float64) float64 {
 	const a = -0.5
 	t = math.Abs(t)
 	switch {
-	case t <= 1:
-		return ((a+2)*t-(a+3))*t*t + 1
-	case t < 2:
-		return ((a*t-5*a)*t+8*a)*t - 4*a
+	case t <= 1: // ((a+2)t − (a+3))t² + 1
+		p := float64((a+2)*t) - (a + 3)
+		return float64(p*t*t) + 1
+	case t < 2: // ((at − 5a)t + 8a)t − 4a
+		p := float64(a*t) - 5*a
+		p = float64(p*t) + 8*a
+		return float64(p*t) - 4*a
 	}
 	return 0
 }
@@ -65,74 +72,106 @@ func keys(t float64) float64 {
 // (i+0.5, j+0.5). Bilinear interpolation at a point with fractional offsets
 // (fx, fy) from tap (i, j) weighs the four taps by (1−fx)(1−fy), fx(1−fy),
 // (1−fx)fy and fx·fy.
+//
+// It runs the fast kernels of warp_fast.go, which give the same float32
+// values, bit for bit, as the reference warpImageRef for finite source
+// samples (all a decoded image holds); warp_fast_test.go checks that.
 func WarpImage(src *Image, m Mat, ow, oh int, interp Interp, fill Fill) *Image {
+	inv, ok := m.Invert()
+	if !ok || !fastWarpOK(inv, ow, oh) || (src.C != 1 && src.C != 3) || len(src.Pix) != src.W*src.H*src.C {
+		return warpImageRef(src, m, ow, oh, interp, fill)
+	}
+	dst := NewImage(ow, oh, src.C)
+	if q, ok := quarterOf(inv); ok {
+		warpImageQuarter(dst, src, inv, q, interp, fill)
+	} else if interp == Bicubic {
+		warpBicubic(dst, src, inv, fill)
+	} else {
+		warpBilinear(dst, src, inv, fill)
+	}
+	return dst
+}
+
+// warpImageRef is the reference image warp: every destination pixel sampled
+// on its own by sampleRef. The fast kernels are tested against it.
+func warpImageRef(src *Image, m Mat, ow, oh int, interp Interp, fill Fill) *Image {
 	inv, ok := m.Invert()
 	dst := NewImage(ow, oh, src.C)
 	if !ok {
 		return dst
 	}
 	C := src.C
-	var acc [3]float64
 	for y := 0; y < oh; y++ {
 		for x := 0; x < ow; x++ {
-			u, v := inv.Apply(float64(x)+0.5, float64(y)+0.5)
-			u, v = u-0.5, v-0.5
-			i0, j0 := math.Floor(u), math.Floor(v)
-			fx, fy := u-i0, v-j0
-			acc = [3]float64{}
-			if interp == Bicubic {
-				for dj := -1; dj <= 2; dj++ {
-					wy := keys(fy - float64(dj))
-					jj, okj := fill.index(int(j0)+dj, src.H)
-					for di := -1; di <= 2; di++ {
-						w := wy * keys(fx-float64(di))
-						ii, oki := fill.index(int(i0)+di, src.W)
-						for c := 0; c < C; c++ {
-							if okj && oki {
-								acc[c] += w * float64(src.Pix[(jj*src.W+ii)*C+c])
-							} else {
-								acc[c] += w * float64(fill.Value[c])
-							}
-						}
-					}
-				}
-			} else {
-				for dj := 0; dj <= 1; dj++ {
-					wy := 1 - fy
-					if dj == 1 {
-						wy = fy
-					}
-					if wy == 0 {
-						continue
-					}
-					jj, okj := fill.index(int(j0)+dj, src.H)
-					for di := 0; di <= 1; di++ {
-						wx := 1 - fx
-						if di == 1 {
-							wx = fx
-						}
-						if wx == 0 {
-							continue
-						}
-						w := wx * wy
-						ii, oki := fill.index(int(i0)+di, src.W)
-						for c := 0; c < C; c++ {
-							if okj && oki {
-								acc[c] += w * float64(src.Pix[(jj*src.W+ii)*C+c])
-							} else {
-								acc[c] += w * float64(fill.Value[c])
-							}
-						}
-					}
-				}
-			}
 			o := (y*ow + x) * C
-			for c := 0; c < C; c++ {
-				dst.Pix[o+c] = float32(acc[c])
-			}
+			sampleRef(src, inv, x, y, interp, fill, dst.Pix[o:o+C])
 		}
 	}
 	return dst
+}
+
+// sampleRef computes destination pixel (x, y) of a warp by inv (the inverse
+// of the warp's matrix) into out (C values): the preimage of its centre,
+// then the bilinear (2×2) or bicubic (4×4) taps with the fill mode deciding
+// taps outside the source. The fast kernels call it for the pixels they do
+// not handle themselves (near the borders), so those are computed by the
+// reference code itself.
+func sampleRef(src *Image, inv Mat, x, y int, interp Interp, fill Fill, out []float32) {
+	C := src.C
+	var acc [3]float64
+	u, v := inv.Apply(float64(x)+0.5, float64(y)+0.5)
+	u, v = u-0.5, v-0.5
+	i0, j0 := math.Floor(u), math.Floor(v)
+	fx, fy := u-i0, v-j0
+	if interp == Bicubic {
+		for dj := -1; dj <= 2; dj++ {
+			wy := keys(fy - float64(dj))
+			jj, okj := fill.index(int(j0)+dj, src.H)
+			for di := -1; di <= 2; di++ {
+				w := wy * keys(fx-float64(di))
+				ii, oki := fill.index(int(i0)+di, src.W)
+				for c := 0; c < C; c++ {
+					if okj && oki {
+						acc[c] += float64(w * float64(src.Pix[(jj*src.W+ii)*C+c]))
+					} else {
+						acc[c] += float64(w * float64(fill.Value[c]))
+					}
+				}
+			}
+		}
+	} else {
+		for dj := 0; dj <= 1; dj++ {
+			wy := 1 - fy
+			if dj == 1 {
+				wy = fy
+			}
+			if wy == 0 {
+				continue
+			}
+			jj, okj := fill.index(int(j0)+dj, src.H)
+			for di := 0; di <= 1; di++ {
+				wx := 1 - fx
+				if di == 1 {
+					wx = fx
+				}
+				if wx == 0 {
+					continue
+				}
+				w := wx * wy
+				ii, oki := fill.index(int(i0)+di, src.W)
+				for c := 0; c < C; c++ {
+					if okj && oki {
+						acc[c] += float64(w * float64(src.Pix[(jj*src.W+ii)*C+c]))
+					} else {
+						acc[c] += float64(w * float64(fill.Value[c]))
+					}
+				}
+			}
+		}
+	}
+	for c := 0; c < C; c++ {
+		out[c] = float32(acc[c])
+	}
 }
 
 // nearest returns the source pixel that contains the preimage of destination
@@ -148,8 +187,24 @@ func nearest(inv Mat, x, y, w, h int) (int, int, bool) {
 
 // WarpMask resamples a semantic mask through m by nearest neighbour under the
 // same pixel-centre convention as WarpImage; pixels whose preimage leaves the
-// source take fillID.
+// source take fillID. It runs the fast kernels of warp_fast.go, which give
+// the same pixels as the reference warpMaskRef.
 func WarpMask(src *image.Paletted, m Mat, ow, oh int, fillID uint8) *image.Paletted {
+	inv, ok := m.Invert()
+	if !ok || !fastWarpOK(inv, ow, oh) || !fastPlaneOK(src.Rect, src.Stride, 1, len(src.Pix)) {
+		return warpMaskRef(src, m, ow, oh, fillID)
+	}
+	dst := image.NewPaletted(image.Rect(0, 0, ow, oh), src.Palette)
+	if q, ok := quarterOf(inv); ok {
+		quarterPlane(dst.Pix, dst.Stride, ow, oh, src.Pix, src.Stride, src.Rect.Dx(), src.Rect.Dy(), 1, q, []byte{fillID})
+	} else {
+		nearestPlane(dst.Pix, dst.Stride, ow, oh, src.Pix, src.Stride, src.Rect.Dx(), src.Rect.Dy(), 1, inv, []byte{fillID})
+	}
+	return dst
+}
+
+// warpMaskRef is the reference mask warp: nearest for every pixel.
+func warpMaskRef(src *image.Paletted, m Mat, ow, oh int, fillID uint8) *image.Paletted {
 	dst := image.NewPaletted(image.Rect(0, 0, ow, oh), src.Palette)
 	inv, ok := m.Invert()
 	w, h := src.Rect.Dx(), src.Rect.Dy()
@@ -168,8 +223,24 @@ func WarpMask(src *image.Paletted, m Mat, ow, oh int, fillID uint8) *image.Palet
 }
 
 // WarpInstances resamples an instance mask like WarpMask; outside pixels
-// become 0 (no instance).
+// become 0 (no instance). Fast kernels as WarpMask; the reference is
+// warpInstancesRef.
 func WarpInstances(src *image.Gray16, m Mat, ow, oh int) *image.Gray16 {
+	inv, ok := m.Invert()
+	if !ok || !fastWarpOK(inv, ow, oh) || !fastPlaneOK(src.Rect, src.Stride, 2, len(src.Pix)) {
+		return warpInstancesRef(src, m, ow, oh)
+	}
+	dst := image.NewGray16(image.Rect(0, 0, ow, oh))
+	if q, ok := quarterOf(inv); ok {
+		quarterPlane(dst.Pix, dst.Stride, ow, oh, src.Pix, src.Stride, src.Rect.Dx(), src.Rect.Dy(), 2, q, []byte{0, 0})
+	} else {
+		nearestPlane(dst.Pix, dst.Stride, ow, oh, src.Pix, src.Stride, src.Rect.Dx(), src.Rect.Dy(), 2, inv, []byte{0, 0})
+	}
+	return dst
+}
+
+// warpInstancesRef is the reference instance warp: nearest for every pixel.
+func warpInstancesRef(src *image.Gray16, m Mat, ow, oh int) *image.Gray16 {
 	dst := image.NewGray16(image.Rect(0, 0, ow, oh))
 	inv, ok := m.Invert()
 	if !ok {

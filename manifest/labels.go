@@ -14,6 +14,9 @@ type InstanceStats struct {
 func MeasureInstances(m *image.Gray16) map[int]*InstanceStats {
 	out := map[int]*InstanceStats{}
 	b := m.Bounds()
+	// Pixels of one instance come in runs along a row: the map is looked up
+	// only where the id changes.
+	last, s := 0, (*InstanceStats)(nil)
 	for y := b.Min.Y; y < b.Max.Y; y++ {
 		row := m.Pix[(y-b.Min.Y)*m.Stride:]
 		for x := b.Min.X; x < b.Max.X; x++ {
@@ -22,10 +25,12 @@ func MeasureInstances(m *image.Gray16) map[int]*InstanceStats {
 			if id == 0 {
 				continue
 			}
-			s := out[id]
-			if s == nil {
-				s = &InstanceStats{BBox: [4]int{x, y, x + 1, y + 1}}
-				out[id] = s
+			if id != last {
+				last, s = id, out[id]
+				if s == nil {
+					s = &InstanceStats{BBox: [4]int{x, y, x + 1, y + 1}}
+					out[id] = s
+				}
 			}
 			s.Area++
 			if x < s.BBox[0] {

@@ -1,0 +1,290 @@
+package augment
+
+import (
+	"image"
+	"math"
+)
+
+// Fast warp kernels. Each gives the same values, bit for bit, as its
+// reference in warp.go (warpImageRef, warpMaskRef, warpInstancesRef), which
+// warp_fast_test.go checks; they are faster because they
+//   - loop over the raw planes, with no per-pixel calls or interface values;
+//   - compute each preimage with the reference's own expression (Mat.Apply),
+//     (inv[0]·(x+½) + inv[1]·(y+½)) + inv[2], but with inv[0]·(x+½) taken
+//     from a table per column and inv[1]·(y+½) once per row, so the rounded
+//     result is the same and not an accumulated one; like the reference,
+//     every product is rounded before it is added (the float64
+//     conversions), so no build fuses them into FMAs on one side and not the
+//     other (the tests pass built with GOAMD64=v3, which fuses where allowed);
+//   - sample all the taps of a pixel directly where they all lie inside the
+//     source, leaving only the pixels near the borders (where the fill mode
+//     decides) to the reference's own per-pixel code, sampleRef;
+//   - move pixels by integer indices where the map is an exact flip or
+//     quarter turn (every centre lands on a centre): pure copies.
+//
+// Bit-identity relies on three facts of IEEE 754 arithmetic in round to
+// nearest: adding ±0 to a sum that is not −0 leaves it unchanged (so the
+// reference's skipping of zero-weight taps changes nothing; its sums start at
+// +0 and so are never −0), multiplication commutes exactly, and sums of small
+// multiples of ½ are exact. The first needs finite samples: 0·Inf is NaN
+// while a skipped tap contributes nothing. Decoded images are finite.
+
+// fastWarpOK says whether the fast kernels may run: a finite inverse and an
+// output small enough that integer coordinate arithmetic cannot overflow.
+func fastWarpOK(inv Mat, ow, oh int) bool {
+	for _, v := range inv {
+		if math.IsNaN(v) || math.IsInf(v, 0) {
+			return false
+		}
+	}
+	return ow > 0 && oh > 0 && ow < 1<<24 && oh < 1<<24
+}
+
+// fastPlaneOK says whether a mask plane is laid out as the kernels assume:
+// origin at (0, 0), bpp bytes per pixel, rows of stride bytes, all present.
+func fastPlaneOK(r image.Rectangle, stride, bpp, n int) bool {
+	w, h := r.Dx(), r.Dy()
+	return r.Min == (image.Point{}) && w > 0 && h > 0 && stride >= w*bpp && n >= (h-1)*stride+w*bpp
+}
+
+// columnTerms returns inv[0]·(x+½) and inv[3]·(x+½) for x in 0..ow-1.
+func columnTerms(inv Mat, ow int) (au, av []float64) {
+	t := make([]float64, 2*ow)
+	au, av = t[:ow], t[ow:]
+	for x := range au {
+		xc := float64(x) + 0.5
+		au[x], av[x] = inv[0]*xc, inv[3]*xc
+	}
+	return au, av
+}
+
+// quarter is an exact flip or quarter turn: destination pixel (x, y) shows
+// source pixel (i0 + ix·x + iy·y, j0 + jx·x + jy·y).
+type quarter struct{ i0, j0, ix, iy, jx, jy int }
+
+// quarterOf recognises an inverse map that moves pixel centres onto pixel
+// centres: its linear part a signed permutation of ±1 entries and the
+// preimage of the first centre a centre. The reference's preimages are then
+// exact (sums of small multiples of ½), so the integer indices here are the
+// very pixels it samples, with fractional offsets 0.
+func quarterOf(inv Mat) (quarter, bool) {
+	a, b, d, e := inv[0], inv[1], inv[3], inv[4]
+	unit := func(t float64) bool { return t == 1 || t == -1 }
+	if !(b == 0 && d == 0 && unit(a) && unit(e)) && !(a == 0 && e == 0 && unit(b) && unit(d)) {
+		return quarter{}, false
+	}
+	if math.Abs(inv[2]) > 1<<26 || math.Abs(inv[5]) > 1<<26 {
+		return quarter{}, false
+	}
+	u, v := inv.Apply(0.5, 0.5)
+	u, v = u-0.5, v-0.5
+	if u != math.Floor(u) || v != math.Floor(v) {
+		return quarter{}, false
+	}
+	return quarter{int(u), int(v), int(a), int(b), int(d), int(e)}, true
+}
+
+// warpImageQuarter copies pixels for an exact flip or quarter turn. Where the
+// source pixel exists the reference's sum is 0 + 1·p (bilinear: the other
+// taps have weight 0 and are skipped; bicubic: Keys' kernel is 1 at 0 and 0
+// at ±1 and ±2, so the other taps add ±0), hence p + 0; elsewhere the fill
+// mode decides and sampleRef computes the pixel.
+func warpImageQuarter(dst, src *Image, inv Mat, q quarter, interp Interp, fill Fill) {
+	W, H, C := src.W, src.H, src.C
+	sp, dp := src.Pix, dst.Pix
+	for y := 0; y < dst.H; y++ {
+		i, j := q.i0+q.iy*y, q.j0+q.jy*y
+		row := dp[y*dst.W*C : (y+1)*dst.W*C]
+		for x := 0; x < dst.W; x++ {
+			if uint(i) < uint(W) && uint(j) < uint(H) {
+				s := (j*W + i) * C
+				if C == 3 {
+					o := row[3*x : 3*x+3 : 3*x+3]
+					p := sp[s : s+3 : s+3]
+					o[0], o[1], o[2] = p[0]+0, p[1]+0, p[2]+0
+				} else {
+					row[x] = sp[s] + 0
+				}
+			} else {
+				sampleRef(src, inv, x, y, interp, fill, row[x*C:x*C+C])
+			}
+			i += q.ix
+			j += q.jx
+		}
+	}
+}
+
+// warpBilinear is the bilinear warp for a general map. A pixel whose
+// preimage (u, v) (less ½) has 0 ≤ u < W−1 and 0 ≤ v < H−1 has all four taps
+// inside: its floor is then the integer truncation and its weights and sums
+// are the reference's, in the reference's order.
+func warpBilinear(dst, src *Image, inv Mat, fill Fill) {
+	W, C := src.W, src.C
+	au, av := columnTerms(inv, dst.W)
+	uMax, vMax := float64(src.W-1), float64(src.H-1)
+	sp := src.Pix
+	stride := W * C
+	for y := 0; y < dst.H; y++ {
+		yc := float64(y) + 0.5
+		tu, tv := float64(inv[1]*yc), float64(inv[4]*yc)
+		row := dst.Pix[y*dst.W*C : (y+1)*dst.W*C]
+		for x := range au {
+			u := au[x] + tu + inv[2] - 0.5
+			v := av[x] + tv + inv[5] - 0.5
+			if !(u >= 0 && u < uMax && v >= 0 && v < vMax) {
+				sampleRef(src, inv, x, y, Bilinear, fill, row[x*C:x*C+C])
+				continue
+			}
+			i, j := int(u), int(v)
+			fx, fy := u-float64(i), v-float64(j)
+			gx, gy := 1-fx, 1-fy
+			w00, w10, w01, w11 := gx*gy, fx*gy, gx*fy, fx*fy
+			s := j*stride + i*C
+			if C == 3 {
+				p := sp[s : s+6 : s+6]
+				q := sp[s+stride : s+stride+6 : s+stride+6]
+				o := row[3*x : 3*x+3 : 3*x+3]
+				o[0] = float32(0 + float64(w00*float64(p[0])) + float64(w10*float64(p[3])) + float64(w01*float64(q[0])) + float64(w11*float64(q[3])))
+				o[1] = float32(0 + float64(w00*float64(p[1])) + float64(w10*float64(p[4])) + float64(w01*float64(q[1])) + float64(w11*float64(q[4])))
+				o[2] = float32(0 + float64(w00*float64(p[2])) + float64(w10*float64(p[5])) + float64(w01*float64(q[2])) + float64(w11*float64(q[5])))
+			} else {
+				p := sp[s : s+2 : s+2]
+				q := sp[s+stride : s+stride+2 : s+stride+2]
+				row[x] = float32(0 + float64(w00*float64(p[0])) + float64(w10*float64(p[1])) + float64(w01*float64(q[0])) + float64(w11*float64(q[1])))
+			}
+		}
+	}
+}
+
+// warpBicubic is the bicubic warp for a general map: all 16 taps lie inside
+// where 1 ≤ u < W−2 and 1 ≤ v < H−2. The 4 + 4 kernel weights are computed
+// once per pixel (the reference computes the same values 4 + 16 times) and
+// the 16 products summed in the reference's order, row by row.
+func warpBicubic(dst, src *Image, inv Mat, fill Fill) {
+	W, C := src.W, src.C
+	au, av := columnTerms(inv, dst.W)
+	uMax, vMax := float64(src.W-2), float64(src.H-2)
+	sp := src.Pix
+	stride := W * C
+	var kx, ky [4]float64
+	for y := 0; y < dst.H; y++ {
+		yc := float64(y) + 0.5
+		tu, tv := float64(inv[1]*yc), float64(inv[4]*yc)
+		row := dst.Pix[y*dst.W*C : (y+1)*dst.W*C]
+		for x := range au {
+			u := au[x] + tu + inv[2] - 0.5
+			v := av[x] + tv + inv[5] - 0.5
+			if !(u >= 1 && u < uMax && v >= 1 && v < vMax) {
+				sampleRef(src, inv, x, y, Bicubic, fill, row[x*C:x*C+C])
+				continue
+			}
+			i, j := int(u), int(v)
+			fx, fy := u-float64(i), v-float64(j)
+			for k := range kx {
+				kx[k] = keys(fx - float64(k-1))
+				ky[k] = keys(fy - float64(k-1))
+			}
+			s := (j-1)*stride + (i-1)*C
+			if C == 3 {
+				var a0, a1, a2 float64
+				for dj := 0; dj < 4; dj++ {
+					p := sp[s+dj*stride : s+dj*stride+12 : s+dj*stride+12]
+					wy := ky[dj]
+					for di := 0; di < 4; di++ {
+						w := wy * kx[di]
+						a0 += float64(w * float64(p[3*di]))
+						a1 += float64(w * float64(p[3*di+1]))
+						a2 += float64(w * float64(p[3*di+2]))
+					}
+				}
+				o := row[3*x : 3*x+3 : 3*x+3]
+				o[0], o[1], o[2] = float32(a0), float32(a1), float32(a2)
+			} else {
+				var a0 float64
+				for dj := 0; dj < 4; dj++ {
+					p := sp[s+dj*stride : s+dj*stride+4 : s+dj*stride+4]
+					wy := ky[dj]
+					for di := 0; di < 4; di++ {
+						a0 += float64(wy * kx[di] * float64(p[di]))
+					}
+				}
+				row[x] = float32(a0)
+			}
+		}
+	}
+}
+
+// nearestPlane is the nearest-neighbour warp of a mask plane of bpp bytes a
+// pixel (1: class ids, 2: 16-bit instance ids): the reference's test
+// floor(u) ∈ [0, w) is u ∈ [0, w), after which floor is truncation. Pixels
+// outside take the bpp bytes of fill.
+func nearestPlane(dp []byte, dstride, ow, oh int, sp []byte, sstride, w, h, bpp int, inv Mat, fill []byte) {
+	au, av := columnTerms(inv, ow)
+	fw, fh := float64(w), float64(h)
+	for y := 0; y < oh; y++ {
+		yc := float64(y) + 0.5
+		tu, tv := float64(inv[1]*yc), float64(inv[4]*yc)
+		row := dp[y*dstride : y*dstride+ow*bpp]
+		if bpp == 1 {
+			f := fill[0]
+			for x := range row {
+				u := au[x] + tu + inv[2]
+				v := av[x] + tv + inv[5]
+				if u >= 0 && u < fw && v >= 0 && v < fh {
+					row[x] = sp[int(v)*sstride+int(u)]
+				} else {
+					row[x] = f
+				}
+			}
+			continue
+		}
+		f0, f1 := fill[0], fill[1]
+		for x := range au {
+			u := au[x] + tu + inv[2]
+			v := av[x] + tv + inv[5]
+			o := row[2*x : 2*x+2 : 2*x+2]
+			if u >= 0 && u < fw && v >= 0 && v < fh {
+				s := int(v)*sstride + 2*int(u)
+				p := sp[s : s+2 : s+2]
+				o[0], o[1] = p[0], p[1]
+			} else {
+				o[0], o[1] = f0, f1
+			}
+		}
+	}
+}
+
+// quarterPlane is nearestPlane for an exact flip or quarter turn: the
+// reference's preimages are then pixel centres i + ½, whose floor is i.
+func quarterPlane(dp []byte, dstride, ow, oh int, sp []byte, sstride, w, h, bpp int, q quarter, fill []byte) {
+	for y := 0; y < oh; y++ {
+		i, j := q.i0+q.iy*y, q.j0+q.jy*y
+		row := dp[y*dstride : y*dstride+ow*bpp]
+		if bpp == 1 {
+			f := fill[0]
+			for x := range row {
+				if uint(i) < uint(w) && uint(j) < uint(h) {
+					row[x] = sp[j*sstride+i]
+				} else {
+					row[x] = f
+				}
+				i += q.ix
+				j += q.jx
+			}
+			continue
+		}
+		f0, f1 := fill[0], fill[1]
+		for x := 0; x < ow; x++ {
+			o := row[2*x : 2*x+2 : 2*x+2]
+			if uint(i) < uint(w) && uint(j) < uint(h) {
+				s := j*sstride + 2*i
+				p := sp[s : s+2 : s+2]
+				o[0], o[1] = p[0], p[1]
+			} else {
+				o[0], o[1] = f0, f1
+			}
+			i += q.ix
+			j += q.jx
+		}
+	}
+}
