@@ -64,8 +64,18 @@ func run(count, workers int, preset string, seed uint64, out string) error {
 	// Not timed: render every sample, and the manifest with the same split,
 	// strata and record layout trueset writes (checksums are placeholders of
 	// the same length).
-	splits, _ := manifest.ParseSplits(manifest.DefaultSplits)
-	keys, alloc, err := gen.Allocate(r, seed, count, workers, splits, "")
+	spec, key := manifest.DefaultSplits, ""
+	if r.Split != nil {
+		key = r.Split.Stratify
+		if r.Split.Ratios != "" {
+			spec = r.Split.Ratios
+		}
+	}
+	splits, err := manifest.ParseSplits(spec)
+	if err != nil {
+		return err
+	}
+	keys, alloc, err := gen.Allocate(r, seed, count, workers, splits, key)
 	if err != nil {
 		return err
 	}
