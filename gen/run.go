@@ -65,12 +65,15 @@ func (e *CoverageError) Error() string {
 }
 
 // Allocate computes the stratum of every sample from its plan and deals the
-// samples (each its own group) to splits. It is the same on every shard.
-func Allocate(r *Recipe, seed uint64, count, workers int, splits manifest.Splits, key string) ([]string, *manifest.Allocation, error) {
+// samples (each its own group) to splits. It is the same on every shard. It
+// returns each sample's stratum as an index into names, 4 bytes a sample.
+func Allocate(r *Recipe, seed uint64, count, workers int, splits manifest.Splits, key string) (ids []int32, names []string, a *manifest.Allocation, err error) {
 	if err := r.CheckStratify(key); err != nil {
-		return nil, nil, err
+		return nil, nil, nil, err
 	}
-	keys := make([]string, count)
+	ids = make([]int32, count)
+	index := map[string]int32{}
+	var mu sync.Mutex
 	errs := make([]error, workers)
 	var wg sync.WaitGroup
 	for w := 0; w < workers; w++ {
@@ -83,26 +86,26 @@ func Allocate(r *Recipe, seed uint64, count, workers int, splits manifest.Splits
 					errs[w] = err
 					return
 				}
-				keys[i] = k
+				mu.Lock()
+				id, ok := index[k]
+				if !ok {
+					id = int32(len(names))
+					index[k] = id
+					names = append(names, k)
+				}
+				mu.Unlock()
+				ids[i] = id
 			}
 		}(w)
 	}
 	wg.Wait()
 	for _, err := range errs {
 		if err != nil {
-			return nil, nil, err
+			return nil, nil, nil, err
 		}
 	}
-	intern := map[string]string{}
-	for i, k := range keys {
-		if s, ok := intern[k]; ok {
-			keys[i] = s
-		} else {
-			intern[k] = k
-		}
-	}
-	a, err := manifest.AllocateStrata(seed, keys, splits)
-	return keys, a, err
+	a, err = manifest.AllocateStrataIDs(seed, ids, names, splits)
+	return ids, names, a, err
 }
 
 // ShardRange returns the contiguous index range [lo, hi) of shard i of n:
@@ -155,7 +158,7 @@ func Run(ctx context.Context, o RunOptions) (Summary, error) {
 	if err != nil {
 		return Summary{}, err
 	}
-	keys, alloc, err := Allocate(r, o.Seed, o.Count, workers, splits, o.Stratify)
+	_, _, alloc, err := Allocate(r, o.Seed, o.Count, workers, splits, o.Stratify)
 	if err != nil {
 		return Summary{}, err
 	}
@@ -228,7 +231,12 @@ func Run(ctx context.Context, o RunOptions) (Summary, error) {
 				return nil, n, err
 			}
 			rec.Split = splits.Names[alloc.Split[i]]
-			rec.Stratum = keys[i]
+			// The stratum is recomputed from the sample's content (a few µs)
+			// rather than kept for every sample, so only one byte per sample
+			// (its split) stays in memory for the whole run.
+			if rec.Stratum, err = r.Stratum(o.Seed, i, o.Stratify); err != nil {
+				return nil, n, err
+			}
 			return []*manifest.Record{rec}, n, nil
 		}
 	}

@@ -63,21 +63,47 @@ type Allocation struct {
 // go to which split is a seeded Fisher–Yates shuffle (stream "split" of seed).
 // Strata are ordered by key; the result depends only on seed, keys and splits.
 func AllocateStrata(seed uint64, keys []string, sp Splits) (*Allocation, error) {
-	index := map[string]int{}
+	index := map[string]int32{}
 	var names []string
-	for _, k := range keys {
-		if _, ok := index[k]; !ok {
-			index[k] = 0
+	ids := make([]int32, len(keys))
+	for u, k := range keys {
+		id, ok := index[k]
+		if !ok {
+			id = int32(len(names))
+			index[k] = id
 			names = append(names, k)
 		}
+		ids[u] = id
 	}
-	sort.Slice(names, func(a, b int) bool { return NaturalLess(names[a], names[b]) })
-	for i, n := range names {
-		index[n] = i
+	return AllocateStrataIDs(seed, ids, names, sp)
+}
+
+// AllocateStrataIDs is AllocateStrata with the strata given as small
+// integers: unit u is in stratum names[ids[u]] (names in any order, each
+// once). It needs 4 bytes per unit where string keys need 16.
+func AllocateStrataIDs(seed uint64, ids []int32, names []string, sp Splits) (*Allocation, error) {
+	order := make([]int, len(names))
+	for i := range order {
+		order[i] = i
+	}
+	sort.Slice(order, func(a, b int) bool { return NaturalLess(names[order[a]], names[order[b]]) })
+	rank := make([]int32, len(names)) // stratum id → position in natural key order
+	sorted := make([]string, len(names))
+	for pos, id := range order {
+		rank[id] = int32(pos)
+		sorted[pos] = names[id]
+	}
+	names = sorted
+	counts := make([]int, len(names))
+	for _, id := range ids {
+		counts[rank[id]]++
 	}
 	members := make([][]int32, len(names))
-	for u, k := range keys {
-		s := index[k]
+	for s := range members {
+		members[s] = make([]int32, 0, counts[s])
+	}
+	for u, id := range ids {
+		s := rank[id]
 		members[s] = append(members[s], int32(u))
 	}
 	sizes := make([]int, len(names))
@@ -88,7 +114,7 @@ func AllocateStrata(seed uint64, keys []string, sp Splits) (*Allocation, error) 
 	if err != nil {
 		return nil, err
 	}
-	a := &Allocation{Split: make([]uint8, len(keys)), Counts: make([]int, len(sp.Names))}
+	a := &Allocation{Split: make([]uint8, len(ids)), Counts: make([]int, len(sp.Names))}
 	nonzero := 0
 	for _, r := range sp.Ratios {
 		if r > 0 {

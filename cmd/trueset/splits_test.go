@@ -127,7 +127,7 @@ func TestRequireCoverage(t *testing.T) {
 		t.Fatal(err)
 	}
 	sp, _ := manifest.ParseSplits(manifest.DefaultSplits)
-	_, alloc, err := gen.Allocate(r, 1, 100, 2, sp, "parts")
+	_, _, alloc, err := gen.Allocate(r, 1, 100, 2, sp, "parts")
 	if err != nil {
 		t.Fatal(err)
 	}

@@ -75,7 +75,7 @@ func run(count, workers int, preset string, seed uint64, out string) error {
 	if err != nil {
 		return err
 	}
-	keys, alloc, err := gen.Allocate(r, seed, count, workers, splits, key)
+	ids, names, alloc, err := gen.Allocate(r, seed, count, workers, splits, key)
 	if err != nil {
 		return err
 	}
@@ -107,7 +107,7 @@ func run(count, workers int, preset string, seed uint64, out string) error {
 	ph := strings.Repeat("0", 64)
 	for i, s := range samples {
 		rec := s.Record
-		rec.Split, rec.Stratum = splits.Names[alloc.Split[i]], keys[i]
+		rec.Split, rec.Stratum = splits.Names[alloc.Split[i]], names[ids[i]]
 		rec.Image = manifest.ImagesDir + "/" + rec.ID + ".png"
 		rec.Mask = manifest.MasksDir + "/" + rec.ID + ".png"
 		rec.Instances = manifest.InstancesDir + "/" + rec.ID + ".png"
