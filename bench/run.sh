@@ -1,9 +1,10 @@
 #!/usr/bin/env bash
-# bench/run.sh: figures 1, 2, 3 and 5 of the speed issue, each as a ratio
-# against a comparator measured in the same run (absolute times on shared
-# machines drift; ratios hold), with the command that reproduces it.
-# Figure 4 (augmentation kernels against x/image/draw and imaging) is
-# measured by Go benchmarks in augment/, not here. Run by hand, not by CI:
+# bench/run.sh: the five figures of the speed issue, each as a ratio against a
+# comparator measured in the same run (absolute times on shared machines
+# drift; ratios hold), with the command that reproduces it. Figure 4
+# (augmentation kernels against x/image/draw and imaging) comes from
+# bench/cmd/kernels, which also has Go benchmarks in augment/. Run by hand,
+# not by CI:
 #
 #   bash bench/run.sh                  # REPEATS=3 COUNT=20000 BIG=200000
 #   REPEATS=1 BIG=0 bash bench/run.sh  # quicker: one round, no 200,000 run
@@ -44,7 +45,7 @@ if [ -n "${TRUESET:-}" ]; then
 else
 	go build -o "$BIN/trueset" ./cmd/trueset
 fi
-for c in encodefloor peakrss samepixels; do
+for c in encodefloor peakrss samepixels kernels; do
 	go build -o "$BIN/$c" "./bench/cmd/$c"
 done
 
@@ -137,7 +138,10 @@ fi
 echo "  reproduce          bench/cmd/peakrss trueset generate -q --count $COUNT --workers 2 --out DIR   (and --count $BIG)"
 echo
 
-echo "figure 4: augmentation kernels: not measured by this script (go test -bench in augment/)"
+echo "figure 4: augmentation kernels (flip + rotate + crop-and-resize + gaussian noise, image and both masks)"
+settle
+"$BIN/kernels"
+echo "  reproduce          go build -o kernels ./bench/cmd/kernels && ./kernels   (benchmarks: go test -run '^$' -bench Kernels ./augment/)"
 echo
 
 "$BIN/trueset" generate -q --count "$AUG_SOURCES" --workers 2 --out "$WORK/src"
