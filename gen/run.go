@@ -231,10 +231,11 @@ func Run(ctx context.Context, o RunOptions) (Summary, error) {
 				return nil, n, err
 			}
 			rec.Split = splits.Names[alloc.Split[i]]
-			// The stratum is recomputed from the sample's content (a few µs)
-			// rather than kept for every sample, so only one byte per sample
-			// (its split) stays in memory for the whole run.
-			if rec.Stratum, err = r.Stratum(o.Seed, i, o.Stratify); err != nil {
+			// The stratum is read off the rendered record rather than kept for
+			// every sample, so only one byte per sample (its split) stays in
+			// memory. Every planned object is in the masks, so the record's
+			// counts and content targets are the plan's: the same key.
+			if rec.Stratum, err = manifest.StratumOf(rec, o.Stratify); err != nil {
 				return nil, n, err
 			}
 			return []*manifest.Record{rec}, n, nil
