@@ -4,7 +4,7 @@ import "math"
 
 // Mat is a 2×3 affine matrix [a b c; d e f] acting on continuous pixel
 // coordinates: (x, y) ↦ (a·x + b·y + c, d·x + e·y + f). Pixel (x, y) covers
-// [x, x+1) × [y, y+1), so its centre is (x+0.5, y+0.5).
+// [x, x+1) × [y, y+1), so its center is (x+0.5, y+0.5).
 type Mat [6]float64
 
 // Identity is the identity map.
@@ -50,7 +50,7 @@ func Translate(tx, ty float64) Mat { return Mat{1, 0, tx, 0, 1, ty} }
 func Scale(sx, sy float64) Mat { return Mat{sx, 0, 0, 0, sy, 0} }
 
 // sincos returns exact values at multiples of 90°, so quarter turns move
-// pixel centres onto pixel centres with no rounding error.
+// pixel centers onto pixel centers with no rounding error.
 func sincos(deg float64) (s, c float64) {
 	if q := deg / 90; q == math.Trunc(q) {
 		switch ((int(q) % 4) + 4) % 4 {
@@ -90,7 +90,7 @@ func FlipH(w float64) Mat { return Mat{-1, 0, w, 0, 1, 0} }
 func FlipV(h float64) Mat { return Mat{1, 0, 0, 0, -1, h} }
 
 // RotateCanvas returns the map that turns a w×h image by deg about its
-// centre. With expand, the output canvas grows to hold the whole turned image
+// center. With expand, the output canvas grows to hold the whole turned image
 // (its size is the turned box rounded to whole pixels, exact for quarter
 // turns); otherwise it keeps w×h.
 func RotateCanvas(w, h, deg float64, expand bool) (m Mat, ow, oh int) {

@@ -27,7 +27,7 @@ type Output struct {
 
 // Copy makes copy k (k ≥ 1) of source number src. Every draw comes from
 // manifest.RNG(seed, src, k, try): try counts the redraws the resample
-// policy makes when a crop or turn cuts an object below cut.min_visible
+// policy makes when a crop or turn cuts an object below cut.least_shown
 // (bounded by cut.tries; after that the cut objects are dropped). Labels are
 // then measured again from the warped instance mask, and targets recomputed
 // from defs; targets without a definition are carried over unchanged.
@@ -36,7 +36,7 @@ func (p *Plan) Copy(in *Input, seed uint64, src, k int, defs []manifest.TargetDe
 	var d *Drawn
 	var frac map[int]float64
 	var inst *image.Gray16
-	min := *p.Cut.MinVisible
+	min := *p.Cut.LeastShown
 	tries := 1
 	if p.Cut.Policy == "resample" {
 		tries = p.Cut.Tries
@@ -72,11 +72,11 @@ func (p *Plan) Copy(in *Input, seed uint64, src, k int, defs []manifest.TargetDe
 // is in the composed matrix).
 var lineageGeometric = map[string]bool{"flip-horizontal": true, "flip-vertical": true, "rotate": true, "affine": true, "crop": true, "resize": true}
 
-// Replay makes a copy again from its lineage alone (the composed matrix and
+// Rebuild makes a copy again from its lineage alone (the composed matrix and
 // every photometric step's parameters, noise seeds included) and the plan's
 // fill, interpolation and cut settings. It gives the same bytes as the Copy
 // that wrote the lineage.
-func (p *Plan) Replay(in *Input, lin *manifest.Lineage, w, h int, defs []manifest.TargetDef) (*Output, error) {
+func (p *Plan) Rebuild(in *Input, lin *manifest.Lineage, w, h int, defs []manifest.TargetDef) (*Output, error) {
 	d := &Drawn{M: Mat(lin.Affine), W: w, H: h, Ops: lin.Ops}
 	for i, op := range lin.Ops {
 		if !lineageGeometric[op.Op] && op.Op != "cut-policy" {
@@ -88,7 +88,7 @@ func (p *Plan) Replay(in *Input, lin *manifest.Lineage, w, h int, defs []manifes
 
 // render warps and relabels a drawn copy: image by the plan's interpolation
 // and fill, masks by nearest neighbour with the same matrix; objects cut below
-// cut.min_visible are erased (to "ignore") under the drop policy, or when a
+// cut.least_shown are erased (to "ignore") under the drop policy, or when a
 // resample ran out of tries; then the photometric steps run in order. inst
 // and frac, when not nil, are the instance mask already warped by d.M and its
 // keptFractions (render owns inst from then on).
@@ -103,16 +103,16 @@ func (p *Plan) render(in *Input, d *Drawn, defs []manifest.TargetDef, inst *imag
 			drop = true
 		}
 	}
-	min := *p.Cut.MinVisible
+	min := *p.Cut.LeastShown
 	fillID := uint8(0)
 	if p.MaskFill == "ignore" {
 		fillID = manifest.IgnoreID
 	}
 	mask := WarpMask(in.Mask, d.M, d.W, d.H, fillID)
 	fill := Fill{Mode: p.Fill.Mode}
-	if p.Fill.Colour != nil {
+	if p.Fill.Color != nil {
 		for c := 0; c < 3; c++ {
-			fill.Value[c] = float32(p.Fill.Colour[c])
+			fill.Value[c] = float32(p.Fill.Color[c])
 		}
 	} else {
 		fill.Value = [3]float32{float32(p.Fill.Intensity), float32(p.Fill.Intensity), float32(p.Fill.Intensity)}
@@ -138,7 +138,7 @@ func (p *Plan) render(in *Input, d *Drawn, defs []manifest.TargetDef, inst *imag
 	}
 	for _, op := range d.photo {
 		if (op.op == "hue" || op.op == "saturation") && img.C == 1 {
-			// Colour steps do nothing to a gray image; the lineage says so.
+			// Color steps do nothing to a gray image; the lineage says so.
 			op.p["skipped_gray"] = 1
 			continue
 		}
@@ -187,7 +187,7 @@ func erase(mask *image.Paletted, inst *image.Gray16, id int) {
 
 // relabel measures the warped instance mask: objects that left the frame (or
 // were dropped) disappear, the rest get their new box, area and visible
-// share, and their factors mapped by m: centre through m, size by √|det m|,
+// share, and their factors mapped by m: center through m, size by √|det m|,
 // angle as the direction m gives the object's own x axis. A part whose parent
 // is gone loses its parent reference.
 func relabel(objs []manifest.Object, inst *image.Gray16, m Mat, frac map[int]float64) []manifest.Object {
@@ -202,18 +202,18 @@ func relabel(objs []manifest.Object, inst *image.Gray16, m Mat, frac map[int]flo
 		}
 		kept[o.Instance] = true
 		n := o
-		n.BBox, n.Area = st.BBox, st.Area
+		n.Box, n.Area = st.BBox, st.Area
 		f := frac[o.Instance]
 		if o.Area > 0 {
 			// Measured again, since cutouts may have hidden more pixels.
 			f = math.Min(f, float64(st.Area)/(float64(o.Area)*math.Abs(m.Det())))
 		}
-		n.Visible = manifest.Round(math.Min(1, o.Visible*f), 4)
+		n.Shown = manifest.Round(math.Min(1, o.Shown*f), 4)
 		// Objects read from a plain folder have no plan factors (size 0);
 		// theirs stay unset rather than be made up from (0, 0) and 0°.
 		if o.Size > 0 {
-			cx, cy := m.Apply(o.Centre[0], o.Centre[1])
-			n.Centre = [2]float64{manifest.Round(cx, 3), manifest.Round(cy, 3)}
+			cx, cy := m.Apply(o.Center[0], o.Center[1])
+			n.Center = [2]float64{manifest.Round(cx, 3), manifest.Round(cy, 3)}
 			n.Size = manifest.Round(o.Size*s, 3)
 			sn, cs := math.Sincos(o.Angle * math.Pi / 180)
 			dx, dy := m[0]*cs+m[1]*sn, m[3]*cs+m[4]*sn

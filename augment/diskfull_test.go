@@ -120,7 +120,7 @@ func TestDiskFull(t *testing.T) {
 // samples with one or two boxes of class "box", dealt to train/val/test.
 func diskWriteInput(t *testing.T, dir string, n int) {
 	t.Helper()
-	classes := []manifest.Class{{ID: 0, Name: "background"}, {ID: 1, Name: "box", Colour: [3]uint8{220, 60, 40}}}
+	classes := []manifest.Class{{ID: 0, Name: "background"}, {ID: 1, Name: "box", Color: [3]uint8{220, 60, 40}}}
 	sp, err := manifest.ParseSplits("train=0.5,val=0.25,test=0.25")
 	if err != nil {
 		t.Fatal(err)
@@ -166,7 +166,7 @@ func diskWriteInput(t *testing.T, dir string, n int) {
 			Width: W, Height: H, Targets: map[string]manifest.Value{"objects": manifest.Number(float64(len(boxes)))},
 		}
 		for id, st := range manifest.MeasureInstances(inst) {
-			rec.Objects = append(rec.Objects, manifest.Object{Instance: id, Class: 1, ClassName: "box", BBox: st.BBox, Area: st.Area, Visible: 1, Kind: "rectangle"})
+			rec.Objects = append(rec.Objects, manifest.Object{Instance: id, Class: 1, ClassName: "box", Box: st.BBox, Area: st.Area, Shown: 1, Shape: "rectangle"})
 		}
 		if len(rec.Objects) == 2 && rec.Objects[0].Instance > rec.Objects[1].Instance {
 			rec.Objects[0], rec.Objects[1] = rec.Objects[1], rec.Objects[0]

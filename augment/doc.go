@@ -10,7 +10,7 @@
 //     compose into one 2×3 matrix (affine.go) applied once (warp.go): the
 //     image by bilinear or Keys bicubic interpolation, the semantic and
 //     instance masks by nearest neighbour under the same matrix. Every
-//     destination pixel centre (x+0.5, y+0.5) is mapped back to the source.
+//     destination pixel center (x+0.5, y+0.5) is mapped back to the source.
 //     Quarter turns and flips use exact matrices, so they move pixels
 //     without resampling error. The warps run fast kernels (warp_fast.go:
 //     raw planes, per-row terms, direct taps inside, copies for quarter
@@ -20,7 +20,7 @@
 //     (manifest.IgnoreID) when asked.
 //   - Labels are measured again from the warped instance mask (apply.go):
 //     boxes, areas, visible shares, and every target with a definition
-//     (targets.go). Objects a crop or turn cuts below cut.min_visible are
+//     (targets.go). Objects a crop or turn cuts below cut.least_shown are
 //     avoided by redrawing (resample), or dropped — their pixels become
 //     "ignore" and the counts fall — never kept silently.
 //   - A class may declare which transforms keep its label (manifest.Class
@@ -28,7 +28,7 @@
 //     any work.
 //   - Every copy records its lineage: source id, each applied step with its
 //     drawn parameters (noise seeds included) and the composed matrix, from
-//     which Replay rebuilds it exactly.
+//     which Rebuild rebuilds it exactly.
 //   - Inputs are trueset datasets or plain labeled folders (folder.go). The
 //     output is a trueset dataset; sources are carried over unchanged and
 //     copies keep their source's split, group and stratum.

@@ -6,7 +6,7 @@ package augment
 //	FOLDER/masks/<stem>.png      semantic mask: indexed or 8-bit gray PNG, value = class id
 //	FOLDER/instances/<stem>.png  optional: 16- or 8-bit gray PNG, value = instance id, 0 = none
 //	FOLDER/labels.csv            optional: header row with an "id" column (the stem) and targets
-//	FOLDER/classes.json          optional: [{"id": 1, "name": "leaf", "colour": [r,g,b],
+//	FOLDER/classes.json          optional: [{"id": 1, "name": "leaf", "color": [r,g,b],
 //	                                         "flip": false, "max_rotate": 15}, ...]
 //
 // Everything is checked before anything is returned: a folder either reads
@@ -72,9 +72,9 @@ type Folder struct {
 	Dir string
 	// Classes has id 0 (background) first, then ascending ids. From
 	// classes.json when present (background added if it does not list id 0);
-	// otherwise "class-<id>" for every id found in the masks, coloured from a
-	// fixed palette of distinct colours (golden-angle hues, see
-	// folderClassColour).
+	// otherwise "class-<id>" for every id found in the masks, colored from a
+	// fixed palette of distinct colors (golden-angle hues, see
+	// folderClassColor).
 	Classes []manifest.Class
 	// Invariance holds the classes whose classes.json entry declares flip or
 	// max_rotate. A class absent from the map keeps its label under any
@@ -249,10 +249,10 @@ func ReadFolderSkipping(dir string, maxPixels int, skip bool) (*Folder, error) {
 	}
 
 	if classes == nil {
-		classes = []manifest.Class{{ID: 0, Name: "background", Colour: folderClassColour(0)}}
+		classes = []manifest.Class{{ID: 0, Name: "background", Color: folderClassColor(0)}}
 		for id := 1; id <= maxFolderClassID; id++ {
 			if seen[id] {
-				classes = append(classes, manifest.Class{ID: id, Name: fmt.Sprintf("class-%d", id), Colour: folderClassColour(id)})
+				classes = append(classes, manifest.Class{ID: id, Name: fmt.Sprintf("class-%d", id), Color: folderClassColor(id)})
 			}
 		}
 	}
@@ -392,7 +392,7 @@ func folderPair(imagesDir string, images map[string]string, masksDir string, mas
 type folderClassEntry struct {
 	ID        *int     `json:"id"`
 	Name      *string  `json:"name"`
-	Colour    []int    `json:"colour"`
+	Color    []int    `json:"color"`
 	Flip      *bool    `json:"flip"`
 	MaxRotate *float64 `json:"max_rotate"`
 }
@@ -411,7 +411,7 @@ func readFolderClasses(p string) ([]manifest.Class, map[int]Invariance, error) {
 	dec.DisallowUnknownFields()
 	var entries []folderClassEntry
 	if t := bytes.TrimSpace(b); len(t) == 0 || t[0] != '[' {
-		return nil, nil, fmt.Errorf("%s: not a JSON list; expected [{\"id\": 1, \"name\": \"leaf\", \"colour\": [r, g, b], \"flip\": false, \"max_rotate\": 15}, ...]", p)
+		return nil, nil, fmt.Errorf("%s: not a JSON list; expected [{\"id\": 1, \"name\": \"leaf\", \"color\": [r, g, b], \"flip\": false, \"max_rotate\": 15}, ...]", p)
 	}
 	if err := dec.Decode(&entries); err != nil {
 		var syn *json.SyntaxError
@@ -422,7 +422,7 @@ func readFolderClasses(p string) ([]manifest.Class, map[int]Invariance, error) {
 		case errors.As(err, &typ):
 			return nil, nil, fmt.Errorf("%s:%d: %q must be %s, not a JSON %s", p, folderLine(b, typ.Offset), typ.Field, folderJSONKind(typ.Type.String()), typ.Value)
 		}
-		return nil, nil, fmt.Errorf("%s: %v (the fields of a class are \"id\", \"name\", \"colour\", \"flip\" and \"max_rotate\")", p, err)
+		return nil, nil, fmt.Errorf("%s: %v (the fields of a class are \"id\", \"name\", \"color\", \"flip\" and \"max_rotate\")", p, err)
 	}
 	if dec.More() {
 		return nil, nil, fmt.Errorf("%s: data after the list of classes", p)
@@ -445,7 +445,7 @@ func readFolderClasses(p string) ([]manifest.Class, map[int]Invariance, error) {
 		if _, dup := byID[id]; dup {
 			return nil, nil, fmt.Errorf("%s: id %d is listed twice", at, id)
 		}
-		c := manifest.Class{ID: id, Name: fmt.Sprintf("class-%d", id), Colour: folderClassColour(id)}
+		c := manifest.Class{ID: id, Name: fmt.Sprintf("class-%d", id), Color: folderClassColor(id)}
 		if id == 0 {
 			c.Name = "background"
 		}
@@ -459,15 +459,15 @@ func readFolderClasses(p string) ([]manifest.Class, map[int]Invariance, error) {
 			return nil, nil, fmt.Errorf("%s: name %q is already class %d", at, c.Name, prev)
 		}
 		names[c.Name] = id
-		if e.Colour != nil {
-			if len(e.Colour) != 3 {
-				return nil, nil, fmt.Errorf("%s: colour must be [r, g, b], got %d numbers", at, len(e.Colour))
+		if e.Color != nil {
+			if len(e.Color) != 3 {
+				return nil, nil, fmt.Errorf("%s: color must be [r, g, b], got %d numbers", at, len(e.Color))
 			}
-			for k, v := range e.Colour {
+			for k, v := range e.Color {
 				if v < 0 || v > 255 {
-					return nil, nil, fmt.Errorf("%s: colour component %d is %d, outside 0..255", at, k+1, v)
+					return nil, nil, fmt.Errorf("%s: color component %d is %d, outside 0..255", at, k+1, v)
 				}
-				c.Colour[k] = uint8(v)
+				c.Color[k] = uint8(v)
 			}
 		}
 		if e.Flip != nil || e.MaxRotate != nil {
@@ -490,7 +490,7 @@ func readFolderClasses(p string) ([]manifest.Class, map[int]Invariance, error) {
 		if prev, dup := names["background"]; dup {
 			return nil, nil, fmt.Errorf("%s: class %d is named \"background\", the name of id 0", p, prev)
 		}
-		byID[0] = manifest.Class{ID: 0, Name: "background", Colour: folderClassColour(0)}
+		byID[0] = manifest.Class{ID: 0, Name: "background", Color: folderClassColor(0)}
 	}
 	classes := make([]manifest.Class, 0, len(byID))
 	for _, c := range byID {
@@ -533,12 +533,12 @@ func folderQuoted(ss []string) string {
 	return strings.Join(q, ", ")
 }
 
-// folderClassColour is the fixed colour of class id when classes.json does not
+// folderClassColor is the fixed color of class id when classes.json does not
 // give one: black for background, else a hue stepped by the golden angle
 // (≈137.5°, so neighbouring ids get far-apart hues; common practice for
-// distinct label colours) with saturation and value cycling through two and
-// three levels. Ids 1..254 get 254 distinct colours, none black or white.
-func folderClassColour(id int) [3]uint8 {
+// distinct label colors) with saturation and value cycling through two and
+// three levels. Ids 1..254 get 254 distinct colors, none black or white.
+func folderClassColor(id int) [3]uint8 {
 	if id <= 0 {
 		return [3]uint8{0, 0, 0}
 	}
@@ -635,10 +635,10 @@ func (ff *folderFile) decode() (image.Image, error) {
 	return m, nil
 }
 
-// pngKind returns the bit depth and colour type from a PNG's IHDR chunk,
+// pngKind returns the bit depth and color type from a PNG's IHDR chunk,
 // which the PNG standard (ISO/IEC 15948 §11.2.2) puts first: 8 signature
-// bytes, length, "IHDR", width, height, bit depth, colour type.
-func (ff *folderFile) pngKind() (depth, colourType byte, err error) {
+// bytes, length, "IHDR", width, height, bit depth, color type.
+func (ff *folderFile) pngKind() (depth, colorType byte, err error) {
 	if ff.format != "png" {
 		return 0, 0, fmt.Errorf("%s: %s content; masks and instance masks must be PNG (lossless)", ff.path, strings.ToUpper(ff.format))
 	}
@@ -667,7 +667,7 @@ func folderDecodeProblem(err error) string {
 	return "corrupt: " + err.Error()
 }
 
-func folderColourType(depth, ct byte) string {
+func folderColorType(depth, ct byte) string {
 	switch ct {
 	case 0:
 		return fmt.Sprintf("%d-bit gray", depth)
@@ -680,7 +680,7 @@ func folderColourType(depth, ct byte) string {
 	case 6:
 		return fmt.Sprintf("%d-bit RGBA", depth)
 	}
-	return fmt.Sprintf("colour type %d", ct)
+	return fmt.Sprintf("color type %d", ct)
 }
 
 // readFolderSource reads one image, its mask and its instances. With
@@ -711,7 +711,7 @@ func readFolderSource(files folderSourceFiles, maxPixels int, classesGiven bool,
 			hint = " (gray below 8 bits is read scaled to 0..255, so its values would not be class ids)"
 		}
 		return nil, fmt.Errorf("%s: the PNG is %s; a semantic mask must be an indexed (paletted) or 8-bit gray PNG whose values are class ids%s",
-			msk.path, folderColourType(depth, ct), hint)
+			msk.path, folderColorType(depth, ct), hint)
 	}
 	if msk.cfg.Width != img.cfg.Width || msk.cfg.Height != img.cfg.Height {
 		return nil, fmt.Errorf("%s is %s but %s is %s: a mask must have its image's size", msk.path, msk.size(), img.path, img.size())
@@ -728,7 +728,7 @@ func readFolderSource(files folderSourceFiles, maxPixels int, classesGiven bool,
 		}
 		if ct != 0 || depth != 8 && depth != 16 {
 			return nil, fmt.Errorf("%s: the PNG is %s; an instance mask must be a 16-bit (or 8-bit) gray PNG whose values are instance ids",
-				inst.path, folderColourType(depth, ct))
+				inst.path, folderColorType(depth, ct))
 		}
 		if inst.cfg.Width != msk.cfg.Width || inst.cfg.Height != msk.cfg.Height {
 			return nil, fmt.Errorf("%s is %s but %s is %s: an instance mask must have its mask's size", inst.path, inst.size(), msk.path, msk.size())
@@ -751,7 +751,7 @@ func readFolderSource(files folderSourceFiles, maxPixels int, classesGiven bool,
 			copy(mask.Pix[y*w:(y+1)*w], m.Pix[y*m.Stride:])
 		}
 	default:
-		// Only gray with a tRNS chunk gets here: the colour type was checked.
+		// Only gray with a tRNS chunk gets here: the color type was checked.
 		return nil, fmt.Errorf("%s: the gray PNG declares a transparent value (tRNS chunk), so it decodes to %s instead of class ids; remove the tRNS chunk",
 			msk.path, folderModelName(mm.ColorModel()))
 	}
@@ -823,7 +823,7 @@ func readFolderSource(files folderSourceFiles, maxPixels int, classesGiven bool,
 	for _, id := range objIDs {
 		st := stats[id]
 		objects = append(objects, manifest.Object{
-			Instance: id, Class: int(classes[id]), BBox: st.BBox, Area: st.Area, Visible: 1, Kind: "labeled",
+			Instance: id, Class: int(classes[id]), Box: st.BBox, Area: st.Area, Shown: 1, Shape: "labeled",
 		})
 	}
 	return &Source{
@@ -839,11 +839,11 @@ func readFolderSource(files folderSourceFiles, maxPixels int, classesGiven bool,
 func folderModelName(m color.Model) string {
 	switch m {
 	case color.NRGBAModel, color.RGBAModel:
-		return "8-bit colour with alpha"
+		return "8-bit color with alpha"
 	case color.NRGBA64Model, color.RGBA64Model:
-		return "16-bit colour with alpha"
+		return "16-bit color with alpha"
 	}
-	return "colour"
+	return "color"
 }
 
 // folderInstanceClasses gives each instance id of a given instance mask the

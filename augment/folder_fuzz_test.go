@@ -217,7 +217,7 @@ func checkFuzzFolder(t *testing.T, fo *Folder) {
 			t.Fatalf("%s: %d instance ids, %d objects", s.ID, len(stats), len(s.Objects))
 		}
 		for _, o := range s.Objects {
-			b := o.BBox
+			b := o.Box
 			if b[0] < 0 || b[1] < 0 || b[2] > w || b[3] > h || b[0] >= b[2] || b[1] >= b[3] {
 				t.Fatalf("%s: object %d: bbox %v outside %d×%d", s.ID, o.Instance, b, w, h)
 			}
@@ -287,7 +287,7 @@ func FuzzFolderMask(f *testing.F) {
 	}
 	gm := fuzzFolderMask(fuzzW, fuzzH)
 	pal := &image.Paletted{Pix: gm.Pix, Stride: gm.Stride, Rect: gm.Rect, Palette: manifest.Palette([]manifest.Class{
-		{ID: 0}, {ID: 1, Colour: [3]uint8{60, 170, 75}}, {ID: 2, Colour: [3]uint8{235, 140, 35}}})}
+		{ID: 0}, {ID: 1, Color: [3]uint8{60, 170, 75}}, {ID: 2, Color: [3]uint8{235, 140, 35}}})}
 	for _, b := range [][]byte{fuzzEncode(f, gm, "png"), fuzzEncode(f, pal, "png")} {
 		fuzzAddBroken(f, b, false)
 		f.Add(b, true)

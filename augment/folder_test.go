@@ -111,9 +111,9 @@ func TestReadFolderFixture(t *testing.T) {
 		t.Fatalf("sources %v, want %v", ids, want)
 	}
 	wantClasses := []manifest.Class{
-		{ID: 0, Name: "background", Colour: [3]uint8{0, 0, 0}},
-		{ID: 1, Name: "leaf-disc", Colour: [3]uint8{60, 170, 75}},
-		{ID: 2, Name: "corner-tag", Colour: [3]uint8{235, 140, 35}},
+		{ID: 0, Name: "background", Color: [3]uint8{0, 0, 0}},
+		{ID: 1, Name: "leaf-disc", Color: [3]uint8{60, 170, 75}},
+		{ID: 2, Name: "corner-tag", Color: [3]uint8{235, 140, 35}},
 	}
 	if !reflect.DeepEqual(f.Classes, wantClasses) {
 		t.Errorf("classes %+v, want %+v", f.Classes, wantClasses)
@@ -231,14 +231,14 @@ func TestReadFolderFixture(t *testing.T) {
 				if c == nil {
 					t.Fatalf("object %d not in the instance mask", o.Instance)
 				}
-				if o.Area != c.area || o.BBox != c.box {
-					t.Errorf("object %d: area %d box %v, recount %d %v", o.Instance, o.Area, o.BBox, c.area, c.box)
+				if o.Area != c.area || o.Box != c.box {
+					t.Errorf("object %d: area %d box %v, recount %d %v", o.Instance, o.Area, o.Box, c.area, c.box)
 				}
 				if len(c.class) != 1 || !c.class[o.Class] {
 					t.Errorf("object %d: class %d, mask under it has %v", o.Instance, o.Class, c.class)
 				}
-				if o.ClassName != wantClasses[o.Class].Name || o.Visible != 1 || o.Kind != "labeled" {
-					t.Errorf("object %d: name %q visible %v kind %q", o.Instance, o.ClassName, o.Visible, o.Kind)
+				if o.ClassName != wantClasses[o.Class].Name || o.Shown != 1 || o.Shape != "labeled" {
+					t.Errorf("object %d: name %q visible %v kind %q", o.Instance, o.ClassName, o.Shown, o.Shape)
 				}
 				areaByClass[o.Class] += o.Area
 				if o.Class == 1 {
@@ -303,9 +303,9 @@ func TestPlainFolderWithoutClasses(t *testing.T) {
 		t.Fatal(err)
 	}
 	want := []manifest.Class{
-		{ID: 0, Name: "background", Colour: folderClassColour(0)},
-		{ID: 1, Name: "class-1", Colour: folderClassColour(1)},
-		{ID: 2, Name: "class-2", Colour: folderClassColour(2)},
+		{ID: 0, Name: "background", Color: folderClassColor(0)},
+		{ID: 1, Name: "class-1", Color: folderClassColor(1)},
+		{ID: 2, Name: "class-2", Color: folderClassColor(2)},
 	}
 	if !reflect.DeepEqual(f.Classes, want) {
 		t.Errorf("classes %+v, want %+v", f.Classes, want)
@@ -317,7 +317,7 @@ func TestPlainFolderWithoutClasses(t *testing.T) {
 		t.Errorf("class name %q", f.Sources[0].Objects[0].ClassName)
 	}
 
-	// classes.json may name the background and leave out colours and rules.
+	// classes.json may name the background and leave out colors and rules.
 	writeFile(t, filepath.Join(d, "classes.json"), []byte(`[{"id": 0, "name": "table"}, {"id": 2, "flip": true}, {"id": 1, "max_rotate": 0}]`))
 	f, err = ReadFolder(d, 1<<20)
 	if err != nil {
@@ -332,14 +332,14 @@ func TestPlainFolderWithoutClasses(t *testing.T) {
 	}
 }
 
-// TestFolderClassColoursDistinct: the fixed palette gives 254 distinct
-// colours, none black (background) or white (ignore, manifest.Palette).
-func TestFolderClassColoursDistinct(t *testing.T) {
+// TestFolderClassColorsDistinct: the fixed palette gives 254 distinct
+// colors, none black (background) or white (ignore, manifest.Palette).
+func TestFolderClassColorsDistinct(t *testing.T) {
 	seen := map[[3]uint8]int{}
 	for id := 1; id <= 254; id++ {
-		c := folderClassColour(id)
+		c := folderClassColor(id)
 		if prev, ok := seen[c]; ok {
-			t.Fatalf("ids %d and %d share colour %v", prev, id, c)
+			t.Fatalf("ids %d and %d share color %v", prev, id, c)
 		}
 		if c == [3]uint8{} || c == [3]uint8{255, 255, 255} {
 			t.Fatalf("id %d is %v", id, c)
@@ -517,7 +517,7 @@ func TestFolderErrors(t *testing.T) {
 		{"1-bit gray mask", func(t *testing.T, d string) {
 			writeFile(t, filepath.Join(d, "masks/disc-04.png"), pngHeaderOnly(48, 40, 1, 0))
 		}, []string{"@masks/disc-04.png", "1-bit gray", "scaled"}},
-		{"gray mask with a transparent colour", func(t *testing.T, d string) {
+		{"gray mask with a transparent color", func(t *testing.T, d string) {
 			// Insert a tRNS chunk (ISO/IEC 15948 §11.3.2.1: for gray, one
 			// 2-byte sample value) right after IHDR.
 			b := pngBytes(t, grayImage(48, 40, func(x, y int) uint8 { return 0 }))
@@ -551,7 +551,7 @@ func TestFolderErrors(t *testing.T) {
 		{"instance on two classes", func(t *testing.T, d string) {
 			rewritePNG(t, filepath.Join(d, "instances/disc-01.png"), func(m image.Image) image.Image {
 				g := m.(*image.Gray16)
-				g.SetGray16(13, 14, color.Gray16{300}) // centre of disc 10; 300 is the tag
+				g.SetGray16(13, 14, color.Gray16{300}) // center of disc 10; 300 is the tag
 				return g
 			})
 		}, []string{"@instances/disc-01.png", "instance 300", "two classes", "x=13, y=14"}},
@@ -601,7 +601,7 @@ func TestFolderErrors(t *testing.T) {
 		{"classes: duplicate id", setClasses(`[{"id": 1}, {"id": 1, "name": "x"}]`), []string{"@classes.json", "entry 2", "twice"}},
 		{"classes: duplicate name", setClasses(`[{"id": 1, "name": "a"}, {"id": 2, "name": "a"}]`), []string{"@classes.json", `"a"`, "class 1"}},
 		{"classes: misspelt field", setClasses(`[{"id": 1, "color": [1, 2, 3]}]`), []string{"@classes.json", `"color"`}},
-		{"classes: bad colour", setClasses(`[{"id": 1, "colour": [1, 2, 300]}]`), []string{"@classes.json", "300", "0..255"}},
+		{"classes: bad color", setClasses(`[{"id": 1, "color": [1, 2, 300]}]`), []string{"@classes.json", "300", "0..255"}},
 		{"classes: negative max_rotate", setClasses(`[{"id": 1, "max_rotate": -5}]`), []string{"@classes.json", "max_rotate", "leave it out"}},
 		{"classes: no id", setClasses(`[{"name": "leaf"}]`), []string{"@classes.json", `no "id"`}},
 		{"classes: not a list", setClasses(`{"1": "leaf"}`), []string{"@classes.json", "list"}},
@@ -639,16 +639,16 @@ func pngChunk(typ string, data []byte) []byte {
 }
 
 // bombPNG is a valid PNG signature and IHDR claiming w×h 8-bit pixels of
-// the given colour type (0 gray, 2 RGB), then a broken rest: a decoder that
+// the given color type (0 gray, 2 RGB), then a broken rest: a decoder that
 // went past the header would try to allocate the image and then fail.
-func bombPNG(w, h uint32, colourType byte) []byte { return pngHeaderOnly(w, h, 8, colourType) }
+func bombPNG(w, h uint32, colorType byte) []byte { return pngHeaderOnly(w, h, 8, colorType) }
 
 // pngHeaderOnly is a PNG signature and a valid IHDR chunk followed by junk.
-func pngHeaderOnly(w, h uint32, depth, colourType byte) []byte {
+func pngHeaderOnly(w, h uint32, depth, colorType byte) []byte {
 	b := []byte("\x89PNG\r\n\x1a\n")
 	ihdr := binary.BigEndian.AppendUint32(nil, w)
 	ihdr = binary.BigEndian.AppendUint32(ihdr, h)
-	ihdr = append(ihdr, depth, colourType, 0, 0, 0) // deflate, no filter, no interlace
+	ihdr = append(ihdr, depth, colorType, 0, 0, 0) // deflate, no filter, no interlace
 	b = append(b, pngChunk("IHDR", ihdr)...)
 	return append(b, "\x00\x00\x10\x00IDAT\x78\x9c garbage, not deflate"...)
 }
@@ -773,13 +773,13 @@ func (w *vp8lBits) bytes() []byte {
 	return w.buf
 }
 
-// twoColourWebP writes a lossless WebP (RIFF "WEBP" with one "VP8L" chunk)
-// of an opaque w×h image whose pixels are colour a or b. It uses only what
+// twoColorWebP writes a lossless WebP (RIFF "WEBP" with one "VP8L" chunk)
+// of an opaque w×h image whose pixels are color a or b. It uses only what
 // the WebP lossless bitstream specification (RFC 9649, §3–§5; section
-// numbers from memory) calls the simplest coding: no transforms, no colour
+// numbers from memory) calls the simplest coding: no transforms, no color
 // cache, no meta prefix codes, and five "simple" prefix codes of one or two
 // symbols, so each pixel costs one bit per channel that differs.
-func twoColourWebP(w, h int, a, b [3]uint8, isB func(x, y int) bool) []byte {
+func twoColorWebP(w, h int, a, b [3]uint8, isB func(x, y int) bool) []byte {
 	var bw vp8lBits
 	bw.put(0x2f, 8) // signature
 	bw.put(uint32(w-1), 14)
@@ -787,7 +787,7 @@ func twoColourWebP(w, h int, a, b [3]uint8, isB func(x, y int) bool) []byte {
 	bw.put(0, 1) // alpha_is_used hint
 	bw.put(0, 3) // version 0
 	bw.put(0, 1) // no transform
-	bw.put(0, 1) // no colour cache
+	bw.put(0, 1) // no color cache
 	bw.put(0, 1) // no meta prefix codes
 	// Prefix codes in order green, red, blue, alpha, distance. A two-symbol
 	// code sends the smaller symbol as 0 and the larger as 1 (listed in
@@ -846,7 +846,7 @@ func twoColourWebP(w, h int, a, b [3]uint8, isB func(x, y int) bool) []byte {
 }
 
 // TestFolderOtherFormats: BMP and TIFF written by golang.org/x/image's own
-// encoders, and a lossless WebP written by twoColourWebP, read back exactly.
+// encoders, and a lossless WebP written by twoColorWebP, read back exactly.
 func TestFolderOtherFormats(t *testing.T) {
 	const w, h = 12, 9
 	rgb := image.NewRGBA(image.Rect(0, 0, w, h))
@@ -873,7 +873,7 @@ func TestFolderOtherFormats(t *testing.T) {
 	writeFile(t, filepath.Join(d, "images/a.bmp"), bmpBuf.Bytes())
 	writeFile(t, filepath.Join(d, "images/b.tif"), tifBuf.Bytes())
 	writeFile(t, filepath.Join(d, "images/c.TIFF"), tifGray.Bytes())
-	writeFile(t, filepath.Join(d, "images/d.webp"), twoColourWebP(w, h, table, leaf, inDisc))
+	writeFile(t, filepath.Join(d, "images/d.webp"), twoColorWebP(w, h, table, leaf, inDisc))
 	mask := pngBytes(t, grayImage(w, h, func(x, y int) uint8 {
 		if inDisc(x, y) {
 			return 1
@@ -923,7 +923,7 @@ func TestFolderOtherFormats(t *testing.T) {
 	}
 
 	// A WebP cut short, or with a broken bitstream, is refused naming the file.
-	good := twoColourWebP(w, h, table, leaf, inDisc)
+	good := twoColorWebP(w, h, table, leaf, inDisc)
 	broken := append([]byte(nil), good...)
 	broken[20] = 0x00 // the VP8L signature byte 0x2f
 	for _, c := range []struct {

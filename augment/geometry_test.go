@@ -233,7 +233,7 @@ func geoBlobs(n int, rng *rand.Rand) (*image.Gray, *image.Gray16) {
 }
 
 // geoArbitrary are the matrices for the x/image/draw comparisons: turns by
-// awkward angles with a scale ≥ 1 and a sub-pixel shift, about the centre.
+// awkward angles with a scale ≥ 1 and a sub-pixel shift, about the center.
 func geoArbitrary(n int) []Mat {
 	c := float64(n) / 2
 	return []Mat{
@@ -244,13 +244,13 @@ func geoArbitrary(n int) []Mat {
 }
 
 // geoEdgeDist is how far (in source pixels) the preimage u of a destination
-// centre lies from the nearest pixel edge (integer coordinate).
+// center lies from the nearest pixel edge (integer coordinate).
 func geoEdgeDist(u float64) float64 { return math.Abs(u - math.Round(u)) }
 
 // TestMaskWarpMatchesXImageNearest compares WarpMask and WarpInstances with
 // golang.org/x/image/draw's NearestNeighbor.Transform (reference library)
 // given the same src→dst matrix. Reading draw/impl.go (v0.48.0): it maps the
-// destination centre (dx+0.5, dy+0.5) back by its own inverse of the matrix
+// destination center (dx+0.5, dy+0.5) back by its own inverse of the matrix
 // and takes the source pixel int(sx), after adding an integer bias that makes
 // coordinates positive — the same rule as ours (floor of the preimage).
 //
@@ -305,7 +305,7 @@ func TestMaskWarpMatchesXImageNearest(t *testing.T) {
 	}
 	// Matrices built to put preimages on pixel edges: scale 3 with a
 	// −0.5 shift puts u = (x+1)/3 (an edge for every third column, 1/6 not
-	// being exact in binary), and 45° with scale √2 puts many centres on
+	// being exact in binary), and 45° with scale √2 puts many centers on
 	// edges. These show that ties are real and are only ties; they are
 	// adversarial, so they are not part of the share below.
 	for _, m := range []Mat{{3, 0, -0.5, 0, 3, -0.5}, About(Rotate(45).Then(Scale(math.Sqrt2, math.Sqrt2)), n/2, n/2, n/2, n/2)} {
@@ -320,7 +320,7 @@ func TestMaskWarpMatchesXImageNearest(t *testing.T) {
 
 // geoPSNR is 10·log10(255²/MSE) over the destination pixels whose preimage
 // lies at least margin px inside the source (so every tap is inside and edge
-// handling — x/image/draw renormalises clipped kernels, we blend in the fill
+// handling — x/image/draw renormalizes clipped kernels, we blend in the fill
 // — plays no part). PSNR with peak 255 is common practice.
 func geoPSNR(got *Image, ref *image.RGBA64, m Mat, n int, margin float64) (psnr float64, count int) {
 	inv, _ := m.Invert()
@@ -394,8 +394,8 @@ func TestImageWarpMatchesXImageKernels(t *testing.T) {
 }
 
 // geoSample returns WarpImage's value at the source point (px, py) (in
-// continuous coordinates, pixel centres at +0.5): a 1×1 destination whose
-// only centre (0.5, 0.5) maps back to (px, py).
+// continuous coordinates, pixel centers at +0.5): a 1×1 destination whose
+// only center (0.5, 0.5) maps back to (px, py).
 func geoSample(src *Image, px, py float64, ip Interp) float64 {
 	return float64(WarpImage(src, Translate(0.5-px, 0.5-py), 1, 1, ip, Fill{}).Pix[0])
 }
@@ -403,14 +403,14 @@ func geoSample(src *Image, px, py float64, ip Interp) float64 {
 // TestBilinearHandWorked checks bilinear interpolation against the
 // unit-square formula (Wikipedia, "Bilinear interpolation", from memory):
 // f(fx, fy) = f00(1−fx)(1−fy) + f10·fx(1−fy) + f01(1−fx)fy + f11·fx·fy, with
-// f00 at the first pixel centre (0.5, 0.5) and fx, fy the offsets from it.
+// f00 at the first pixel center (0.5, 0.5) and fx, fy the offsets from it.
 func TestBilinearHandWorked(t *testing.T) {
 	img := &Image{W: 2, H: 2, C: 1, Pix: []float32{10, 20, 30, 40}}
 	cases := []struct {
 		x, y, want float64
 		how        string
 	}{
-		// Midway between the four centres: fx = fy = 1/2, (10+20+30+40)/4.
+		// Midway between the four centers: fx = fy = 1/2, (10+20+30+40)/4.
 		{1, 1, 25, "mid: (10+20+30+40)/4 = 25"},
 		// A quarter offset: fx = fy = 1/4:
 		// 10·(3/4)(3/4) + 20·(1/4)(3/4) + 30·(3/4)(1/4) + 40·(1/4)(1/4)
@@ -420,8 +420,8 @@ func TestBilinearHandWorked(t *testing.T) {
 		// 10·(3/4)(1/4) + 20·(1/4)(1/4) + 30·(3/4)(3/4) + 40·(1/4)(3/4)
 		// = 1.875 + 1.25 + 16.875 + 7.5 = 27.5.
 		{0.75, 1.25, 27.5, "fx 1/4, fy 3/4: 1.875+1.25+16.875+7.5"},
-		// On a pixel centre the sample is that pixel.
-		{1.5, 0.5, 20, "centre of pixel (1, 0)"},
+		// On a pixel center the sample is that pixel.
+		{1.5, 0.5, 20, "center of pixel (1, 0)"},
 	}
 	for _, c := range cases {
 		if got := geoSample(img, c.x, c.y, Bilinear); math.Abs(got-c.want) > 1e-5 {
@@ -547,10 +547,10 @@ func TestAffineWorkedMatrices(t *testing.T) {
 	if _, ow, oh := RotateCanvas(10, 10, 45, true); ow != 14 || oh != 14 {
 		t.Errorf("RotateCanvas(10, 10, 45, expand) = %d×%d, want 14×14 (10√2 = 14.14)", ow, oh)
 	}
-	// Without expand the canvas is kept and the centre stays the centre.
+	// Without expand the canvas is kept and the center stays the center.
 	m, ow, oh := RotateCanvas(7, 5, 33, false)
 	if x, y := m.Apply(3.5, 2.5); ow != 7 || oh != 5 || !near(x, 3.5) || !near(y, 2.5) {
-		t.Errorf("RotateCanvas(7, 5, 33) keeps %d×%d, centre ↦ (%g, %g)", ow, oh, x, y)
+		t.Errorf("RotateCanvas(7, 5, 33) keeps %d×%d, center ↦ (%g, %g)", ow, oh, x, y)
 	}
 	// CropResize maps the crop's corners onto the output's corners.
 	cr := CropResize(3, 4, 10, 20, 5, 40)

@@ -27,9 +27,9 @@ import (
 
 // labClasses is the class table of the synthetic inputs.
 var labClasses = []manifest.Class{
-	{ID: 0, Name: "background", Colour: [3]uint8{0, 0, 0}},
-	{ID: 1, Name: "disc", Colour: [3]uint8{220, 60, 60}},
-	{ID: 2, Name: "block", Colour: [3]uint8{60, 160, 220}},
+	{ID: 0, Name: "background", Color: [3]uint8{0, 0, 0}},
+	{ID: 1, Name: "disc", Color: [3]uint8{220, 60, 60}},
+	{ID: 2, Name: "block", Color: [3]uint8{60, 160, 220}},
 }
 
 // labDefs are the count targets passed to Copy and written to dataset.json:
@@ -40,7 +40,7 @@ var labDefs = []manifest.TargetDef{
 }
 
 // labShape is a disc (class 1) of radius r or an axis-aligned block
-// (class 2) of half-sides r × s, centred at (x, y).
+// (class 2) of half-sides r × s, centered at (x, y).
 type labShape struct {
 	disc       bool
 	x, y, r, s float64
@@ -58,7 +58,7 @@ func (s labShape) covers(px, py float64) bool {
 // labInput draws shapes, in order (later on top), into a w×h image with c
 // channels over a textured background, its semantic mask and its instance
 // mask (instance i+1 for shape i), a pixel belonging to a shape when its
-// centre lies inside. Objects are measured with manifest.MeasureInstances;
+// center lies inside. Objects are measured with manifest.MeasureInstances;
 // Visible is the area over the pixels the shape covers alone.
 func labInput(id string, w, h, c int, shapes []labShape) *Input {
 	img := NewImage(w, h, c)
@@ -96,13 +96,13 @@ func labInput(id string, w, h, c int, shapes []labShape) *Input {
 		if st == nil {
 			panic(fmt.Sprintf("%s: shape %d is hidden", id, i))
 		}
-		o := manifest.Object{Instance: i + 1, BBox: st.BBox, Area: st.Area, Visible: manifest.Round(float64(st.Area)/float64(alone[i]), 4),
-			Centre: [2]float64{s.x, s.y}, Aspect: 1}
+		o := manifest.Object{Instance: i + 1, Box: st.BBox, Area: st.Area, Shown: manifest.Round(float64(st.Area)/float64(alone[i]), 4),
+			Center: [2]float64{s.x, s.y}, Aspect: 1}
 		if s.disc {
-			o.Class, o.ClassName, o.Kind, o.Size = 1, "disc", "disc", 2*s.r
+			o.Class, o.ClassName, o.Shape, o.Size = 1, "disc", "disc", 2*s.r
 			discs++
 		} else {
-			o.Class, o.ClassName, o.Kind, o.Size, o.Aspect = 2, "block", "block", 2*s.s, s.r/s.s
+			o.Class, o.ClassName, o.Shape, o.Size, o.Aspect = 2, "block", "block", 2*s.s, s.r/s.s
 		}
 		rec.Objects = append(rec.Objects, o)
 	}
@@ -204,11 +204,11 @@ func labCheckRecord(t *testing.T, what string, out *Output, defs []manifest.Targ
 			t.Errorf("%s: object %d is in the record but not in the instance mask", what, o.Instance)
 			continue
 		}
-		if st.BBox != o.BBox || st.Area != o.Area {
-			t.Errorf("%s: object %d: bbox %v area %d in the record, %v %d in the mask", what, o.Instance, o.BBox, o.Area, st.BBox, st.Area)
+		if st.BBox != o.Box || st.Area != o.Area {
+			t.Errorf("%s: object %d: bbox %v area %d in the record, %v %d in the mask", what, o.Instance, o.Box, o.Area, st.BBox, st.Area)
 		}
-		if o.Visible <= 0 || o.Visible > 1 {
-			t.Errorf("%s: object %d visible %g", what, o.Instance, o.Visible)
+		if o.Shown <= 0 || o.Shown > 1 {
+			t.Errorf("%s: object %d visible %g", what, o.Instance, o.Shown)
 		}
 	}
 	for id := range stats {
@@ -285,8 +285,8 @@ func labLineageMatrix(t *testing.T, lin *manifest.Lineage, w, h int) Mat {
 
 // labCutCheck checks the cut policy of a copy. Under resample, unless the
 // lineage ends in "cut-policy", every source object kept at least
-// cut.min_visible of its pixels through the warp: warped area ≥
-// min_visible · source area · |det M|. The warped area is measured before
+// cut.least_shown of its pixels through the warp: warped area ≥
+// least_shown · source area · |det M|. The warped area is measured before
 // any cutout (cutout hides pixels on purpose, after the policy), and the only
 // tolerance is float rounding (1e-9 of the area): the policy's share is
 // this very ratio, so no sampling slack is owed. With "cut-policy" the
@@ -301,7 +301,7 @@ func labCutCheck(t *testing.T, what string, p *Plan, in *Input, out *Output) boo
 	pre := WarpInstances(in.Inst, m, r.Width, r.Height)
 	preStats := manifest.MeasureInstances(pre)
 	det := math.Abs(m.Det())
-	min := *p.Cut.MinVisible
+	min := *p.Cut.LeastShown
 	dropped, cutout := false, false
 	for _, op := range lin.Ops {
 		if op.Op == "cut-policy" {
@@ -323,25 +323,25 @@ func labCutCheck(t *testing.T, what string, p *Plan, in *Input, out *Output) boo
 		need := min * float64(o.Area) * det
 		if !dropped {
 			if float64(a) < need-1e-9*float64(o.Area) {
-				t.Errorf("%s: object %d keeps %d px of %d·|det %.4f|, below min_visible %g (no cut-policy in the lineage)", what, o.Instance, a, o.Area, det, min)
+				t.Errorf("%s: object %d keeps %d px of %d·|det %.4f|, below least_shown %g (no cut-policy in the lineage)", what, o.Instance, a, o.Area, det, min)
 			}
 			if ko := kept[o.Instance]; ko == nil {
 				if !cutout {
 					t.Errorf("%s: object %d vanished without a cutout or a cut-policy", what, o.Instance)
 				}
-			} else if !cutout && ko.Visible < min*o.Visible-0.5e-4 {
+			} else if !cutout && ko.Shown < min*o.Shown-0.5e-4 {
 				// Visible is rounded to 4 decimals, hence 0.5e-4.
-				t.Errorf("%s: object %d visible %g < %g · %g", what, o.Instance, ko.Visible, min, o.Visible)
+				t.Errorf("%s: object %d visible %g < %g · %g", what, o.Instance, ko.Shown, min, o.Shown)
 			}
 			continue
 		}
 		if float64(a) >= need {
 			if kept[o.Instance] == nil && !cutout {
-				t.Errorf("%s: object %d keeps %d px (≥ min_visible %g of %d·%.4f) but was dropped", what, o.Instance, a, min, o.Area, det)
+				t.Errorf("%s: object %d keeps %d px (≥ least_shown %g of %d·%.4f) but was dropped", what, o.Instance, a, min, o.Area, det)
 			}
 		} else {
 			if kept[o.Instance] != nil {
-				t.Errorf("%s: object %d keeps %d px (< min_visible %g of %d·%.4f) but is still in the record after cut-policy", what, o.Instance, a, min, o.Area, det)
+				t.Errorf("%s: object %d keeps %d px (< least_shown %g of %d·%.4f) but is still in the record after cut-policy", what, o.Instance, a, min, o.Area, det)
 			}
 			for i := 0; i+1 < len(pre.Pix); i += 2 {
 				if int(pre.Pix[i])<<8|int(pre.Pix[i+1]) == o.Instance {
@@ -501,7 +501,7 @@ func labReplay(t *testing.T, p *Plan, seed uint64) (drops int) {
 		if err := json.Unmarshal(b, &lin); err != nil {
 			t.Fatal(err)
 		}
-		rep, err := p.Replay(in, &lin, out.Record.Width, out.Record.Height, labDefs)
+		rep, err := p.Rebuild(in, &lin, out.Record.Width, out.Record.Height, labDefs)
 		if err != nil {
 			t.Fatal(err)
 		}
@@ -589,14 +589,14 @@ steps:
 func labBoxes(objs []manifest.Object) []string {
 	var out []string
 	for _, o := range objs {
-		out = append(out, fmt.Sprintf("%d:%v:%d", o.Instance, o.BBox, o.Area))
+		out = append(out, fmt.Sprintf("%d:%v:%d", o.Instance, o.Box, o.Area))
 	}
 	return out
 }
 
 // labCutRects returns, per pixel of a w×h canvas, whether a cutout rectangle
 // of the lineage covers it. The rule is the pixel convention of DESIGN.md: a
-// pixel is in a rectangle when its centre is, rectangle k being centred at
+// pixel is in a rectangle when its center is, rectangle k being centered at
 // (u_k·w, v_k·h) with sides w_k × h_k (its recorded parameters).
 func labCutRects(p map[string]float64, w, h int) []bool {
 	in := make([]bool, w*h)

@@ -156,7 +156,7 @@ func Speckle(m *Image, rng *rand.Rand, sigma float64) {
 }
 
 // gaussKernel returns the 2r+1 weights exp(−i²/(2σ²)), i = −r..r, r = ⌈3σ⌉,
-// normalised to sum 1.
+// normalized to sum 1.
 func gaussKernel(sigma float64) []float64 {
 	r := int(math.Ceil(3 * sigma))
 	w := make([]float64, 2*r+1)
@@ -173,7 +173,7 @@ func gaussKernel(sigma float64) []float64 {
 
 // GaussianBlur convolves with a separable Gaussian of standard deviation sigma
 // pixels: a horizontal then a vertical pass with the weights exp(−i²/(2σ²)),
-// i = −r..r, r = ⌈3σ⌉, normalised to sum 1. Samples beyond the edge repeat
+// i = −r..r, r = ⌈3σ⌉, normalized to sum 1. Samples beyond the edge repeat
 // the edge pixel (replicate). Sums are taken in float64. Not clamped (a
 // convex combination of values stays within their range anyway). sigma ≤ 0,
 // NaN or +Inf leaves the image unchanged.
@@ -221,7 +221,7 @@ func Brightness(m *Image, delta float64) {
 	}
 }
 
-// Contrast scales every channel value about mid-grey: (v − 127.5)·factor +
+// Contrast scales every channel value about mid-gray: (v − 127.5)·factor +
 // 127.5. Not clamped.
 func Contrast(m *Image, factor float64) {
 	for i, v := range m.Pix {

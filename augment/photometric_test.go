@@ -426,7 +426,7 @@ func TestGaussianBlurImpulse(t *testing.T) {
 	if math.Abs(sum-v) > 1e-3 {
 		t.Errorf("sum %.6f, want %v", sum, v)
 	}
-	// Symmetric under x and y mirrors about the centre and under transposition.
+	// Symmetric under x and y mirrors about the center and under transposition.
 	for dy := -6; dy <= 6; dy++ {
 		for dx := -6; dx <= 6; dx++ {
 			a := at(c0+dx, c0+dy)
@@ -442,7 +442,7 @@ func TestGaussianBlurImpulse(t *testing.T) {
 		t.Errorf("radius: at +5 %v, +6 %v, want > 0 and 0", at(c0+5, c0), at(c0+6, c0))
 	}
 	// Shape: neighbour ratios are those of the Gaussian exp(−d²/(2σ²))
-	// (definition of the Gaussian function), and the centre is v·w₀² with
+	// (definition of the Gaussian function), and the center is v·w₀² with
 	// w₀ = 1/Σ_{i=−5..5} exp(−i²/(2σ²)).
 	for d := 1; d <= 5; d++ {
 		want := math.Exp(-float64(d*d) / (2 * sigma * sigma))
@@ -455,7 +455,7 @@ func TestGaussianBlurImpulse(t *testing.T) {
 		norm += math.Exp(-float64(i*i) / (2 * sigma * sigma))
 	}
 	if want := v / (norm * norm); math.Abs(at(c0, c0)-want) > 1e-3 {
-		t.Errorf("centre %.6f, want %.6f", at(c0, c0), want)
+		t.Errorf("center %.6f, want %.6f", at(c0, c0), want)
 	}
 }
 
@@ -620,7 +620,7 @@ func TestHueShift(t *testing.T) {
 }
 
 func TestSaturation(t *testing.T) {
-	// Factor 0 gives gray r = g = b = max (HSV value), on random colours.
+	// Factor 0 gives gray r = g = b = max (HSV value), on random colors.
 	r := pmRNG(71, 72)
 	m := NewImage(16, 16, 3)
 	for i := range m.Pix {

@@ -47,13 +47,13 @@ type Plan struct {
 type FillSpec struct {
 	Mode      string  `yaml:"mode" json:"mode"` // constant (default), edge or reflect
 	Intensity float64 `yaml:"intensity" json:"intensity"`
-	Colour    []int   `yaml:"colour" json:"colour,omitempty"`
+	Color    []int   `yaml:"color" json:"color,omitempty"`
 }
 
 // CutSpec is the policy for objects a crop or a turn cuts.
 type CutSpec struct {
 	Policy     string   `yaml:"policy" json:"policy"` // resample (default), drop or keep
-	MinVisible *float64 `yaml:"min_visible" json:"min_visible"`
+	LeastShown *float64 `yaml:"least_shown" json:"least_shown"`
 	Tries      int      `yaml:"tries" json:"tries"`
 }
 
@@ -176,7 +176,7 @@ func LoadPlan(path string) (*Plan, error) {
 	return ParsePlan(path, b)
 }
 
-// JSON returns the normalised plan (defaults filled in) as compact JSON.
+// JSON returns the normalized plan (defaults filled in) as compact JSON.
 func (p *Plan) JSON() []byte {
 	b, _ := json.Marshal(p)
 	return b
@@ -204,13 +204,13 @@ func (p *Plan) validate(d *yamlnode.Decoder) error {
 	if f.Intensity < 0 || f.Intensity > 255 {
 		return d.ErrPath("fill.intensity", yamlnode.FormatFloat(f.Intensity), "want 0..255")
 	}
-	if f.Colour != nil {
-		if len(f.Colour) != 3 {
-			return d.ErrPath("fill.colour", fmt.Sprint(f.Colour), "want [r, g, b]")
+	if f.Color != nil {
+		if len(f.Color) != 3 {
+			return d.ErrPath("fill.color", fmt.Sprint(f.Color), "want [r, g, b]")
 		}
-		for _, c := range f.Colour {
+		for _, c := range f.Color {
 			if c < 0 || c > 255 {
-				return d.ErrPath("fill.colour", fmt.Sprint(f.Colour), "channels are 0..255")
+				return d.ErrPath("fill.color", fmt.Sprint(f.Color), "channels are 0..255")
 			}
 		}
 	}
@@ -232,14 +232,14 @@ func (p *Plan) validate(d *yamlnode.Decoder) error {
 		c.Policy = "resample"
 	case "resample", "drop", "keep":
 	default:
-		return d.ErrPath("cut.policy", fmt.Sprintf("%q", c.Policy), "want resample (redraw until every object keeps min_visible), drop (remove cut objects and update counts) or keep")
+		return d.ErrPath("cut.policy", fmt.Sprintf("%q", c.Policy), "want resample (redraw until every object keeps least_shown), drop (remove cut objects and update counts) or keep")
 	}
-	if c.MinVisible == nil {
+	if c.LeastShown == nil {
 		v := 0.5
-		c.MinVisible = &v
+		c.LeastShown = &v
 	}
-	if *c.MinVisible < 0 || *c.MinVisible > 1 {
-		return d.ErrPath("cut.min_visible", yamlnode.FormatFloat(*c.MinVisible), "want a fraction in 0..1")
+	if *c.LeastShown < 0 || *c.LeastShown > 1 {
+		return d.ErrPath("cut.least_shown", yamlnode.FormatFloat(*c.LeastShown), "want a fraction in 0..1")
 	}
 	if c.Tries == 0 {
 		c.Tries = 20

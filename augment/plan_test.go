@@ -20,7 +20,7 @@ fill:
 mask_fill: background
 cut:
   policy: resample
-  min_visible: 0.5
+  least_shown: 0.5
 steps:
   - op: flip
     axis: horizontal
@@ -127,17 +127,17 @@ func TestParsePlanRefusals(t *testing.T) {
 			25, "steps[6].steps[0]", []string{"one-of cannot hold another one-of"}},
 		{"fill mode wrap", ptEdit(t, ptBase, "mode: constant", "mode: wrap"),
 			3, "fill.mode", []string{`"wrap"`, "constant, edge or reflect"}},
-		{"fill colour of two", ptEdit(t, ptBase, "  mode: constant\n", "  mode: constant\n  colour: [1, 2]\n"),
-			4, "fill.colour", []string{"[1 2]", "[r, g, b]"}},
+		{"fill color of two", ptEdit(t, ptBase, "  mode: constant\n", "  mode: constant\n  color: [1, 2]\n"),
+			4, "fill.color", []string{"[1 2]", "[r, g, b]"}},
 		{"interpolation nearest", ptEdit(t, ptBase, "name: base\n", "name: base\ninterpolation: nearest\n"),
 			2, "interpolation", []string{`"nearest"`, "bilinear or bicubic"}},
 		{"mask_fill other", ptEdit(t, ptBase, "mask_fill: background", "mask_fill: other"),
 			4, "mask_fill", []string{`"other"`, "background or ignore"}},
 		{"cut policy skip", ptEdit(t, ptBase, "policy: resample", "policy: skip"),
 			6, "cut.policy", []string{`"skip"`, "resample", "drop", "keep"}},
-		{"cut.min_visible 2", ptEdit(t, ptBase, "min_visible: 0.5", "min_visible: 2"),
-			7, "cut.min_visible", []string{"(got 2)", "fraction in 0..1"}},
-		{"cut.tries 5000", ptEdit(t, ptBase, "  min_visible: 0.5\n", "  min_visible: 0.5\n  tries: 5000\n"),
+		{"cut.least_shown 2", ptEdit(t, ptBase, "least_shown: 0.5", "least_shown: 2"),
+			7, "cut.least_shown", []string{"(got 2)", "fraction in 0..1"}},
+		{"cut.tries 5000", ptEdit(t, ptBase, "  least_shown: 0.5\n", "  least_shown: 0.5\n  tries: 5000\n"),
 			8, "cut.tries", []string{"5000", "1..1000"}},
 		{"empty steps", ptBase[:strings.Index(ptBase, "steps:\n")] + "steps: []\n",
 			8, "steps", []string{"at least one step"}},
@@ -214,14 +214,14 @@ steps:
 	if p.Interpolation != "bilinear" {
 		t.Errorf("interpolation %q, want bilinear", p.Interpolation)
 	}
-	if p.Fill.Mode != "constant" || p.Fill.Intensity != 0 || p.Fill.Colour != nil {
+	if p.Fill.Mode != "constant" || p.Fill.Intensity != 0 || p.Fill.Color != nil {
 		t.Errorf("fill %+v, want constant 0", p.Fill)
 	}
 	if p.MaskFill != "background" {
 		t.Errorf("mask_fill %q, want background with a constant fill", p.MaskFill)
 	}
-	if p.Cut.Policy != "resample" || p.Cut.MinVisible == nil || *p.Cut.MinVisible != 0.5 || p.Cut.Tries != 20 {
-		t.Errorf("cut %+v, want resample, min_visible 0.5, 20 tries", p.Cut)
+	if p.Cut.Policy != "resample" || p.Cut.LeastShown == nil || *p.Cut.LeastShown != 0.5 || p.Cut.Tries != 20 {
+		t.Errorf("cut %+v, want resample, least_shown 0.5, 20 tries", p.Cut)
 	}
 	var walk func(steps []Step)
 	walk = func(steps []Step) {
@@ -263,8 +263,8 @@ steps:
 		}
 	}
 	// Stated values are kept, not replaced by defaults.
-	p = ptParse(t, "name: d\ninterpolation: bicubic\ncut: {policy: drop, min_visible: 0, tries: 3}\nsteps: [{op: blur, sigma: 1, chance: 0}]\n")
-	if p.Interpolation != "bicubic" || p.Cut.Policy != "drop" || *p.Cut.MinVisible != 0 || p.Cut.Tries != 3 || *p.Steps[0].Chance != 0 {
+	p = ptParse(t, "name: d\ninterpolation: bicubic\ncut: {policy: drop, least_shown: 0, tries: 3}\nsteps: [{op: blur, sigma: 1, chance: 0}]\n")
+	if p.Interpolation != "bicubic" || p.Cut.Policy != "drop" || *p.Cut.LeastShown != 0 || p.Cut.Tries != 3 || *p.Steps[0].Chance != 0 {
 		t.Errorf("stated values changed: %s", p.JSON())
 	}
 }
@@ -284,7 +284,7 @@ func TestPlanJSONRoundTrip(t *testing.T) {
 	if len(docs) < 2 {
 		t.Fatal("no plans in testdata/plans")
 	}
-	docs["colour fill and every default"] = "name: c\ndescription: d\nfill: {mode: edge, colour: [1, 2, 3]}\nsteps:\n  - {op: affine, translate: [-2.5, 2.5]}\n  - {op: cutout, size: 3, masks: ignore}\n  - {op: rotate, degrees: 0.1, expand: true}\n"
+	docs["color fill and every default"] = "name: c\ndescription: d\nfill: {mode: edge, color: [1, 2, 3]}\nsteps:\n  - {op: affine, translate: [-2.5, 2.5]}\n  - {op: cutout, size: 3, masks: ignore}\n  - {op: rotate, degrees: 0.1, expand: true}\n"
 	for name, doc := range docs {
 		t.Run(name, func(t *testing.T) {
 			first := ptParse(t, doc).JSON()

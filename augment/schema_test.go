@@ -136,10 +136,10 @@ func TestPlanSchemaAcceptsTestdataPlans(t *testing.T) {
 			if err := sch.Validate(psInstance(t, data)); err != nil {
 				t.Errorf("%s does not validate against the schema:\n%v", f, err)
 			}
-			// The normalised plan (every default filled in, as stored in
+			// The normalized plan (every default filled in, as stored in
 			// dataset.json) is a plan too.
 			if err := sch.Validate(psInstance(t, p.JSON())); err != nil {
-				t.Errorf("the normalised JSON of %s does not validate:\n%v\n%s", f, err, p.JSON())
+				t.Errorf("the normalized JSON of %s does not validate:\n%v\n%s", f, err, p.JSON())
 			}
 		})
 	}
@@ -169,9 +169,9 @@ func TestPlanSchemaAcceptsFlexibleForms(t *testing.T) {
 		"integer-valued 2.0": psEdit(t, psBase, "degrees: [-10, 10]", "degrees: [-2.0, 2.0]"),
 		"null chance":        psEdit(t, psBase, "degrees: [-10, 10]", "degrees: 5\n    chance: ~"),
 		"chance 0":           psEdit(t, psBase, "degrees: [-10, 10]", "degrees: 5\n    chance: 0"),
-		"every top field": "name: t\ndescription: all of them\ninterpolation: bicubic\nfill: {mode: reflect, intensity: 12.5, colour: [1, 2, 3]}\n" +
-			"mask_fill: background\ncut: {policy: drop, min_visible: 0, tries: 1000}\nsteps:\n  - {op: blur, sigma: 1}\n",
-		"null min_visible":     "name: t\ncut: {min_visible: ~}\nsteps: [{op: blur, sigma: 1}]\n",
+		"every top field": "name: t\ndescription: all of them\ninterpolation: bicubic\nfill: {mode: reflect, intensity: 12.5, color: [1, 2, 3]}\n" +
+			"mask_fill: background\ncut: {policy: drop, least_shown: 0, tries: 1000}\nsteps:\n  - {op: blur, sigma: 1}\n",
+		"null least_shown":     "name: t\ncut: {least_shown: ~}\nsteps: [{op: blur, sigma: 1}]\n",
 		"flow style":           "{name: t, steps: [{op: flip, axis: vertical}]}\n",
 		"crop by size":         step("  - {op: crop, size: [20, 30], output: [16, 16]}\n"),
 		"crop, null size":      step("  - {op: crop, area: 0.5, size: ~}\n"),
@@ -233,11 +233,11 @@ func TestPlanSchemaRejectsInvalid(t *testing.T) {
 		{"all weights zero", "at '/steps/0/weights': no items match contains schema", step("  - {op: one-of, steps: [{op: blur, sigma: 1}], weights: [0]}\n")},
 		{"negative weight", "at '/steps/0/weights/1': minimum: got -1, want 0", step("  - {op: one-of, steps: [{op: blur, sigma: 1}, {op: blur, sigma: 2}], weights: [1, -1]}\n")},
 		{"fill mode wrap", "at '/fill/mode': value must be one of", "name: t\nfill: {mode: wrap}\n" + psBase[len("name: t\n"):]},
-		{"fill colour of two", "at '/fill/colour': minItems: got 2, want 3", "name: t\nfill: {colour: [1, 2]}\n" + psBase[len("name: t\n"):]},
+		{"fill color of two", "at '/fill/color': minItems: got 2, want 3", "name: t\nfill: {color: [1, 2]}\n" + psBase[len("name: t\n"):]},
 		{"mask_fill other", "at '/mask_fill': value must be one of", "name: t\nmask_fill: other\n" + psBase[len("name: t\n"):]},
 		{"interpolation nearest", "at '/interpolation': value must be one of", "name: t\ninterpolation: nearest\n" + psBase[len("name: t\n"):]},
 		{"cut policy skip", "at '/cut/policy': value must be one of", "name: t\ncut: {policy: skip}\n" + psBase[len("name: t\n"):]},
-		{"cut min_visible 2", "at '/cut/min_visible': maximum: got 2, want 1", "name: t\ncut: {min_visible: 2}\n" + psBase[len("name: t\n"):]},
+		{"cut least_shown 2", "at '/cut/least_shown': maximum: got 2, want 1", "name: t\ncut: {least_shown: 2}\n" + psBase[len("name: t\n"):]},
 		{"cut tries 1001", "at '/cut/tries': maximum: got 1,001, want 1,000", "name: t\ncut: {tries: 1001}\n" + psBase[len("name: t\n"):]},
 		{"unknown cut field", "additional properties 'retries' not allowed", "name: t\ncut: {retries: 3}\n" + psBase[len("name: t\n"):]},
 	}
@@ -457,9 +457,9 @@ func TestPlanSchemaBoundsMatchValidation(t *testing.T) {
 	}{
 		{"fill: {intensity: 0}", true}, {"fill: {intensity: 255}", true},
 		{"fill: {intensity: -0.001}", false}, {"fill: {intensity: 255.001}", false},
-		{"fill: {colour: [0, 0, 255]}", true}, {"fill: {colour: [0, 0, 256]}", false}, {"fill: {colour: [-1, 0, 0]}", false},
-		{"cut: {min_visible: 0}", true}, {"cut: {min_visible: 1}", true},
-		{"cut: {min_visible: -0.001}", false}, {"cut: {min_visible: 1.001}", false},
+		{"fill: {color: [0, 0, 255]}", true}, {"fill: {color: [0, 0, 256]}", false}, {"fill: {color: [-1, 0, 0]}", false},
+		{"cut: {least_shown: 0}", true}, {"cut: {least_shown: 1}", true},
+		{"cut: {least_shown: -0.001}", false}, {"cut: {least_shown: 1.001}", false},
 		{"cut: {tries: 1}", true}, {"cut: {tries: 1000}", true}, {"cut: {tries: 1001}", false}, {"cut: {tries: -1}", false},
 	} {
 		doc := []byte("name: t\n" + c.doc + "\nsteps: [{op: blur, sigma: 1}]\n")
@@ -665,7 +665,7 @@ func TestPlanSchemaDefaultsMatchCode(t *testing.T) {
 	if err := json.Unmarshal(p.JSON(), &got); err != nil {
 		t.Fatal(err)
 	}
-	for _, path := range []string{"interpolation", "fill/mode", "fill/intensity", "cut/policy", "cut/min_visible", "cut/tries"} {
+	for _, path := range []string{"interpolation", "fill/mode", "fill/intensity", "cut/policy", "cut/least_shown", "cut/tries"} {
 		parts := strings.Split(path, "/")
 		sp := "properties/" + strings.Join(parts, "/properties/")
 		def := fmt.Sprint(psAt(t, doc, sp)["default"])

@@ -67,7 +67,7 @@ func keys(t float64) float64 {
 }
 
 // WarpImage resamples src through m onto an ow×oh image: each destination
-// pixel centre (x+0.5, y+0.5) is mapped back by m⁻¹ to a source point (u, v)
+// pixel center (x+0.5, y+0.5) is mapped back by m⁻¹ to a source point (u, v)
 // and the source is sampled there, source sample (i, j) sitting at
 // (i+0.5, j+0.5). Bilinear interpolation at a point with fractional offsets
 // (fx, fy) from tap (i, j) weighs the four taps by (1−fx)(1−fy), fx(1−fy),
@@ -111,7 +111,7 @@ func warpImageRef(src *Image, m Mat, ow, oh int, interp Interp, fill Fill) *Imag
 }
 
 // sampleRef computes destination pixel (x, y) of a warp by inv (the inverse
-// of the warp's matrix) into out (C values): the preimage of its centre,
+// of the warp's matrix) into out (C values): the preimage of its center,
 // then the bilinear (2×2) or bicubic (4×4) taps with the fill mode deciding
 // taps outside the source. The fast kernels call it for the pixels they do
 // not handle themselves (near the borders), so those are computed by the
@@ -175,7 +175,7 @@ func sampleRef(src *Image, inv Mat, x, y int, interp Interp, fill Fill, out []fl
 }
 
 // nearest returns the source pixel that contains the preimage of destination
-// pixel (x, y)'s centre, or ok = false when it falls outside w×h.
+// pixel (x, y)'s center, or ok = false when it falls outside w×h.
 func nearest(inv Mat, x, y, w, h int) (int, int, bool) {
 	u, v := inv.Apply(float64(x)+0.5, float64(y)+0.5)
 	i, j := math.Floor(u), math.Floor(v)
@@ -186,7 +186,7 @@ func nearest(inv Mat, x, y, w, h int) (int, int, bool) {
 }
 
 // WarpMask resamples a semantic mask through m by nearest neighbour under the
-// same pixel-centre convention as WarpImage; pixels whose preimage leaves the
+// same pixel-center convention as WarpImage; pixels whose preimage leaves the
 // source take fillID. It runs the fast kernels of warp_fast.go, which give
 // the same pixels as the reference warpMaskRef.
 func WarpMask(src *image.Paletted, m Mat, ow, oh int, fillID uint8) *image.Paletted {

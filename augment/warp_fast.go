@@ -20,7 +20,7 @@ import (
 //     source, leaving only the pixels near the borders (where the fill mode
 //     decides) to the reference's own per-pixel code, sampleRef;
 //   - move pixels by integer indices where the map is an exact flip or
-//     quarter turn (every centre lands on a centre): pure copies.
+//     quarter turn (every center lands on a center): pure copies.
 //
 // Bit-identity relies on three facts of IEEE 754 arithmetic in round to
 // nearest: adding ±0 to a sum that is not −0 leaves it unchanged (so the
@@ -62,9 +62,9 @@ func columnTerms(inv Mat, ow int) (au, av []float64) {
 // source pixel (i0 + ix·x + iy·y, j0 + jx·x + jy·y).
 type quarter struct{ i0, j0, ix, iy, jx, jy int }
 
-// quarterOf recognises an inverse map that moves pixel centres onto pixel
-// centres: its linear part a signed permutation of ±1 entries and the
-// preimage of the first centre a centre. The reference's preimages are then
+// quarterOf recognises an inverse map that moves pixel centers onto pixel
+// centers: its linear part a signed permutation of ±1 entries and the
+// preimage of the first center a center. The reference's preimages are then
 // exact (sums of small multiples of ½), so the integer indices here are the
 // very pixels it samples, with fractional offsets 0.
 func quarterOf(inv Mat) (quarter, bool) {
@@ -255,7 +255,7 @@ func nearestPlane(dp []byte, dstride, ow, oh int, sp []byte, sstride, w, h, bpp 
 }
 
 // quarterPlane is nearestPlane for an exact flip or quarter turn: the
-// reference's preimages are then pixel centres i + ½, whose floor is i.
+// reference's preimages are then pixel centers i + ½, whose floor is i.
 func quarterPlane(dp []byte, dstride, ow, oh int, sp []byte, sstride, w, h, bpp int, q quarter, fill []byte) {
 	for y := 0; y < oh; y++ {
 		i, j := q.i0+q.iy*y, q.j0+q.jy*y

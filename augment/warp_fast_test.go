@@ -36,7 +36,7 @@ func fastTestMaps(w, h int, rng *rand.Rand) (maps []Mat, quarters int) {
 	maps = append(maps,
 		About(ShearX(20), fw/2, fh/2, fw/2, fh/2),
 		CropResize(1.3, 0.7, fw*0.6, fh*0.8, w, h),
-		Scale(3, 3).Then(Translate(-0.5, -0.5)), // centres on edges: the nearest ties
+		Scale(3, 3).Then(Translate(-0.5, -0.5)), // centers on edges: the nearest ties
 		Translate(fw*2, 0),                      // wholly outside
 		Mat{1e-9, 0, 0, 0, 1e-9, 0},             // extreme shrink
 	)

@@ -6,11 +6,11 @@ import (
 	"github.com/trueset/trueset/manifest"
 )
 
-// paintBackground fills the canvas. Every value is taken at pixel centres
+// paintBackground fills the canvas. Every value is taken at pixel centers
 // (x+0.5, y+0.5).
 //
 //   - solid: tone A everywhere.
-//   - gradient: t is the pixel centre's projection on the direction of Angle
+//   - gradient: t is the pixel center's projection on the direction of Angle
 //     (degrees, clockwise from +x), scaled so the canvas spans t ∈ [0, 1];
 //     the tone is A + t·(B − A).
 //   - noise: value noise — a lattice of uniform random t ∈ [0, 1] every Cell

@@ -18,12 +18,12 @@ canvas:
   antialias: false
 classes:
   - name: thing
-    colour: [255, 0, 0]
+    color: [255, 0, 0]
 layers:
   - layout:
       kind: scatter
-      min_pixels: 1
-      min_visible: 0
+      least_pixels: 1
+      least_shown: 0
     objects:
       - class: thing
         shape: %s
@@ -39,7 +39,7 @@ layers:
 }
 
 // renderOne renders a plan holding one object of the recipe's only spec with
-// the given centre, size (height), aspect (width / height) and angle, and
+// the given center, size (height), aspect (width / height) and angle, and
 // returns the object's mask area and box as the test counts them from the
 // rendered instance mask, after checking the record agrees.
 func renderOne(t *testing.T, r *Recipe, cx, cy, size, aspect, angle float64) (area int, bbox [4]int) {
@@ -50,7 +50,7 @@ func renderOne(t *testing.T, r *Recipe, cx, cy, size, aspect, angle float64) (ar
 		Objects: []ObjectPlan{{
 			Spec: spec, Class: 1, Kind: spec.Shape, Tone: [3]uint8{200, 200, 200},
 			CX: cx, CY: cy, Size: size, Aspect: aspect, Angle: angle,
-			MinPixels: 1,
+			LeastPixels: 1,
 		}},
 	}
 	s, err := NewRenderer(r).Render(p)
@@ -62,8 +62,8 @@ func renderOne(t *testing.T, r *Recipe, cx, cy, size, aspect, angle float64) (ar
 		t.Fatalf("want exactly instance 1 in the mask, found %d ids", len(st))
 	}
 	o := s.Record.Objects[0]
-	if o.Area != st[1].area || o.BBox != st[1].bbox {
-		t.Fatalf("record area %d bbox %v, mask gives %d %v", o.Area, o.BBox, st[1].area, st[1].bbox)
+	if o.Area != st[1].area || o.Box != st[1].bbox {
+		t.Fatalf("record area %d bbox %v, mask gives %d %v", o.Area, o.Box, st[1].area, st[1].bbox)
 	}
 	return st[1].area, st[1].bbox
 }
@@ -83,7 +83,7 @@ func renderOne(t *testing.T, r *Recipe, cx, cy, size, aspect, angle float64) (ar
 // The same argument holds for mask pixels (pixel (x, y) is the square
 // [x, x+1) × [y, y+1), counted when the disc covers at least half of it):
 //   - upper: a counted pixel meets the disc, so all of its square is within
-//     r+√2 of the centre; disjoint unit squares inside that disc number at
+//     r+√2 of the center; disjoint unit squares inside that disc number at
 //     most π(r+√2)².
 //   - lower: every point q of the disc of radius r−√2 lies in some pixel
 //     whose every point is within √2 of q, hence inside the disc of radius r;
@@ -97,15 +97,15 @@ func renderOne(t *testing.T, r *Recipe, cx, cy, size, aspect, angle float64) (ar
 // πr² (about 0.3–1% at r = 30).
 func TestDiscAreaGaussBound(t *testing.T) {
 	r := oneShapeRecipe(t, "circle", 80, 80)
-	centres := [][2]float64{{40, 40}, {40.5, 40.5}, {40.25, 39.7}, {39.13, 40.91}, {40.999, 40.001}}
+	centers := [][2]float64{{40, 40}, {40.5, 40.5}, {40.25, 39.7}, {39.13, 40.91}, {40.999, 40.001}}
 	for _, rad := range []float64{3, 5.5, 10, 17.25, 30} {
-		for _, c := range centres {
+		for _, c := range centers {
 			n, bb := renderOne(t, r, c[0], c[1], 2*rad, 1, 0)
 			lo := math.Pi * (rad - math.Sqrt2) * (rad - math.Sqrt2)
 			hi := math.Pi * (rad + math.Sqrt2) * (rad + math.Sqrt2)
-			t.Logf("r=%g centre %v: area %d, πr² = %.2f, bound [%.1f, %.1f]", rad, c, n, math.Pi*rad*rad, lo, hi)
+			t.Logf("r=%g center %v: area %d, πr² = %.2f, bound [%.1f, %.1f]", rad, c, n, math.Pi*rad*rad, lo, hi)
 			if float64(n) < lo || float64(n) > hi {
-				t.Errorf("r=%g centre %v: mask area %d outside Gauss bound [%.1f, %.1f] (πr² = %.1f)", rad, c, n, lo, hi, math.Pi*rad*rad)
+				t.Errorf("r=%g center %v: mask area %d outside Gauss bound [%.1f, %.1f] (πr² = %.1f)", rad, c, n, lo, hi, math.Pi*rad*rad)
 			}
 			// The box: no pixel beyond the disc is counted, so each side is
 			// within 1 pixel outside c ± r; and the point at distance r−√2
@@ -114,7 +114,7 @@ func TestDiscAreaGaussBound(t *testing.T) {
 			want := [4]float64{c[0] - rad, c[1] - rad, c[0] + rad, c[1] + rad}
 			for i := range bb {
 				if math.Abs(float64(bb[i])-want[i]) > math.Sqrt2 {
-					t.Errorf("r=%g centre %v: bbox %v, the disc spans %v", rad, c, bb, want)
+					t.Errorf("r=%g center %v: bbox %v, the disc spans %v", rad, c, bb, want)
 					break
 				}
 			}
@@ -125,14 +125,14 @@ func TestDiscAreaGaussBound(t *testing.T) {
 // TestRotateRectangle90 rotates a w×h rectangle by 90° about a pixel corner.
 // With the rotation matrix [cos θ −sin θ; sin θ cos θ] at θ = 90° =
 // [0 −1; 1 0], the corner (±w/2, ±h/2) maps to (∓h/2, ±w/2): the w×h box
-// becomes h×w. With whole-pixel sides and the centre on a pixel corner (even
-// sides) or a pixel centre (odd sides) every edge falls on a pixel boundary,
+// becomes h×w. With whole-pixel sides and the center on a pixel corner (even
+// sides) or a pixel center (odd sides) every edge falls on a pixel boundary,
 // so the mask is exactly the box's pixels: w·h of them, at either angle.
 func TestRotateRectangle90(t *testing.T) {
 	r := oneShapeRecipe(t, "rectangle", 64, 64)
-	// Sides of equal parity, so one centre puts the edges on pixel
+	// Sides of equal parity, so one center puts the edges on pixel
 	// boundaries at both angles: a pixel corner for even sides, a pixel
-	// centre for odd ones.
+	// center for odd ones.
 	for _, wh := range [][2]float64{{20, 8}, {8, 20}, {13, 7}, {1, 5}, {30, 2}} {
 		w, h := wh[0], wh[1]
 		cx, cy := 30.0, 30.0

@@ -65,15 +65,15 @@ func readMetrics(t *testing.T, ttf []byte, chars string, ppem int) map[rune]sfnt
 // baseline jitter, zero angle and antialiasing off.
 //
 // A row sets glyph n's pen at pen_n = pen_0 + Σ_{k<n} adv_k on one baseline,
-// and its recorded centre is the centre of its ink box placed at the pen:
+// and its recorded center is the center of its ink box placed at the pen:
 //
-//	centre_x(n) = pen_n + (bx0_n + bx1_n)/2,  centre_y(n) = baseline + (by0_n + by1_n)/2
+//	center_x(n) = pen_n + (bx0_n + bx1_n)/2,  center_y(n) = baseline + (by0_n + by1_n)/2
 //
 // (bounds and advances already scaled to pixels by ppem = size). Hence
 //
-//	centre_x(n+1) − centre_x(n) = adv_n + (bx0+bx1)_{n+1}/2 − (bx0+bx1)_n/2
+//	center_x(n+1) − center_x(n) = adv_n + (bx0+bx1)_{n+1}/2 − (bx0+bx1)_n/2
 //
-// and centre_y(n) − (by0+by1)_n/2 is the same baseline for every n.
+// and center_y(n) − (by0+by1)_n/2 is the same baseline for every n.
 func TestGlyphRowAgainstFontMetrics(t *testing.T) {
 	const chars = "AHMOSVWabdefgjkpqxyz0123456789&@"
 	fonts := []struct {
@@ -92,14 +92,14 @@ canvas:
   antialias: false
 classes:
   - name: char
-    colour: [255, 255, 255]
+    color: [255, 255, 255]
 layers:
   - layout:
       kind: row
       spacing: 0
       baseline_jitter: 0
-      min_pixels: 1
-      min_visible: 0
+      least_pixels: 1
+      least_shown: 0
     objects:
       - class: char
         glyph:
@@ -115,7 +115,7 @@ layers:
 					t.Fatal(err)
 				}
 				rd := NewRenderer(r)
-				const tol = 1e-3 + 1e-9 // centres are recorded to 3 decimals
+				const tol = 1e-3 + 1e-9 // centers are recorded to 3 decimals
 				for idx := 0; idx < 40; idx++ {
 					s, err := rd.Generate(7, idx)
 					if err != nil {
@@ -128,23 +128,23 @@ layers:
 					stats := measureGray16(s.Instances)
 					var ms []sfntMetrics
 					for _, o := range objs {
-						if o.Kind != "glyph" || o.Font != fnt.name || o.Size != float64(size) || o.Angle != 0 || o.Aspect != 1 {
+						if o.Shape != "glyph" || o.Font != fnt.name || o.Size != float64(size) || o.Angle != 0 || o.Aspect != 1 {
 							t.Fatalf("sample %d: unexpected object %+v", idx, o)
 						}
 						ms = append(ms, met[[]rune(o.Glyph)[0]])
 					}
 
-					// (a) Successive centres differ by the sfnt advance of
+					// (a) Successive centers differ by the sfnt advance of
 					// the previous glyph plus the half-width difference of
 					// the ink bounds; all glyphs share one baseline.
-					base := objs[0].Centre[1] - (ms[0].by0+ms[0].by1)/2
+					base := objs[0].Center[1] - (ms[0].by0+ms[0].by1)/2
 					for n := 1; n < len(objs); n++ {
-						got := objs[n].Centre[0] - objs[n-1].Centre[0]
+						got := objs[n].Center[0] - objs[n-1].Center[0]
 						want := ms[n-1].adv + (ms[n].bx0+ms[n].bx1)/2 - (ms[n-1].bx0+ms[n-1].bx1)/2
 						if math.Abs(got-want) > tol {
-							t.Errorf("sample %d: %q→%q: centre step %.4f px, sfnt metrics give %.4f", idx, objs[n-1].Glyph, objs[n].Glyph, got, want)
+							t.Errorf("sample %d: %q→%q: center step %.4f px, sfnt metrics give %.4f", idx, objs[n-1].Glyph, objs[n].Glyph, got, want)
 						}
-						b := objs[n].Centre[1] - (ms[n].by0+ms[n].by1)/2
+						b := objs[n].Center[1] - (ms[n].by0+ms[n].by1)/2
 						if math.Abs(b-base) > tol {
 							t.Errorf("sample %d: glyph %d %q sits on baseline %.4f, glyph 0 on %.4f", idx, n, objs[n].Glyph, b, base)
 						}
@@ -168,7 +168,7 @@ layers:
 					// under the mask's 0.5 rule, so the mask rightly stops
 					// about 1.03 px short of x1 there; for that glyph the
 					// right side is left out of the inner check.
-					pen := objs[0].Centre[0] - (ms[0].bx0+ms[0].bx1)/2
+					pen := objs[0].Center[0] - (ms[0].bx0+ms[0].bx1)/2
 					for n, o := range objs {
 						m := ms[n]
 						ink := [4]float64{pen + m.bx0, base + m.by0, pen + m.bx1, base + m.by1}

@@ -126,7 +126,7 @@ func labelsDecodeSample(t *testing.T, dir string, rec *manifest.Record, mode str
 		switch f.key {
 		case "image":
 			// DESIGN.md: images are 8-bit gray or RGB; image/png decodes
-			// colour type 0 depth 8 as *image.Gray and colour type 2 depth 8
+			// color type 0 depth 8 as *image.Gray and color type 2 depth 8
 			// as *image.RGBA.
 			switch m.(type) {
 			case *image.Gray:
@@ -142,14 +142,14 @@ func labelsDecodeSample(t *testing.T, dir string, rec *manifest.Record, mode str
 			}
 			sf.img = m
 		case "mask":
-			// (e) PNG colour type 3 (indexed) decodes as *image.Paletted.
+			// (e) PNG color type 3 (indexed) decodes as *image.Paletted.
 			p, ok := m.(*image.Paletted)
 			if !ok {
 				t.Fatalf("%s: mask decodes as %T, want an indexed (paletted) PNG", rec.ID, m)
 			}
 			sf.mask = p
 		case "instances":
-			// PNG colour type 0 depth 16 decodes as *image.Gray16.
+			// PNG color type 0 depth 16 decodes as *image.Gray16.
 			g, ok := m.(*image.Gray16)
 			if !ok {
 				t.Fatalf("%s: instance mask decodes as %T, want 16-bit gray", rec.ID, m)
@@ -161,15 +161,15 @@ func labelsDecodeSample(t *testing.T, dir string, rec *manifest.Record, mode str
 }
 
 // labelsCheckPalette is check (e): the decoded PLTE chunk (ISO/IEC 15948 §11.2.3,
-// decoded by image/png) holds the class table colours, entry i being class
-// i's colour (background black), as given by the recipe and by dataset.json.
+// decoded by image/png) holds the class table colors, entry i being class
+// i's color (background black), as given by the recipe and by dataset.json.
 func labelsCheckPalette(t *testing.T, id string, pal color.Palette, r *Recipe, ds *manifest.Dataset) {
 	t.Helper()
 	want := []color.RGBA{{0, 0, 0, 255}}
 	for _, c := range r.Classes {
-		want = append(want, color.RGBA{uint8(c.Colour[0]), uint8(c.Colour[1]), uint8(c.Colour[2]), 255})
+		want = append(want, color.RGBA{uint8(c.Color[0]), uint8(c.Color[1]), uint8(c.Color[2]), 255})
 	}
-	// Entry i is class i's colour for every class in the table; a palette
+	// Entry i is class i's color for every class in the table; a palette
 	// may be padded beyond the table (e.g. to 256 entries so the PNG is
 	// 8-bit), and (d) shows no mask pixel uses a padding entry.
 	if len(pal) < len(want) {
@@ -179,7 +179,7 @@ func labelsCheckPalette(t *testing.T, id string, pal color.Palette, r *Recipe, d
 		r1, g1, b1, a1 := c.RGBA()
 		r2, g2, b2, a2 := want[i].RGBA()
 		if r1 != r2 || g1 != g2 || b1 != b2 || a1 != a2 {
-			t.Fatalf("%s: palette entry %d is %v, class colour is %v", id, i, c, want[i])
+			t.Fatalf("%s: palette entry %d is %v, class color is %v", id, i, c, want[i])
 		}
 	}
 	if len(ds.Classes) != len(want) {
@@ -187,8 +187,8 @@ func labelsCheckPalette(t *testing.T, id string, pal color.Palette, r *Recipe, d
 	}
 	for i, c := range ds.Classes {
 		w := want[i]
-		if c.ID != i || c.Colour != [3]uint8{w.R, w.G, w.B} {
-			t.Fatalf("dataset.json class %d = %+v, want id %d colour %v", i, c, i, w)
+		if c.ID != i || c.Color != [3]uint8{w.R, w.G, w.B} {
+			t.Fatalf("dataset.json class %d = %+v, want id %d color %v", i, c, i, w)
 		}
 	}
 }
@@ -277,8 +277,8 @@ func labelsCheck(t *testing.T, r *Recipe, dir string, n int) {
 			if s == nil {
 				continue // reported by (a)
 			}
-			if o.BBox != s.bbox || o.Area != s.area {
-				t.Errorf("%s: instance %d: record bbox %v area %d, decoded PNG gives bbox %v area %d", rec.ID, id, o.BBox, o.Area, s.bbox, s.area)
+			if o.Box != s.bbox || o.Area != s.area {
+				t.Errorf("%s: instance %d: record bbox %v area %d, decoded PNG gives bbox %v area %d", rec.ID, id, o.Box, o.Area, s.bbox, s.area)
 			}
 		}
 
@@ -348,7 +348,7 @@ func TestLabelsPresets(t *testing.T) {
 
 // TestLabelsAliasedTones turns antialiasing off in every preset and checks
 // that every pixel of every instance carries exactly its object's recorded
-// intensity (gray) or colour (rgb): with antialiasing off an object is
+// intensity (gray) or color (rgb): with antialiasing off an object is
 // painted with its full tone wherever its mask is (coverage ≥ 0.5) and
 // nowhere else, so the image and the masks must agree pixel for pixel.
 func TestLabelsAliasedTones(t *testing.T) {
@@ -380,8 +380,8 @@ func TestLabelsAliasedTones(t *testing.T) {
 				tone := map[int][3]uint8{}
 				for _, o := range rec.Objects {
 					switch {
-					case o.Colour != nil:
-						tone[o.Instance] = *o.Colour
+					case o.Color != nil:
+						tone[o.Instance] = *o.Color
 					case o.Intensity != nil:
 						v := uint8(*o.Intensity)
 						if float64(v) != *o.Intensity {
@@ -389,7 +389,7 @@ func TestLabelsAliasedTones(t *testing.T) {
 						}
 						tone[o.Instance] = [3]uint8{v, v, v}
 					default:
-						t.Fatalf("%s: instance %d has neither intensity nor colour", rec.ID, o.Instance)
+						t.Fatalf("%s: instance %d has neither intensity nor color", rec.ID, o.Instance)
 					}
 				}
 				// Source: image and instance PNGs decoded by the standard

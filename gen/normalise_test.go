@@ -5,10 +5,10 @@ import (
 	"testing"
 )
 
-// The normalised recipe stored in dataset.json must parse back to itself, so
+// The normalized recipe stored in dataset.json must parse back to itself, so
 // that a dataset can be regenerated from dataset.json alone. (JSON is valid
 // YAML 1.2 flow syntax, so the same parser reads it.)
-func TestNormalisedRecipeRoundTrip(t *testing.T) {
+func TestNormalizedRecipeRoundTrip(t *testing.T) {
 	for _, name := range PresetNames() {
 		r, err := Preset(name)
 		if err != nil {
@@ -20,11 +20,11 @@ func TestNormalisedRecipeRoundTrip(t *testing.T) {
 		}
 		r2, err := ParseRecipe("dataset.json", a)
 		if err != nil {
-			t.Fatalf("%s: normalised recipe does not parse: %v\n%s", name, err, a)
+			t.Fatalf("%s: normalized recipe does not parse: %v\n%s", name, err, a)
 		}
 		b, hb, _ := r2.RecipeJSON()
 		if !bytes.Equal(a, b) || ha != hb {
-			t.Fatalf("%s: normalised recipe changes when parsed again:\n%s\n%s", name, a, b)
+			t.Fatalf("%s: normalized recipe changes when parsed again:\n%s\n%s", name, a, b)
 		}
 	}
 }

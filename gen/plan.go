@@ -56,8 +56,8 @@ type ObjectPlan struct {
 	Inner, Corner, Thickness    float64
 
 	order      float64 // reading order within its layer
-	MinVisible float64
-	MinPixels  int
+	LeastShown float64
+	LeastPixels  int
 }
 
 // LayoutError is a layout that could not be satisfied within the bounded
@@ -104,7 +104,7 @@ func drawCount(rng *rand.Rand, c Count) int {
 	return c.Values[len(c.Values)-1]
 }
 
-func drawTone(rng *rand.Rand, in *Range, col *ColourRange) [3]uint8 {
+func drawTone(rng *rand.Rand, in *Range, col *ColorRange) [3]uint8 {
 	if col != nil {
 		var t [3]uint8
 		for i := range t {
@@ -188,12 +188,12 @@ func (r *Recipe) drawContent(seed uint64, index, draw int) []ObjectPlan {
 
 func (r *Recipe) contentOne(rng *rand.Rand, spec *ObjectSpec, layer int, lay *Layout) ObjectPlan {
 	o := ObjectPlan{Spec: spec, Class: spec.classID, Layer: layer, Kind: spec.Shape,
-		MinVisible: *lay.MinVisible, MinPixels: *lay.MinPixels}
+		LeastShown: *lay.LeastShown, LeastPixels: *lay.LeastPixels}
 	if spec.Glyph != nil {
 		o.Kind = "glyph"
 		o.Glyph = spec.chars[rng.IntN(len(spec.chars))]
 	}
-	o.Tone = drawTone(rng, spec.Intensity, spec.Colour)
+	o.Tone = drawTone(rng, spec.Intensity, spec.Color)
 	if spec.Sides != nil {
 		o.Sides = uniInt(rng, spec.Sides.Min, spec.Sides.Max)
 	}
@@ -253,21 +253,21 @@ func (r *Recipe) placeContent(seed uint64, index, attempt int, objs []ObjectPlan
 func (r *Recipe) planBackground(rng *rand.Rand) BackgroundPlan {
 	b := &r.Background
 	bp := BackgroundPlan{Kind: b.Kind}
-	bp.A = drawTone(rng, b.Intensity, b.Colour)
+	bp.A = drawTone(rng, b.Intensity, b.Color)
 	switch b.Kind {
 	case "gradient":
-		bp.B = drawTone(rng, b.EndIntensity, b.EndColour)
+		bp.B = drawTone(rng, b.EndIntensity, b.EndColor)
 		bp.Angle = uni(rng, *b.Angle)
 	case "noise":
 		// The lattice spans the whole range: A and B are its ends.
-		bp.A, bp.B = toneEnds(b.Intensity, b.Colour)
+		bp.A, bp.B = toneEnds(b.Intensity, b.Color)
 		bp.Cell = uni(rng, *b.Cell)
 		bp.NoiseSeed = rng.Uint64()
 	}
 	return bp
 }
 
-func toneEnds(in *Range, col *ColourRange) (a, b [3]uint8) {
+func toneEnds(in *Range, col *ColorRange) (a, b [3]uint8) {
 	if col != nil {
 		for i := range a {
 			a[i], b[i] = uint8(math.Round(col.From[i])), uint8(math.Round(col.To[i]))
@@ -278,7 +278,7 @@ func toneEnds(in *Range, col *ColourRange) (a, b [3]uint8) {
 	return [3]uint8{lo, lo, lo}, [3]uint8{hi, hi, hi}
 }
 
-// box is an oriented rectangle: centre, unit axis u (v = u rotated 90°) and
+// box is an oriented rectangle: center, unit axis u (v = u rotated 90°) and
 // half extents.
 type box struct {
 	cx, cy, ux, uy, hw, hh float64
@@ -482,7 +482,7 @@ func (r *Recipe) placeRow(rng *rand.Rand, lay *Layout, objs []ObjectPlan, tops [
 		g := o.Spec.font.glyphs[o.Glyph]
 		s := o.Size / o.Spec.font.UPEM
 		by := baseline + (rng.Float64()*2-1)*J
-		// The centre is the ink-box centre; rotation turns about it.
+		// The center is the ink-box center; rotation turns about it.
 		o.CX = startX + pens[n] + (g.Bounds[0]+g.Bounds[2])/2*s*o.Aspect
 		o.CY = by + (g.Bounds[1]+g.Bounds[3])/2*s
 		o.order = float64(n)
@@ -490,7 +490,7 @@ func (r *Recipe) placeRow(rng *rand.Rand, lay *Layout, objs []ObjectPlan, tops [
 	return nil
 }
 
-// pipSpots are die-face positions in a unit square centred on 0, for 1..6
+// pipSpots are die-face positions in a unit square centered on 0, for 1..6
 // pips (the layout printed on standard six-sided dice).
 var pipSpots = [7][][2]float64{
 	{},

@@ -46,17 +46,17 @@ type Canvas struct {
 type Background struct {
 	Kind         string       `yaml:"kind" json:"kind"` // solid, gradient or noise
 	Intensity    *Range       `yaml:"intensity" json:"intensity,omitempty"`
-	Colour       *ColourRange `yaml:"colour" json:"colour,omitempty"`
+	Color       *ColorRange `yaml:"color" json:"color,omitempty"`
 	EndIntensity *Range       `yaml:"end_intensity" json:"end_intensity,omitempty"`
-	EndColour    *ColourRange `yaml:"end_colour" json:"end_colour,omitempty"`
+	EndColor    *ColorRange `yaml:"end_color" json:"end_color,omitempty"`
 	Angle        *Range       `yaml:"angle" json:"angle,omitempty"`
 	Cell         *Range       `yaml:"cell" json:"cell,omitempty"`
 }
 
-// ClassSpec names a class and its palette colour; ids follow list order from 1.
+// ClassSpec names a class and its palette color; ids follow list order from 1.
 type ClassSpec struct {
 	Name   string `yaml:"name" json:"name"`
-	Colour []int  `yaml:"colour" json:"colour"`
+	Color []int  `yaml:"color" json:"color"`
 }
 
 // Layer is a group of objects placed by one layout; later layers draw on top.
@@ -71,8 +71,8 @@ type Layout struct {
 	Region         []float64 `yaml:"region" json:"region,omitempty"`
 	MaxOverlap     float64   `yaml:"max_overlap" json:"max_overlap"`
 	MinGap         float64   `yaml:"min_gap" json:"min_gap"`
-	MinVisible     *float64  `yaml:"min_visible" json:"min_visible"`
-	MinPixels      *int      `yaml:"min_pixels" json:"min_pixels"`
+	LeastShown     *float64  `yaml:"least_shown" json:"least_shown"`
+	LeastPixels      *int      `yaml:"least_pixels" json:"least_pixels"`
 	Spacing        *Range    `yaml:"spacing" json:"spacing,omitempty"`
 	BaselineJitter float64   `yaml:"baseline_jitter" json:"baseline_jitter,omitempty"`
 	Rows           int       `yaml:"rows" json:"rows,omitempty"`
@@ -91,7 +91,7 @@ type ObjectSpec struct {
 	Aspect      *Range       `yaml:"aspect" json:"aspect"`
 	Angle       *Range       `yaml:"angle" json:"angle"`
 	Intensity   *Range       `yaml:"intensity" json:"intensity,omitempty"`
-	Colour      *ColourRange `yaml:"colour" json:"colour,omitempty"`
+	Color      *ColorRange `yaml:"color" json:"color,omitempty"`
 	Sides       *IntRange    `yaml:"sides" json:"sides,omitempty"`
 	Inner       *Range       `yaml:"inner" json:"inner,omitempty"`
 	Corner      *Range       `yaml:"corner" json:"corner,omitempty"`
@@ -221,11 +221,11 @@ func (c Count) MarshalJSON() ([]byte, error) {
 	return b.Bytes(), nil
 }
 
-// ColourRange draws each RGB channel uniformly between From and To; a single
-// [r, g, b] means a fixed colour.
-type ColourRange struct{ From, To [3]float64 }
+// ColorRange draws each RGB channel uniformly between From and To; a single
+// [r, g, b] means a fixed color.
+type ColorRange struct{ From, To [3]float64 }
 
-func (c *ColourRange) DecodeNode(d *yamlnode.Decoder, n *yaml.Node, path string) error {
+func (c *ColorRange) DecodeNode(d *yamlnode.Decoder, n *yaml.Node, path string) error {
 	triple := func(m *yaml.Node) ([3]float64, error) {
 		var t [3]float64
 		if m.Kind != yaml.SequenceNode || len(m.Content) != 3 {
@@ -234,7 +234,7 @@ func (c *ColourRange) DecodeNode(d *yamlnode.Decoder, n *yaml.Node, path string)
 		for i, e := range m.Content {
 			f, err := yamlnode.ScalarFloat(e)
 			if err != nil || f < 0 || f > 255 {
-				return t, d.ErrAt(e, path, yamlnode.Show(m), "colour channels are numbers in 0..255")
+				return t, d.ErrAt(e, path, yamlnode.Show(m), "color channels are numbers in 0..255")
 			}
 			t[i] = f
 		}
@@ -266,7 +266,7 @@ func (c *ColourRange) DecodeNode(d *yamlnode.Decoder, n *yaml.Node, path string)
 }
 
 // MarshalJSON writes [[r,g,b],[r,g,b]].
-func (c ColourRange) MarshalJSON() ([]byte, error) {
+func (c ColorRange) MarshalJSON() ([]byte, error) {
 	return []byte(fmt.Sprintf("[[%s,%s,%s],[%s,%s,%s]]", fnum(c.From[0]), fnum(c.From[1]), fnum(c.From[2]), fnum(c.To[0]), fnum(c.To[1]), fnum(c.To[2]))), nil
 }
 

@@ -16,9 +16,9 @@ import (
 //	 4   height: 64
 //	 5 classes:
 //	 6   - name: a
-//	 7     colour: [255, 0, 0]
+//	 7     color: [255, 0, 0]
 //	 8   - name: b
-//	 9     colour: [0, 255, 0]
+//	 9     color: [0, 255, 0]
 //	10 layers:
 //	11   - layout:
 //	12       kind: scatter
@@ -40,9 +40,9 @@ canvas:
   height: 64
 classes:
   - name: a
-    colour: [255, 0, 0]
+    color: [255, 0, 0]
   - name: b
-    colour: [0, 255, 0]
+    color: [0, 255, 0]
 layers:
   - layout:
       kind: scatter
@@ -84,8 +84,8 @@ func TestRecipeErrorPositions(t *testing.T) {
 		path     string   // the field path it names
 		mentions []string // the bad value and/or the allowed values
 	}{
-		{"unknown top-level field", "name: t\n", "name: t\ncolours: 3\n",
-			2, "colours", []string{`unknown field "colours"`, "allowed here: background, canvas, classes, description, layers, name, split, targets"}},
+		{"unknown top-level field", "name: t\n", "name: t\ncolors: 3\n",
+			2, "colors", []string{`unknown field "colors"`, "allowed here: background, canvas, classes, description, layers, name, split, targets"}},
 		{"unknown canvas field", "  height: 64\n", "  height: 64\n  depth: 8\n",
 			5, "canvas.depth", []string{`unknown field "depth"`, "antialias, height, mode, width"}},
 		{"unknown layout field", "      kind: scatter\n", "      kind: scatter\n      spread: 3\n",
@@ -139,8 +139,8 @@ func TestRecipeErrorPositions(t *testing.T) {
 		{"number target over non-digit chars", "        shape: rectangle\n        count: 2\n        size: 10\ntargets:\n  - name: total\n    kind: count\n",
 			glyphB + "        count: 2\n        size: 10\ntargets:\n  - name: total\n    kind: number\n    classes: [b]\n",
 			26, "targets[0].kind", []string{`"number"`, "reads digits", `"A"`}},
-		{"colour on a gray canvas", "        size: 10\n", "        size: 10\n        colour: [255, 0, 0]\n",
-			22, "layers[0].objects[1].colour", []string{"canvas.mode rgb", "intensity"}},
+		{"color on a gray canvas", "        size: 10\n", "        size: 10\n        color: [255, 0, 0]\n",
+			22, "layers[0].objects[1].color", []string{"canvas.mode rgb", "intensity"}},
 		{"invalid YAML syntax", "  height: 64\n", "  height: 64: 3\n",
 			4, "", []string{"YAML syntax", "mapping values are not allowed"}},
 		{"duplicate class names", "  - name: b\n", "  - name: a\n",
@@ -211,7 +211,7 @@ canvas:
   height: 64
 classes:
   - name: a
-    colour: [255, 0, 0]
+    color: [255, 0, 0]
 layers:
   - layout:
       kind: scatter

@@ -54,7 +54,7 @@ func fuzzRecipeSeeds(tb testing.TB) [][]byte {
 		out = append(out, bytes.Replace(b, []byte("  "), []byte("\t"), 1))
 	}
 	out = append(out, []byte(""), []byte("name: x\n"), []byte("{}"), []byte("[1, 2]"),
-		[]byte("name: x\ncanvas: {width: 8, height: 8}\nclasses: [{name: a, colour: [1, 2, 3]}]\nlayers: [{objects: [{class: a, shape: circle, count: 1, size: 4}]}]\n"),
+		[]byte("name: x\ncanvas: {width: 8, height: 8}\nclasses: [{name: a, color: [1, 2, 3]}]\nlayers: [{objects: [{class: a, shape: circle, count: 1, size: 4}]}]\n"),
 		[]byte(fuzzShapesRecipe))
 	return out
 }
@@ -65,11 +65,11 @@ const fuzzShapesRecipe = `name: shapes
 canvas: {width: 48, height: 40, antialias: false}
 background: {kind: noise, intensity: [10, 40], cell: 4}
 classes:
-  - {name: a, colour: [255, 0, 0]}
-  - {name: b, colour: [0, 255, 0]}
-  - {name: d, colour: [0, 0, 255]}
+  - {name: a, color: [255, 0, 0]}
+  - {name: b, color: [0, 255, 0]}
+  - {name: d, color: [0, 0, 255]}
 layers:
-  - layout: {kind: scatter, max_overlap: 0.3, min_visible: 0.2, min_pixels: 2, region: [0, 0, 40, 40]}
+  - layout: {kind: scatter, max_overlap: 0.3, least_shown: 0.2, least_pixels: 2, region: [0, 0, 40, 40]}
     objects:
       - {class: a, shape: polygon, sides: [3, 8], count: {0: 1, 2: 3}, size: [6, 9], aspect: [0.5, 2], angle: [-180, 180], value: [1, 9]}
       - {class: a, shape: star, sides: 5, inner: [0.3, 0.6], count: 1, size: 8}
@@ -179,22 +179,22 @@ func checkFuzzSample(t *testing.T, r *Recipe, s *Sample) {
 		t.Fatalf("%d instance ids in the mask, %d objects in the record", len(stats), len(s.Record.Objects))
 	}
 	for _, o := range s.Record.Objects {
-		b := o.BBox
+		b := o.Box
 		if b[0] < 0 || b[1] < 0 || b[2] > W || b[3] > H || b[0] >= b[2] || b[1] >= b[3] {
 			t.Fatalf("object %d: bbox %v outside the %d×%d canvas or empty", o.Instance, b, W, H)
 		}
 		if o.Area < 1 || o.Area > (b[2]-b[0])*(b[3]-b[1]) {
 			t.Fatalf("object %d: area %d does not fit its bbox %v", o.Instance, o.Area, b)
 		}
-		if o.Visible <= 0 || o.Visible > 1 {
-			t.Fatalf("object %d: visible %v outside (0, 1]", o.Instance, o.Visible)
+		if o.Shown <= 0 || o.Shown > 1 {
+			t.Fatalf("object %d: visible %v outside (0, 1]", o.Instance, o.Shown)
 		}
 		if o.Class < 1 || o.Class > len(r.Classes) {
 			t.Fatalf("object %d: class %d; the recipe has %d classes", o.Instance, o.Class, len(r.Classes))
 		}
 		st := stats[o.Instance]
-		if st == nil || st.Area != o.Area || st.BBox != o.BBox {
-			t.Fatalf("object %d: record says area %d bbox %v, the instance mask says %+v", o.Instance, o.Area, o.BBox, st)
+		if st == nil || st.Area != o.Area || st.BBox != o.Box {
+			t.Fatalf("object %d: record says area %d bbox %v, the instance mask says %+v", o.Instance, o.Area, o.Box, st)
 		}
 	}
 	if _, err := manifest.MarshalRecord(&s.Record); err != nil {
@@ -240,9 +240,9 @@ func (sc fuzzScene) yaml() []byte {
 	case 2:
 		b.WriteString("background: {kind: noise, intensity: [0, 90], cell: [1, 5]}\n")
 	}
-	b.WriteString("classes:\n  - {name: a, colour: [200, 0, 0]}\n  - {name: p, colour: [0, 200, 0]}\nlayers:\n  - layout:\n")
+	b.WriteString("classes:\n  - {name: a, color: [200, 0, 0]}\n  - {name: p, color: [0, 200, 0]}\nlayers:\n  - layout:\n")
 	layout := []string{"scatter", "row", "grid"}[sc.Layout%3]
-	fmt.Fprintf(&b, "      kind: %s\n      max_overlap: %s\n      min_visible: %s\n      min_pixels: 1\n", layout, ff(sc.Overlap), ff(sc.Visible))
+	fmt.Fprintf(&b, "      kind: %s\n      max_overlap: %s\n      least_shown: %s\n      least_pixels: 1\n", layout, ff(sc.Overlap), ff(sc.Visible))
 	if layout == "grid" {
 		fmt.Fprintf(&b, "      rows: %d\n      cols: %d\n", sc.Rows, sc.Cols)
 	}

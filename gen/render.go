@@ -15,7 +15,7 @@ import (
 // them (paths and checksums are filled in when it is written).
 type Sample struct {
 	Image     image.Image     // *image.Gray or *image.RGBA
-	Mask      *image.Paletted // class ids, palette = class colours
+	Mask      *image.Paletted // class ids, palette = class colors
 	Instances *image.Gray16   // instance ids, 0 = none
 	Record    manifest.Record
 }
@@ -43,9 +43,9 @@ const GlyphMaxRotate = 15.0
 
 // ClassTable returns the recipe's classes with background as id 0.
 func (r *Recipe) ClassTable() []manifest.Class {
-	out := []manifest.Class{{ID: 0, Name: "background", Colour: [3]uint8{0, 0, 0}}}
+	out := []manifest.Class{{ID: 0, Name: "background", Color: [3]uint8{0, 0, 0}}}
 	for i, c := range r.Classes {
-		out = append(out, manifest.Class{ID: i + 1, Name: c.Name, Colour: [3]uint8{uint8(c.Colour[0]), uint8(c.Colour[1]), uint8(c.Colour[2])}})
+		out = append(out, manifest.Class{ID: i + 1, Name: c.Name, Color: [3]uint8{uint8(c.Color[0]), uint8(c.Color[1]), uint8(c.Color[2])}})
 	}
 	// Glyph classes keep their label under small turns only and never under
 	// a flip: a mirrored glyph is another glyph, a 6 turned over reads 9.
@@ -65,13 +65,13 @@ type VisibilityError struct {
 	Class      string
 	Area       int
 	Visible    float64
-	MinPixels  int
-	MinVisible float64
+	LeastPixels  int
+	LeastShown float64
 }
 
 func (e *VisibilityError) Error() string {
 	return fmt.Sprintf("object %d (class %q) kept %d pixels, %.0f%% visible; the layout asks for at least %d pixels and %.0f%% visible",
-		e.Instance, e.Class, e.Area, 100*e.Visible, e.MinPixels, 100*e.MinVisible)
+		e.Instance, e.Class, e.Area, 100*e.Visible, e.LeastPixels, 100*e.LeastShown)
 }
 
 // Generate plans and renders sample index, redrawing its geometry (bounded by
@@ -316,14 +316,14 @@ func (rd *Renderer) label(p *Plan, s *Sample, alone []int) error {
 		if alone[i] > 0 {
 			vis = float64(area) / float64(alone[i])
 		}
-		if area < o.MinPixels || vis < o.MinVisible {
-			return &VisibilityError{Instance: id, Class: rd.palette[o.Class].Name, Area: area, Visible: vis, MinPixels: o.MinPixels, MinVisible: o.MinVisible}
+		if area < o.LeastPixels || vis < o.LeastShown {
+			return &VisibilityError{Instance: id, Class: rd.palette[o.Class].Name, Area: area, Visible: vis, LeastPixels: o.LeastPixels, LeastShown: o.LeastShown}
 		}
 		ob := manifest.Object{
 			Instance: id, Class: o.Class, ClassName: rd.palette[o.Class].Name, Parent: o.Parent,
-			BBox: bb, Area: area, Visible: manifest.Round(vis, 4),
-			Kind:   o.Kind,
-			Centre: [2]float64{manifest.Round(o.CX, 3), manifest.Round(o.CY, 3)},
+			Box: bb, Area: area, Shown: manifest.Round(vis, 4),
+			Shape:   o.Kind,
+			Center: [2]float64{manifest.Round(o.CX, 3), manifest.Round(o.CY, 3)},
 			Size:   manifest.Round(o.Size, 3), Aspect: manifest.Round(o.Aspect, 4), Angle: manifest.Round(o.Angle, 3),
 			Value: o.Value,
 		}
@@ -333,7 +333,7 @@ func (rd *Renderer) label(p *Plan, s *Sample, alone []int) error {
 		}
 		if r.Canvas.Mode == "rgb" {
 			c := o.Tone
-			ob.Colour = &c
+			ob.Color = &c
 		} else {
 			v := float64(o.Tone[0])
 			ob.Intensity = &v

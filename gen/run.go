@@ -46,7 +46,7 @@ type Summary struct {
 // MaxCount bounds --count.
 const MaxCount = 100_000_000
 
-// RecipeJSON returns the normalised recipe (defaults filled in) as compact
+// RecipeJSON returns the normalized recipe (defaults filled in) as compact
 // JSON and its SHA-256.
 func (r *Recipe) RecipeJSON() ([]byte, string, error) {
 	b, err := json.Marshal(r)

@@ -126,7 +126,7 @@ canvas:
   height: 64
 classes:
   - name: a
-    colour: [255, 0, 0]
+    color: [255, 0, 0]
 layers:
   - objects:
       - class: a
@@ -156,8 +156,8 @@ func TestSchemaAcceptsFlexibleForms(t *testing.T) {
 		"value range":         schemaEdit(t, schemaBase, "size: [8, 12]", "size: [8, 12]\n        value: [1, 9]"),
 		"value fixed":         schemaEdit(t, schemaBase, "size: [8, 12]", "size: [8, 12]\n        value: 3"),
 		"null aspect":         schemaEdit(t, schemaBase, "size: [8, 12]", "size: [8, 12]\n        aspect: ~"),
-		"rgb colour range": schemaEdit(t, schemaEdit(t, schemaBase, "  height: 64\n", "  height: 64\n  mode: rgb\n"),
-			"size: [8, 12]", "size: [8, 12]\n        colour: [[0, 0, 0], [10, 20, 30]]"),
+		"rgb color range": schemaEdit(t, schemaEdit(t, schemaBase, "  height: 64\n", "  height: 64\n  mode: rgb\n"),
+			"size: [8, 12]", "size: [8, 12]\n        color: [[0, 0, 0], [10, 20, 30]]"),
 		"grid":          schemaEdit(t, schemaBase, "  - objects:", "  - layout: {kind: grid, rows: 2, cols: 2, jitter: 1}\n    objects:"),
 		"noise":         schemaEdit(t, schemaBase, "classes:", "background: {kind: noise, intensity: [0, 40], cell: 4}\nclasses:"),
 		"gradient":      schemaEdit(t, schemaBase, "classes:", "background: {kind: gradient, intensity: 10, end_intensity: [100, 200], angle: 45}\nclasses:"),
@@ -196,7 +196,7 @@ func TestSchemaRejectsInvalid(t *testing.T) {
 	// why is a piece of the validator's complaint: the instance location or
 	// the keyword that failed, so a case cannot pass for another reason.
 	cases := []struct{ name, why, doc string }{
-		{"unknown top-level field", "additional properties 'colours' not allowed", schemaEdit(t, schemaBase, "name: t\n", "name: t\ncolours: 3\n")},
+		{"unknown top-level field", "additional properties 'colors' not allowed", schemaEdit(t, schemaBase, "name: t\n", "name: t\ncolors: 3\n")},
 		{"unknown nested field", "additional properties 'depth' not allowed", schemaEdit(t, schemaBase, "  height: 64\n", "  height: 64\n  depth: 8\n")},
 		{"unknown object field", "additional properties 'weight' not allowed", schemaEdit(t, schemaBase, "size: [8, 12]", "size: [8, 12]\n        weight: 3")},
 		{"string width", "at '/canvas/width'", schemaEdit(t, schemaBase, "width: 64", "width: wide")},
@@ -209,7 +209,7 @@ func TestSchemaRejectsInvalid(t *testing.T) {
 		{"bad layout enum", "at '/layers/0/layout/kind'", schemaEdit(t, schemaBase, "  - objects:", "  - layout: {kind: spiral}\n    objects:")},
 		{"bad font enum", "at '/layers/0/objects/0/glyph/font'", schemaEdit(t, schemaBase, "shape: circle", "glyph: {font: comic, chars: A}")},
 		{"bad target kind", "at '/targets/0/kind'", schemaBase + "targets:\n  - {name: x, kind: median}\n"},
-		{"bad of attribute", "at '/targets/0/of'", schemaBase + "targets:\n  - {name: x, kind: sum, of: colour}\n"},
+		{"bad of attribute", "at '/targets/0/of'", schemaBase + "targets:\n  - {name: x, kind: sum, of: color}\n"},
 		{"sum without of", "missing property 'of'", schemaBase + "targets:\n  - {name: x, kind: sum}\n"},
 		{"three-number range", "at '/layers/0/objects/0/size'", schemaEdit(t, schemaBase, "size: [8, 12]", "size: [8, 10, 12]")},
 		{"negative count", "at '/layers/0/objects/0/count'", schemaEdit(t, schemaBase, "count: [1, 3]", "count: -1")},
@@ -218,7 +218,7 @@ func TestSchemaRejectsInvalid(t *testing.T) {
 		{"shape and glyph", "'oneOf' failed, subschemas 0, 1 matched", schemaEdit(t, schemaBase, "shape: circle", "shape: circle\n        glyph: {chars: A}")},
 		{"neither shape nor glyph", "'oneOf' failed, none matched", schemaEdit(t, schemaBase, "        shape: circle\n", "")},
 		{"sides on a circle", "at '/layers/0/objects/0/shape'", schemaEdit(t, schemaBase, "shape: circle", "shape: circle\n        sides: 5")},
-		{"colour on a gray canvas", "at '/layers/0/objects/0': 'allOf' failed", schemaEdit(t, schemaBase, "size: [8, 12]", "size: [8, 12]\n        colour: [1, 2, 3]")},
+		{"color on a gray canvas", "at '/layers/0/objects/0': 'allOf' failed", schemaEdit(t, schemaBase, "size: [8, 12]", "size: [8, 12]\n        color: [1, 2, 3]")},
 		{"class named background", "at '/classes/0/name'", schemaEdit(t, schemaBase, "name: a", "name: background")},
 		{"row of shapes", "missing property 'glyph'", schemaEdit(t, schemaBase, "  - objects:", "  - layout: {kind: row}\n    objects:")},
 		{"grid without rows", "missing property 'rows'", schemaEdit(t, schemaBase, "  - objects:", "  - layout: {kind: grid, cols: 2}\n    objects:")},

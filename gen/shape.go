@@ -7,9 +7,9 @@ import "math"
 // stays within 0.03% of the radius).
 const kappa = 0.5522847498307936
 
-// localPath returns the object's outline in its own frame: centred on the
+// localPath returns the object's outline in its own frame: centered on the
 // origin, before rotation. Shapes fill [-hw, hw] × [-hh, hh]; glyphs are in
-// font units with the ink centre at the origin.
+// font units with the ink center at the origin.
 func (o *ObjectPlan) localPath(dst Path) Path {
 	hw, hh := o.Size*o.Aspect/2, o.Size/2
 	dst = dst[:0]

@@ -11,7 +11,7 @@ import (
 )
 
 // The bin-label reading is the label's characters left to right: checked here
-// against the objects' own centres, not through the planner's reading order.
+// against the objects' own centers, not through the planner's reading order.
 func TestReadingIsLeftToRight(t *testing.T) {
 	r, err := Preset("bin-labels")
 	if err != nil {
@@ -30,7 +30,7 @@ func TestReadingIsLeftToRight(t *testing.T) {
 		var gs []g
 		for _, o := range s.Record.Objects {
 			if o.ClassName == "character" {
-				gs = append(gs, g{o.Centre[0], o.Glyph})
+				gs = append(gs, g{o.Center[0], o.Glyph})
 			}
 		}
 		sort.Slice(gs, func(a, b int) bool { return gs[a].x < gs[b].x })
@@ -96,7 +96,7 @@ func TestUserFontFileAndNumberTarget(t *testing.T) {
 canvas: {width: 96, height: 32}
 background: {kind: solid, intensity: 0}
 classes:
-  - {name: digit, colour: [255, 0, 0]}
+  - {name: digit, color: [255, 0, 0]}
 layers:
   - layout: {kind: row, spacing: [1, 2]}
     objects:

@@ -62,6 +62,9 @@ func (r *Recipe) validate(d *yamlnode.Decoder) error {
 	if c.Mode == "" {
 		c.Mode = "gray"
 	}
+	if c.Mode == "grey" {
+		return d.ErrPath("canvas.mode", `"grey"`, "trueset spells it gray; want gray or rgb")
+	}
 	if c.Mode != "gray" && c.Mode != "rgb" {
 		return d.ErrPath("canvas.mode", fmt.Sprintf("%q", c.Mode), "want gray or rgb")
 	}
@@ -88,12 +91,12 @@ func (r *Recipe) validate(d *yamlnode.Decoder) error {
 		if _, dup := r.classID[cl.Name]; dup {
 			return d.ErrPath(p+".name", fmt.Sprintf("%q", cl.Name), "class names must be unique")
 		}
-		if len(cl.Colour) != 3 {
-			return d.ErrPath(p+".colour", fmt.Sprint(cl.Colour), "want a palette colour [r, g, b]")
+		if len(cl.Color) != 3 {
+			return d.ErrPath(p+".color", fmt.Sprint(cl.Color), "want a palette color [r, g, b]")
 		}
-		for _, v := range cl.Colour {
+		for _, v := range cl.Color {
 			if v < 0 || v > 255 {
-				return d.ErrPath(p+".colour", fmt.Sprint(cl.Colour), "colour channels are whole numbers in 0..255")
+				return d.ErrPath(p+".color", fmt.Sprint(cl.Color), "color channels are whole numbers in 0..255")
 			}
 		}
 		r.classID[cl.Name] = i + 1
@@ -169,22 +172,22 @@ func (r *Recipe) validateBackground(d *yamlnode.Decoder) error {
 	if !oneOf(b.Kind, kinds) {
 		return d.ErrPath("background.kind", fmt.Sprintf("%q", b.Kind), "want one of %s", list(kinds))
 	}
-	if err := r.checkTone(d, "background", b.Intensity, b.Colour, false); err != nil {
+	if err := r.checkTone(d, "background", b.Intensity, b.Color, false); err != nil {
 		return err
 	}
-	if b.Intensity == nil && b.Colour == nil {
+	if b.Intensity == nil && b.Color == nil {
 		b.Intensity = &Range{Min: 0, Max: 0}
 	}
 	switch b.Kind {
 	case "gradient":
-		if err := r.checkTone(d, "background", b.EndIntensity, b.EndColour, true); err != nil {
+		if err := r.checkTone(d, "background", b.EndIntensity, b.EndColor, true); err != nil {
 			return err
 		}
-		if b.EndIntensity == nil && b.EndColour == nil {
-			return d.ErrPath("background.end_intensity", "", "a gradient needs an end tone: end_intensity (or end_colour for rgb)")
+		if b.EndIntensity == nil && b.EndColor == nil {
+			return d.ErrPath("background.end_intensity", "", "a gradient needs an end tone: end_intensity (or end_color for rgb)")
 		}
 		if (b.EndIntensity == nil) != (b.Intensity == nil) {
-			return d.ErrPath("background.end_intensity", "", "give the gradient's start and end as the same kind: intensity with end_intensity, or colour with end_colour")
+			return d.ErrPath("background.end_intensity", "", "give the gradient's start and end as the same kind: intensity with end_intensity, or color with end_color")
 		}
 		if b.Angle == nil {
 			b.Angle = &Range{Min: 0, Max: 360}
@@ -197,8 +200,8 @@ func (r *Recipe) validateBackground(d *yamlnode.Decoder) error {
 			return d.ErrPath("background.cell", fmt.Sprint(b.Cell.Min), "the noise cell size is at least 1 pixel")
 		}
 	}
-	if b.Kind != "gradient" && (b.EndIntensity != nil || b.EndColour != nil || b.Angle != nil) {
-		return d.ErrPath("background", "", "end_intensity, end_colour and angle belong to kind gradient")
+	if b.Kind != "gradient" && (b.EndIntensity != nil || b.EndColor != nil || b.Angle != nil) {
+		return d.ErrPath("background", "", "end_intensity, end_color and angle belong to kind gradient")
 	}
 	if b.Kind != "noise" && b.Cell != nil {
 		return d.ErrPath("background.cell", "", "cell belongs to kind noise")
@@ -206,11 +209,11 @@ func (r *Recipe) validateBackground(d *yamlnode.Decoder) error {
 	return nil
 }
 
-// checkTone validates an intensity/colour pair at prefix.
-func (r *Recipe) checkTone(d *yamlnode.Decoder, prefix string, in *Range, col *ColourRange, end bool) error {
-	iname, cname := "intensity", "colour"
+// checkTone validates an intensity/color pair at prefix.
+func (r *Recipe) checkTone(d *yamlnode.Decoder, prefix string, in *Range, col *ColorRange, end bool) error {
+	iname, cname := "intensity", "color"
 	if end {
-		iname, cname = "end_intensity", "end_colour"
+		iname, cname = "end_intensity", "end_color"
 	}
 	if in != nil && col != nil {
 		return d.ErrPath(prefix+"."+cname, "", "give %s or %s, not both", iname, cname)
@@ -219,7 +222,7 @@ func (r *Recipe) checkTone(d *yamlnode.Decoder, prefix string, in *Range, col *C
 		return d.ErrPath(prefix+"."+iname, fmt.Sprintf("[%s, %s]", fnum(in.Min), fnum(in.Max)), "intensities are in 0..255")
 	}
 	if col != nil && r.Canvas.Mode != "rgb" {
-		return d.ErrPath(prefix+"."+cname, "", "colour needs canvas.mode rgb; a gray canvas takes %s", iname)
+		return d.ErrPath(prefix+"."+cname, "", "color needs canvas.mode rgb; a gray canvas takes %s", iname)
 	}
 	return nil
 }
@@ -251,19 +254,19 @@ func (r *Recipe) validateLayer(d *yamlnode.Decoder, li int) (int, error) {
 	if lay.MinGap > 0 && lay.MaxOverlap > 0 {
 		return 0, d.ErrPath(p+".layout.min_gap", fnum(lay.MinGap), "min_gap applies only when max_overlap is 0")
 	}
-	if lay.MinVisible == nil {
+	if lay.LeastShown == nil {
 		v := 0.5
-		lay.MinVisible = &v
+		lay.LeastShown = &v
 	}
-	if *lay.MinVisible < 0 || *lay.MinVisible > 1 {
-		return 0, d.ErrPath(p+".layout.min_visible", fnum(*lay.MinVisible), "want a fraction in 0..1")
+	if *lay.LeastShown < 0 || *lay.LeastShown > 1 {
+		return 0, d.ErrPath(p+".layout.least_shown", fnum(*lay.LeastShown), "want a fraction in 0..1")
 	}
-	if lay.MinPixels == nil {
+	if lay.LeastPixels == nil {
 		v := 4
-		lay.MinPixels = &v
+		lay.LeastPixels = &v
 	}
-	if *lay.MinPixels < 1 {
-		return 0, d.ErrPath(p+".layout.min_pixels", fmt.Sprint(*lay.MinPixels), "want at least 1 pixel (an invisible object is never kept)")
+	if *lay.LeastPixels < 1 {
+		return 0, d.ErrPath(p+".layout.least_pixels", fmt.Sprint(*lay.LeastPixels), "want at least 1 pixel (an invisible object is never kept)")
 	}
 	switch lay.Kind {
 	case "row":
@@ -376,10 +379,10 @@ func (r *Recipe) validateObject(d *yamlnode.Decoder, o *ObjectSpec, p string, pa
 			}
 		}
 	}
-	if err := r.checkTone(d, p, o.Intensity, o.Colour, false); err != nil {
+	if err := r.checkTone(d, p, o.Intensity, o.Color, false); err != nil {
 		return err
 	}
-	if o.Intensity == nil && o.Colour == nil {
+	if o.Intensity == nil && o.Color == nil {
 		o.Intensity = &Range{Min: 255, Max: 255}
 	}
 	if err := r.validateShapeParams(d, o, p); err != nil {

@@ -44,7 +44,7 @@ type Dataset struct {
 
 // AugmentInfo records how an augmented dataset was made from its source.
 type AugmentInfo struct {
-	Plan           json.RawMessage `json:"plan"` // the normalised plan
+	Plan           json.RawMessage `json:"plan"` // the normalized plan
 	PlanSHA256     string          `json:"plan_sha256"`
 	Seed           uint64          `json:"seed"`
 	Copies         int             `json:"copies"`
@@ -157,7 +157,24 @@ func ReadDataset(dir string) (*Dataset, error) {
 	if err := json.Unmarshal(b, &d); err != nil {
 		return nil, fmt.Errorf("%s: %w", p, err)
 	}
+	if err := CheckFormat(p, d.Format); err != nil {
+		return nil, err
+	}
 	return &d, nil
+}
+
+// CheckFormat refuses a dataset.json or shard.json whose format field is not
+// the one this version reads; file names it in the error.
+func CheckFormat(file, format string) error {
+	switch format {
+	case Format:
+		return nil
+	case "":
+		return fmt.Errorf("%s: format: missing; this trueset reads %q", file, Format)
+	case "trueset-dataset/1":
+		return fmt.Errorf("%s: format %q was written by an earlier trueset, whose key names differ; this one reads %q: generate the set again from its recipe and seed with this version, or read it with the version named in tool_version", file, format, Format)
+	}
+	return fmt.Errorf("%s: format %q is not one this trueset knows; it reads %q", file, format, Format)
 }
 
 // ReadManifest calls fn for every record of DIR/manifest.jsonl in order.

@@ -57,7 +57,7 @@ func (e *Encoder) encodeReference(m image.Image) ([]byte, error) {
 const IgnoreID = 255
 
 // Palette returns the mask palette for a class table: entry i is class i's
-// colour, so an indexed mask is viewable as is. It always has 256 entries so
+// color, so an indexed mask is viewable as is. It always has 256 entries so
 // that image/png writes an 8-bit indexed PNG (it picks 1, 2 or 4 bits for
 // smaller palettes); unused entries are black and IgnoreID is white.
 func Palette(classes []Class) color.Palette {
@@ -67,7 +67,7 @@ func Palette(classes []Class) color.Palette {
 	}
 	p[IgnoreID] = color.RGBA{255, 255, 255, 255}
 	for _, c := range classes {
-		p[c.ID] = color.RGBA{c.Colour[0], c.Colour[1], c.Colour[2], 255}
+		p[c.ID] = color.RGBA{c.Color[0], c.Color[1], c.Color[2], 255}
 	}
 	return p
 }

@@ -17,9 +17,9 @@ import (
 	"testing"
 )
 
-// ihdr returns bit depth and colour type from a PNG's IHDR chunk, which the
+// ihdr returns bit depth and color type from a PNG's IHDR chunk, which the
 // PNG specification (ISO/IEC 15948, §11.2.2) places right after the 8-byte
-// signature: length(4) "IHDR"(4) width(4) height(4) depth(1) colour type(1).
+// signature: length(4) "IHDR"(4) width(4) height(4) depth(1) color type(1).
 func ihdr(t *testing.T, b []byte) (w, h uint32, depth, ctype byte) {
 	t.Helper()
 	if !bytes.Equal(b[:8], []byte("\x89PNG\r\n\x1a\n")) || string(b[12:16]) != "IHDR" {
@@ -29,7 +29,7 @@ func ihdr(t *testing.T, b []byte) (w, h uint32, depth, ctype byte) {
 }
 
 func TestMaskAndInstanceFormats(t *testing.T) {
-	classes := []Class{{ID: 0, Name: "background"}, {ID: 1, Name: "a", Colour: [3]uint8{255, 0, 0}}, {ID: 2, Name: "b", Colour: [3]uint8{0, 255, 0}}}
+	classes := []Class{{ID: 0, Name: "background"}, {ID: 1, Name: "a", Color: [3]uint8{255, 0, 0}}, {ID: 2, Name: "b", Color: [3]uint8{0, 255, 0}}}
 	mask := image.NewPaletted(image.Rect(0, 0, 3, 2), Palette(classes))
 	mask.Pix = []uint8{0, 1, 2, 2, 1, 0}
 	inst := image.NewGray16(image.Rect(0, 0, 3, 2))
@@ -42,7 +42,7 @@ func TestMaskAndInstanceFormats(t *testing.T) {
 	}
 	b = append([]byte(nil), b...)
 	if w, h, depth, ctype := ihdr(t, b); w != 3 || h != 2 || depth != 8 || ctype != 3 {
-		t.Fatalf("mask IHDR %dx%d depth %d colour type %d; want 3x2, 8-bit indexed (type 3)", w, h, depth, ctype)
+		t.Fatalf("mask IHDR %dx%d depth %d color type %d; want 3x2, 8-bit indexed (type 3)", w, h, depth, ctype)
 	}
 	m, err := png.Decode(bytes.NewReader(b))
 	if err != nil {
@@ -53,7 +53,7 @@ func TestMaskAndInstanceFormats(t *testing.T) {
 		t.Fatalf("class ids %v, want %v", pm.Pix, mask.Pix)
 	}
 	if r, g, _, _ := pm.Palette[1].RGBA(); r>>8 != 255 || g != 0 {
-		t.Fatalf("palette entry 1 is not class a's colour")
+		t.Fatalf("palette entry 1 is not class a's color")
 	}
 
 	b, err = enc.Encode(inst)
@@ -61,7 +61,7 @@ func TestMaskAndInstanceFormats(t *testing.T) {
 		t.Fatal(err)
 	}
 	if _, _, depth, ctype := ihdr(t, b); depth != 16 || ctype != 0 {
-		t.Fatalf("instances IHDR depth %d colour type %d; want 16-bit gray (type 0)", depth, ctype)
+		t.Fatalf("instances IHDR depth %d color type %d; want 16-bit gray (type 0)", depth, ctype)
 	}
 	g, _ := png.Decode(bytes.NewReader(b))
 	if g.(*image.Gray16).Gray16At(2, 1).Y != 300 {
@@ -144,7 +144,7 @@ func fastAndReference(t *testing.T, name string, m image.Image) (fast, ref []byt
 // predictor picks a, b and c), flat and extreme ones, and sub-images whose
 // bounds do not start at the origin.
 func testImages() map[string]image.Image {
-	classes := []Class{{ID: 0, Name: "background"}, {ID: 1, Name: "a", Colour: [3]uint8{255, 0, 0}}, {ID: 2, Name: "b", Colour: [3]uint8{0, 255, 0}}}
+	classes := []Class{{ID: 0, Name: "background"}, {ID: 1, Name: "a", Color: [3]uint8{255, 0, 0}}, {ID: 2, Name: "b", Color: [3]uint8{0, 255, 0}}}
 	out := map[string]image.Image{}
 
 	g := image.NewGray(image.Rect(0, 0, 3, 2))
@@ -200,7 +200,7 @@ func testImages() map[string]image.Image {
 
 // The fast path decodes, with image/png, to the same pixels as the
 // reference path for every kind of image trueset writes, and its IHDR says
-// the same colour type and bit depth.
+// the same color type and bit depth.
 func TestFastEncoderMatchesReference(t *testing.T) {
 	for name, m := range testImages() {
 		fast, ref := fastAndReference(t, name, m)

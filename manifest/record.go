@@ -7,7 +7,7 @@ import (
 )
 
 // Format names the on-disk layout version written into dataset.json.
-const Format = "trueset-dataset/1"
+const Format = "trueset-dataset/2"
 
 // Record is one sample: one line of manifest.jsonl.
 type Record struct {
@@ -27,27 +27,28 @@ type Record struct {
 	Lineage   *Lineage          `json:"lineage,omitempty"`
 }
 
-// Object is one instance in a sample. Instance, Class, Parent, BBox, Area and
-// Visible are measured from the masks; the rest are the plan's factors.
+// Object is one instance in a sample. Instance, Class, Parent, Box, Area and
+// Shown are measured from the masks; the rest are the plan's factors.
 type Object struct {
 	Instance  int    `json:"instance"`
 	Class     int    `json:"class"`
 	ClassName string `json:"class_name"`
 	Parent    int    `json:"parent,omitempty"` // instance id of the parent object, 0 = none
-	BBox      [4]int `json:"bbox"`             // [x0, y0, x1, y1], x1 and y1 exclusive
+	Box       [4]int `json:"box_x0y0x1y1"`     // [x0, y0, x1, y1], x1 and y1 exclusive; not [x, y, w, h]
 	Area      int    `json:"area"`             // visible mask pixels
-	// Visible is Area divided by the pixels the object would cover alone.
-	Visible float64 `json:"visible"`
+	// Shown is the object's shown share: Area divided by the pixels the
+	// object would cover alone.
+	Shown float64 `json:"shown"`
 
-	Kind      string     `json:"kind"`            // shape kind, or "glyph"
+	Shape     string     `json:"shape"`           // shape name, or "glyph"
 	Glyph     string     `json:"glyph,omitempty"` // the character, for glyphs
 	Font      string     `json:"font,omitempty"`  // font name, for glyphs
-	Centre    [2]float64 `json:"centre"`          // plan centre in pixels
+	Center    [2]float64 `json:"center"`          // plan center in pixels
 	Size      float64    `json:"size"`            // plan size in pixels (height; em size for glyphs)
 	Aspect    float64    `json:"aspect"`          // width / height
 	Angle     float64    `json:"angle"`           // degrees, clockwise on screen
 	Intensity *float64   `json:"intensity,omitempty"`
-	Colour    *[3]uint8  `json:"colour,omitempty"`
+	Color     *[3]uint8  `json:"color,omitempty"`
 	Value     *float64   `json:"value,omitempty"`
 }
 
@@ -123,7 +124,7 @@ func (v *Value) UnmarshalJSON(b []byte) error {
 type Class struct {
 	ID        int      `json:"id"`
 	Name      string   `json:"name"`
-	Colour    [3]uint8 `json:"colour"`
+	Color     [3]uint8 `json:"color"`
 	Flip      *bool    `json:"flip,omitempty"`
 	MaxRotate *float64 `json:"max_rotate,omitempty"`
 }

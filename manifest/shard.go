@@ -62,6 +62,9 @@ func readShard(dir string) (*Shard, error) {
 	if err := json.Unmarshal(b, &s); err != nil {
 		return nil, fmt.Errorf("%s: %w", p, err)
 	}
+	if err := CheckFormat(p, s.Dataset.Format); err != nil {
+		return nil, err
+	}
 	return &s, nil
 }
 

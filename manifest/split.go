@@ -17,7 +17,7 @@ type Splits struct {
 	Ratios []float64
 }
 
-// ParseSplits reads "name=ratio,name=ratio,…". Ratios are normalised to sum 1.
+// ParseSplits reads "name=ratio,name=ratio,…". Ratios are normalized to sum 1.
 func ParseSplits(s string) (Splits, error) {
 	var sp Splits
 	seen := map[string]bool{}
@@ -51,7 +51,7 @@ func ParseSplits(s string) (Splits, error) {
 	return sp, nil
 }
 
-// String writes the splits back as name=ratio pairs (normalised ratios).
+// String writes the splits back as name=ratio pairs (normalized ratios).
 func (sp Splits) String() string {
 	parts := make([]string, len(sp.Names))
 	for i, n := range sp.Names {

@@ -14,7 +14,7 @@ import (
 // without a value are left out of value aggregates), and an empty selection
 // gives 0; text joins the glyphs in reading order and number reads that text
 // as an integer. order sorts the selected object indices into reading order;
-// nil means left to right by centre x.
+// nil means left to right by center x.
 func EvalTarget(t TargetDef, objs []Object, order func(sel []int)) (Value, error) {
 	want := map[string]bool{}
 	for _, c := range t.Classes {
@@ -51,7 +51,7 @@ func EvalTarget(t TargetDef, objs []Object, order func(sel []int)) (Value, error
 		if order != nil {
 			order(sel)
 		} else {
-			sort.SliceStable(sel, func(a, b int) bool { return objs[sel[a]].Centre[0] < objs[sel[b]].Centre[0] })
+			sort.SliceStable(sel, func(a, b int) bool { return objs[sel[a]].Center[0] < objs[sel[b]].Center[0] })
 		}
 		var b strings.Builder
 		for _, i := range sel {

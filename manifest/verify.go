@@ -238,8 +238,8 @@ func verifyRecord(dir string, d *Dataset, r *Record, targets []TargetDef, classB
 			bad("object %d is in the record but not in the instance mask", o.Instance)
 			continue
 		}
-		if st.BBox != o.BBox {
-			bad("object %d: bbox %v in the record, %v in the instance mask", o.Instance, o.BBox, st.BBox)
+		if st.BBox != o.Box {
+			bad("object %d: bbox %v in the record, %v in the instance mask", o.Instance, o.Box, st.BBox)
 		}
 		if st.Area != o.Area {
 			bad("object %d: area %d in the record, %d in the instance mask", o.Instance, o.Area, st.Area)

@@ -94,7 +94,7 @@ type Case struct {
 	Copies []Copy
 }
 
-// NewCase builds an n×n RGB scene (a smooth background and flat-coloured
+// NewCase builds an n×n RGB scene (a smooth background and flat-colored
 // overlapping discs, later discs on top) with its class and instance masks,
 // and draws Copies copies of it from the plan.
 func NewCase(n int) (*Case, error) {
@@ -119,7 +119,7 @@ func NewCase(n int) (*Case, error) {
 	inst := image.NewGray16(rgba.Rect)
 	rng := rand.New(rand.NewPCG(7, 11))
 	rec := manifest.Record{ID: "kernels", Width: n, Height: n}
-	colours := [][3]uint8{{230, 40, 40}, {40, 200, 60}, {40, 80, 230}, {240, 220, 40}, {200, 40, 220}}
+	colors := [][3]uint8{{230, 40, 40}, {40, 200, 60}, {40, 80, 230}, {240, 220, 40}, {200, 40, 220}}
 	for id := 1; id <= 14; id++ {
 		cx, cy := rng.Float64()*float64(n), rng.Float64()*float64(n)
 		r := (3 + rng.Float64()*9) * float64(n) / 64
@@ -131,17 +131,17 @@ func NewCase(n int) (*Case, error) {
 					class.Pix[y*class.Stride+x] = uint8(c)
 					inst.Pix[y*inst.Stride+2*x], inst.Pix[y*inst.Stride+2*x+1] = uint8(id>>8), uint8(id)
 					o := y*rgba.Stride + 4*x
-					rgba.Pix[o], rgba.Pix[o+1], rgba.Pix[o+2] = colours[c-1][0], colours[c-1][1], colours[c-1][2]
+					rgba.Pix[o], rgba.Pix[o+1], rgba.Pix[o+2] = colors[c-1][0], colors[c-1][1], colors[c-1][2]
 				}
 			}
 		}
-		rec.Objects = append(rec.Objects, manifest.Object{Instance: id, Class: c, Kind: "disc", Centre: [2]float64{cx, cy}, Size: 2 * r, Aspect: 1, Visible: 1})
+		rec.Objects = append(rec.Objects, manifest.Object{Instance: id, Class: c, Shape: "disc", Center: [2]float64{cx, cy}, Size: 2 * r, Aspect: 1, Shown: 1})
 	}
 	stats := manifest.MeasureInstances(inst)
 	kept := rec.Objects[:0]
 	for _, o := range rec.Objects {
 		if st := stats[o.Instance]; st != nil {
-			o.BBox, o.Area = st.BBox, st.Area
+			o.Box, o.Area = st.BBox, st.Area
 			kept = append(kept, o)
 		}
 	}

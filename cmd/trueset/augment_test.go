@@ -328,11 +328,11 @@ func TestAugmentPlainFolder(t *testing.T) {
 	}
 	augCheckCopies(t, originals, recs, 3)
 	// A plain folder's objects have no plan factors (size 0): copies must not
-	// make up a centre or an angle for them.
+	// make up a center or an angle for them.
 	for _, r := range recs {
 		for _, o := range r.Objects {
-			if o.Size == 0 && (o.Centre != [2]float64{} || o.Angle != 0) {
-				t.Errorf("record %s object %d: centre %v angle %v made up for an object without factors", r.ID, o.Instance, o.Centre, o.Angle)
+			if o.Size == 0 && (o.Center != [2]float64{} || o.Angle != 0) {
+				t.Errorf("record %s object %d: center %v angle %v made up for an object without factors", r.ID, o.Instance, o.Center, o.Angle)
 			}
 		}
 	}

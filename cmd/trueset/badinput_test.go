@@ -96,10 +96,10 @@ var badCases = []badCase{
 		want: []string{"record 000000: images/000000.png is 100000x100000, the record says 16x16"}},
 	{file: "datasets/huge-png", run: "augment", code: exitFailure, wrong: "images/000000.png declares 100000×100000 (its record's SHA-256 matches)",
 		want: []string{"{in}/images/000000.png: 100000×100000 pixels is over the budget"}},
-	{file: "datasets/unknown-record-field", run: "verify", code: exitFailure, wrong: `record 000000 has a field "colour_space" the schema does not know`,
-		want: []string{"{in}/manifest.jsonl:1:", `unknown field "colour_space"`}},
-	{file: "datasets/unknown-record-field", run: "augment", code: exitFailure, wrong: `record 000000 has a field "colour_space" the schema does not know`,
-		want: []string{"{in}/manifest.jsonl:1:", `unknown field "colour_space"`}},
+	{file: "datasets/unknown-record-field", run: "verify", code: exitFailure, wrong: `record 000000 has a field "color_space" the schema does not know`,
+		want: []string{"{in}/manifest.jsonl:1:", `unknown field "color_space"`}},
+	{file: "datasets/unknown-record-field", run: "augment", code: exitFailure, wrong: `record 000000 has a field "color_space" the schema does not know`,
+		want: []string{"{in}/manifest.jsonl:1:", `unknown field "color_space"`}},
 	{file: "symlink-out (made in the test)", run: "verify", code: exitFailure, wrong: "images/000000.png is a symbolic link to a file beside the dataset folder (same bytes, so the SHA-256 matches)",
 		want: []string{`record 000000: image: path "images/000000.png" is a symbolic link to`, "outside the dataset folder"}, prepare: badSymlinkDataset},
 	{file: "symlink-out (made in the test)", run: "augment", code: exitFailure, wrong: "images/000000.png is a symbolic link to a file beside the dataset folder (same bytes, so the SHA-256 matches)",
@@ -301,7 +301,7 @@ func badSymlinkDataset(t *testing.T, tmp string) string {
 // badCharsRecipe is a recipe whose glyph.chars is 4097 characters long.
 func badCharsRecipe(t *testing.T, tmp string) string {
 	chars := strings.Repeat("0123456789", 410)[:4097]
-	src := "name: many-chars\ncanvas:\n  width: 32\n  height: 32\nclasses:\n  - name: digit\n    colour: [200, 40, 40]\n" +
+	src := "name: many-chars\ncanvas:\n  width: 32\n  height: 32\nclasses:\n  - name: digit\n    color: [200, 40, 40]\n" +
 		"layers:\n  - objects:\n      - class: digit\n        glyph:\n          chars: \"" + chars + "\"\n        count: 1\n        size: 12\n"
 	p := filepath.Join(tmp, "in", "glyph-chars-4097.yaml")
 	badWrite(t, p, []byte(src))
@@ -310,7 +310,7 @@ func badCharsRecipe(t *testing.T, tmp string) string {
 
 // badBigRecipe is a valid recipe padded with comment lines to 1 MiB + 1 byte.
 func badBigRecipe(t *testing.T, tmp string) string {
-	src := "name: big\ncanvas:\n  width: 16\n  height: 16\nclasses:\n  - name: dot\n    colour: [200, 40, 40]\n" +
+	src := "name: big\ncanvas:\n  width: 16\n  height: 16\nclasses:\n  - name: dot\n    color: [200, 40, 40]\n" +
 		"layers:\n  - objects:\n      - class: dot\n        shape: circle\n        count: 1\n        size: 6\n"
 	var b strings.Builder
 	b.WriteString(src)

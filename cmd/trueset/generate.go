@@ -47,7 +47,7 @@ func newGenerateCmd(stdout, stderr io.Writer) *cobra.Command {
 		Use:   "generate [--preset NAME | --recipe FILE] --out DIR",
 		Short: "Render a labeled dataset from a preset or a recipe",
 		Long: `Render COUNT scenes from a recipe (or a built-in preset) and write them to DIR:
-images/, masks/ (8-bit indexed PNG, palette = class colours), instances/
+images/, masks/ (8-bit indexed PNG, palette = class colors), instances/
 (16-bit PNG of instance ids), manifest.jsonl (one record per sample, in index
 order) and dataset.json (written last; it marks the dataset complete).
 

@@ -64,7 +64,7 @@ func sameSplits(t *testing.T, got, want manifest.SplitTable) {
 	}
 }
 
-// recipeName is the name inside dataset.json's normalised recipe.
+// recipeName is the name inside dataset.json's normalized recipe.
 func recipeName(t *testing.T, d *manifest.Dataset) string {
 	t.Helper()
 	var r struct {

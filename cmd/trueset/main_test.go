@@ -83,7 +83,7 @@ func TestRecipeErrorNamesFileAndLine(t *testing.T) {
 	tmp := t.TempDir()
 	recipe := filepath.Join(tmp, "bad.yaml")
 	// Line 4 holds the bad value (a zero height).
-	src := "name: bad\ncanvas:\n  width: 32\n  height: 0\nclasses:\n  - name: a\n    colour: [1, 2, 3]\n"
+	src := "name: bad\ncanvas:\n  width: 32\n  height: 0\nclasses:\n  - name: a\n    color: [1, 2, 3]\n"
 	if err := os.WriteFile(recipe, []byte(src), 0o644); err != nil {
 		t.Fatal(err)
 	}

@@ -31,10 +31,10 @@ func newPreviewCmd(stdout io.Writer) *cobra.Command {
 		Long: `Draw a contact sheet of --count samples of one split of the dataset in DIR,
 picked by a shuffle seeded with --seed and shown in index order. Each cell is
 the image scaled up by an integer factor (nearest neighbour) to about 192
-pixels, tinted with the semantic mask's class colours (background untinted;
-the ignore id 255 hatched grey), each object's bounding box outlined in its
-class colour, and a caption with the sample id and its targets. A legend of
-class colours closes the sheet. The PNG is written atomically.`,
+pixels, tinted with the semantic mask's class colors (background untinted;
+the ignore id 255 hatched gray), each object's bounding box outlined in its
+class color, and a caption with the sample id and its targets. A legend of
+class colors closes the sheet. The PNG is written atomically.`,
 		Example: `  trueset preview demo --out demo-sheet.png
   trueset preview dice --out dice-test.png --split test --count 25 --seed 3
 

@@ -14,7 +14,7 @@ import (
 
 // A contact sheet per preset: a PNG (decoded with the standard library's
 // image/png) of the size the layout gives, whose legend row shows each
-// class colour as a solid swatch; the same seed gives the same bytes,
+// class color as a solid swatch; the same seed gives the same bytes,
 // another seed other samples; nothing but the sheet is left in the folder
 // (the write is atomic).
 func TestPreviewSheets(t *testing.T) {
@@ -55,9 +55,9 @@ func TestPreviewSheets(t *testing.T) {
 				if cl.ID == 0 {
 					continue // background is not tinted and has no swatch
 				}
-				want := color.RGBA{cl.Colour[0], cl.Colour[1], cl.Colour[2], 255}
-				if n := countColour(m, legend, want); n < 12*12 {
-					t.Errorf("legend has %d pixels of class %s's colour %v, want a 12×12 swatch", n, cl.Name, want)
+				want := color.RGBA{cl.Color[0], cl.Color[1], cl.Color[2], 255}
+				if n := countColor(m, legend, want); n < 12*12 {
+					t.Errorf("legend has %d pixels of class %s's color %v, want a 12×12 swatch", n, cl.Name, want)
 				}
 			}
 			if es, _ := os.ReadDir(outDir); len(es) != 1 {
@@ -80,7 +80,7 @@ func TestPreviewSheets(t *testing.T) {
 	}
 }
 
-func countColour(m image.Image, r image.Rectangle, want color.RGBA) int {
+func countColor(m image.Image, r image.Rectangle, want color.RGBA) int {
 	n := 0
 	for y := r.Min.Y; y < r.Max.Y; y++ {
 		for x := r.Min.X; x < r.Max.X; x++ {

@@ -35,7 +35,7 @@ func newReportCmd(stdout io.Writer) *cobra.Command {
 them as one HTML file that needs nothing else: no network, no JavaScript, no
 files beside it. The page shows the dataset's name and facts, a contact sheet
 of samples (as ` + "`trueset preview`" + ` draws it), the splits with a grouped bar chart
-of groups per stratum and split, the normalisation mean and std per channel,
+of groups per stratum and split, the normalization mean and std per channel,
 the classes with their pixel frequency, both loss weights and object counts
 (with bar charts), the targets, the leakage check, and the recipe from
 dataset.json. Charts and the sheet are inlined PNGs; the file is written
@@ -58,7 +58,7 @@ scripts can read the page too.`,
 	}
 	f := cmd.Flags()
 	f.StringVarP(&o.out, "out", "o", "", "the HTML file to write (required)")
-	f.StringVar(&o.split, "split", inspect.DefaultSplit, "the split for normalisation, class weights and target scales")
+	f.StringVar(&o.split, "split", inspect.DefaultSplit, "the split for normalization, class weights and target scales")
 	f.IntVar(&o.threshold, "threshold", inspect.DefaultThreshold, "report image pairs across splits within this many dHash bits (0 = identical hashes)")
 	f.IntVarP(&o.workers, "workers", "j", min(runtime.NumCPU(), 8), "parallel decoders (the report does not depend on it)")
 	f.IntVar(&o.sheetCount, "sheet-count", inspect.DefaultPreviewCount, "samples on the contact sheet (0 = no sheet)")
@@ -114,7 +114,7 @@ func runReport(dir string, o *reportOptions, stdout io.Writer) error {
 		if o.sheetSplit != "all" {
 			from = "the " + o.sheetSplit + " split"
 		}
-		ro.ContactSheetCaption = fmt.Sprintf("%d of the %d samples of %s, picked with seed %d and shown in index order (scale %s): images tinted with their mask's class colours, boxes outlined, ids and targets below.",
+		ro.ContactSheetCaption = fmt.Sprintf("%d of the %d samples of %s, picked with seed %d and shown in index order (scale %s): images tinted with their mask's class colors, boxes outlined, ids and targets below.",
 			len(s.IDs), s.Of, from, o.sheetSeed, s.Scale)
 	}
 	b, err := inspect.RenderReport(st, ro)

@@ -38,8 +38,8 @@ func browserFile(t *testing.T, env string) []byte {
 }
 
 // TestBrowserScreenshot: the page Chromium drew is not blank. A blank or
-// failed page is one colour (white, or Chromium's error page grey); this one
-// has text, a contact sheet of tinted images and charts, so many colours
+// failed page is one color (white, or Chromium's error page gray); this one
+// has text, a contact sheet of tinted images and charts, so many colors
 // and a good share of non-white pixels, spread down the page.
 func TestBrowserScreenshot(t *testing.T) {
 	img, err := png.Decode(bytes.NewReader(browserFile(t, "TRUESET_BROWSER_SHOT")))
@@ -50,7 +50,7 @@ func TestBrowserScreenshot(t *testing.T) {
 	if b.Dx() < 1000 || b.Dy() < 1500 {
 		t.Fatalf("screenshot is %v, want the 1280×2000 window", b)
 	}
-	colours := map[color.RGBA]int{}
+	colors := map[color.RGBA]int{}
 	nonWhite := 0
 	const bands = 8 // the page in horizontal bands, each must have ink
 	inked := make([]int, bands)
@@ -58,7 +58,7 @@ func TestBrowserScreenshot(t *testing.T) {
 	for y := b.Min.Y; y < b.Max.Y; y++ {
 		for x := b.Min.X; x < b.Max.X; x++ {
 			c := color.RGBAModel.Convert(img.At(x, y)).(color.RGBA)
-			colours[c]++
+			colors[c]++
 			if c.R < 245 || c.G < 245 || c.B < 245 {
 				nonWhite++
 				inked[(y-b.Min.Y)*bands/b.Dy()]++
@@ -69,10 +69,10 @@ func TestBrowserScreenshot(t *testing.T) {
 		}
 	}
 	total := b.Dx() * b.Dy()
-	t.Logf("screenshot %v: %d distinct colours, %.1f%% non-white, %.1f%% dark, ink per band %v",
-		b, len(colours), 100*float64(nonWhite)/float64(total), 100*float64(dark)/float64(total), inked)
-	if len(colours) < 500 {
-		t.Errorf("only %d distinct colours: the page looks blank or unstyled", len(colours))
+	t.Logf("screenshot %v: %d distinct colors, %.1f%% non-white, %.1f%% dark, ink per band %v",
+		b, len(colors), 100*float64(nonWhite)/float64(total), 100*float64(dark)/float64(total), inked)
+	if len(colors) < 500 {
+		t.Errorf("only %d distinct colors: the page looks blank or unstyled", len(colors))
 	}
 	if nonWhite < total/10 {
 		t.Errorf("only %d of %d pixels are not white", nonWhite, total)

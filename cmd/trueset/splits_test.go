@@ -298,12 +298,12 @@ background:
   intensity: [20, 40]
 classes:
   - name: disc
-    colour: [230, 25, 75]
+    color: [230, 25, 75]
 layers:
   - layout:
       kind: scatter
       max_overlap: 0
-      min_visible: 0.9
+      least_shown: 0.9
     objects:
       - class: disc
         shape: circle

@@ -32,13 +32,13 @@ func newStatsCmd(stdout io.Writer) *cobra.Command {
 	o := &statsOptions{}
 	cmd := &cobra.Command{
 		Use:   "stats DIR",
-		Short: "Normalisation, class weights, target scales, object sizes and a leakage check for a dataset",
+		Short: "Normalization, class weights, target scales, object sizes and a leakage check for a dataset",
 		Long: `Read the dataset in DIR once (generated or augmented) and report what a training
 run needs: samples and groups per split; the per-channel mean and standard
 deviation of the image intensities of the --split split (Welford's one-pass
-method; population std, in 0..255 units) to normalise with (x − mean) / std;
+method; population std, in 0..255 units) to normalize with (x − mean) / std;
 mask pixels per class with their frequency and two sets of loss weights
-(inverse frequency, normalised to mean 1 over the classes present, and
+(inverse frequency, normalized to mean 1 over the classes present, and
 median-frequency balancing, Eigen & Fergus 2015; the ignore id 255 is left
 out); object counts, areas and objects per sample per class; each target's
 range, mean and std; and leakage: images in different splits whose 64-bit
@@ -67,7 +67,7 @@ Checksums are not verified (that is ` + "`trueset verify`" + `).`,
 	}
 	f := cmd.Flags()
 	f.BoolVar(&o.json, "json", false, "print the statistics as one JSON document")
-	f.StringVar(&o.split, "split", inspect.DefaultSplit, "the split for normalisation, class weights and target scales")
+	f.StringVar(&o.split, "split", inspect.DefaultSplit, "the split for normalization, class weights and target scales")
 	f.IntVar(&o.threshold, "threshold", inspect.DefaultThreshold, "report image pairs across splits within this many dHash bits (0 = identical hashes)")
 	f.IntVarP(&o.workers, "workers", "j", min(runtime.NumCPU(), 8), "parallel decoders (the report does not depend on it)")
 	return cmd
@@ -142,9 +142,9 @@ func printStats(w io.Writer, d *manifest.Dataset, st *inspect.Stats) {
 	}
 
 	p := st.Pixels
-	fmt.Fprintf(w, "\nnormalisation over split %s (%d values per channel, 0..255 units; std is the population std):\n", p.Split, p.Count)
+	fmt.Fprintf(w, "\nnormalization over split %s (%d values per channel, 0..255 units; std is the population std):\n", p.Split, p.Count)
 	tw = table()
-	fmt.Fprintf(tw, "channel\tmean\tstd\tmean/255\tstd/255\tnormalise\t\n")
+	fmt.Fprintf(tw, "channel\tmean\tstd\tmean/255\tstd/255\tnormalize\t\n")
 	for c := range p.Mean {
 		fmt.Fprintf(tw, "%s\t%s\t%s\t%s\t%s\t(x − %s) / %s\t\n", p.Names[c], num(p.Mean[c]), num(p.Std[c]),
 			num(p.Mean[c]/255), num(p.Std[c]/255), num(p.Mean[c]), num(p.Std[c]))

@@ -58,7 +58,7 @@ func statsDecode(t *testing.T, dir, rel string) image.Image {
 // The figures of `stats --json` against recounts done here: split counts
 // against the manifest; class pixels against the masks decoded with
 // image/png (the standard library's PNG decoder, ISO/IEC 15948); the
-// normalisation against the two-pass mean and population variance over the
+// normalization against the two-pass mean and population variance over the
 // train images; the median-frequency weights against Eigen & Fergus's
 // definition applied to the recount. Output equal for 1 and 3 workers.
 func TestStatsJSONMatchesRecount(t *testing.T) {
@@ -381,12 +381,12 @@ func TestDHashGeneratedImages(t *testing.T) {
 	}
 }
 
-// The text report has its tables and the normalisation formula; bad flags
+// The text report has its tables and the normalization formula; bad flags
 // are usage errors (exit 2); a folder that is not a dataset fails (exit 1).
 func TestStatsTextAndUsage(t *testing.T) {
 	dir := statsGenerate(t, gen.DefaultPreset, 60)
 	out, _ := wantCode(t, exitOK, "stats", dir)
-	for _, want := range []string{"splits:", "normalisation over split train", "(x − ", "population std",
+	for _, want := range []string{"splits:", "normalization over split train", "(x − ", "population std",
 		"weight median-f", "objects (all splits", "targets (split train", "leakage (64-bit dHash", "parts"} {
 		if !strings.Contains(out, want) {
 			t.Errorf("text report lacks %q:\n%s", want, out)

@@ -139,7 +139,7 @@ func TestVerifyDamage(t *testing.T) {
 			}
 		}},
 		{"bbox edited", firstWithObjects(t, recs, 3).ID, "bbox", func(t *testing.T, dir string) {
-			editRecord(t, dir, firstWithObjects(t, recs, 3).ID, func(r *manifest.Record) { r.Objects[0].BBox[2]++ })
+			editRecord(t, dir, firstWithObjects(t, recs, 3).ID, func(r *manifest.Record) { r.Objects[0].Box[2]++ })
 		}},
 		// parts is a count target of every object (workshop-parts preset).
 		{"count target disagrees with the instance mask", recs[4].ID, "target parts", func(t *testing.T, dir string) {

@@ -70,7 +70,7 @@ def boxes_from_instances(inst, ids):
 def check_record(s, rec, info):
     h, w = rec["height"], rec["width"]
     img, mask, inst = s["image"], s["mask"], s["instances"]
-    # "mixed": a plain folder of gray and colour images, each kept as it is
+    # "mixed": a plain folder of gray and color images, each kept as it is
     want_img = {"gray": [(h, w)], "rgb": [(h, w, 3)]}.get(info["mode"], [(h, w), (h, w, 3)])
     assert img.shape in want_img, "image shape %s, want %s" % (img.shape, " or ".join(map(str, want_img)))
     assert mask.shape == (h, w), "mask shape %s, want %s" % (mask.shape, (h, w))

@@ -66,7 +66,7 @@ def read_image(path, mode=None):
 
     mode is the dataset's "gray" or "rgb"; an image stored otherwise (a
     JPEG, a palette image) is converted to it. With "mixed" (a plain folder
-    of gray and colour images) each image stays gray or RGB as stored.
+    of gray and color images) each image stays gray or RGB as stored.
     """
     with Image.open(path) as img:
         want = {"gray": "L", "rgb": "RGB"}.get(mode, img.mode if img.mode in ("L", "RGB") else "RGB")
@@ -80,7 +80,7 @@ def mask_ids(img):
 
     The mask is an indexed PNG (Pillow mode "P"); np.array of a "P" image
     gives the indices themselves. It is never converted to RGB, which would
-    give the palette colours instead of the ids. An 8-bit gray mask ("L") is
+    give the palette colors instead of the ids. An 8-bit gray mask ("L") is
     taken as ids as well.
     """
     if img.mode not in ("P", "L"):
@@ -153,7 +153,7 @@ class TruesetDataset(object):
     when it is read.
 
     Attributes: info (dataset.json as a dict), class_table (its list of
-    {id, name, colour}), class_names ({id: name}), split_names, records
+    {id, name, color}), class_names ({id: name}), split_names, records
     (the manifest records of this split, in index order).
     """
 

@@ -288,9 +288,18 @@ func (d *Decoder) decodeStruct(n *yaml.Node, v reflect.Value, path string) error
 		}
 		idx, ok := fields[k.Value]
 		if !ok {
+			if to, ok := Renamed[k.Value]; ok {
+				if _, here := fields[to]; here {
+					return d.ErrAt(k, sub, "", "unknown field %q: trueset spells it %q", k.Value, to)
+				}
+			}
 			sorted := append([]string(nil), names...)
 			sort.Strings(sorted)
-			return d.ErrAt(k, sub, "", "unknown field %q; allowed here: %s", k.Value, strings.Join(sorted, ", "))
+			hint := ""
+			if near := Nearest(k.Value, sorted); near != "" {
+				hint = fmt.Sprintf(" (did you mean %q?)", near)
+			}
+			return d.ErrAt(k, sub, "", "unknown field %q%s; allowed here: %s", k.Value, hint, strings.Join(sorted, ", "))
 		}
 		if seen[k.Value] {
 			return d.ErrAt(k, sub, "", "field %q is given twice", k.Value)
@@ -306,4 +315,50 @@ func (d *Decoder) decodeStruct(n *yaml.Node, v reflect.Value, path string) error
 		}
 	}
 	return nil
+}
+
+// Renamed maps spellings trueset does not use (the other English spelling,
+// and names of earlier versions) to the one it does, so a refusal can name
+// the right field.
+var Renamed = map[string]string{
+	"colour":      "color",
+	"end_colour":  "end_color",
+	"centre":      "center",
+	"grey":        "gray",
+	"min_visible": "least_shown",
+	"min_pixels":  "least_pixels",
+}
+
+// Nearest returns the candidate within edit distance 2 of s (and closer
+// than half its length), or "" when none is that close.
+func Nearest(s string, candidates []string) string {
+	best, bestD := "", 3
+	for _, c := range candidates {
+		if d := editDistance(s, c); d < bestD && 2*d < len(s) {
+			best, bestD = c, d
+		}
+	}
+	return best
+}
+
+// editDistance is the Levenshtein distance between a and b, by the usual
+// two-row dynamic programme (Wagner & Fischer 1974).
+func editDistance(a, b string) int {
+	prev := make([]int, len(b)+1)
+	cur := make([]int, len(b)+1)
+	for j := range prev {
+		prev[j] = j
+	}
+	for i := 1; i <= len(a); i++ {
+		cur[0] = i
+		for j := 1; j <= len(b); j++ {
+			cost := 1
+			if a[i-1] == b[j-1] {
+				cost = 0
+			}
+			cur[j] = min(prev[j]+1, cur[j-1]+1, prev[j-1]+cost)
+		}
+		prev, cur = cur, prev
+	}
+	return prev[len(b)]
 }

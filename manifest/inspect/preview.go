@@ -25,7 +25,7 @@ const (
 	// scaled by the integer nearest PreviewCell / their longer side (at
 	// least 1; larger images are shrunk by an integer factor instead).
 	PreviewCell = 192
-	// OverlayAlpha is the opacity of the class-colour tint over the image.
+	// OverlayAlpha is the opacity of the class-color tint over the image.
 	OverlayAlpha = 0.45
 	// MaxPreviewCount bounds the samples on one sheet.
 	MaxPreviewCount = 400
@@ -40,12 +40,12 @@ const (
 
 // The sheet's palette: a light page with dark text.
 var (
-	pageColour   = color.RGBA{246, 246, 244, 255}
-	textColour   = color.RGBA{32, 32, 32, 255}
-	mutedColour  = color.RGBA{110, 110, 110, 255}
-	frameColour  = color.RGBA{190, 190, 190, 255}
-	ignoreColour = color.RGBA{150, 150, 150, 255}
-	emptyColour  = color.RGBA{228, 228, 226, 255}
+	pageColor   = color.RGBA{246, 246, 244, 255}
+	textColor   = color.RGBA{32, 32, 32, 255}
+	mutedColor  = color.RGBA{110, 110, 110, 255}
+	frameColor  = color.RGBA{190, 190, 190, 255}
+	ignoreColor = color.RGBA{150, 150, 150, 255}
+	emptyColor  = color.RGBA{228, 228, 226, 255}
 )
 
 // PreviewOptions choose the samples of a contact sheet.
@@ -70,9 +70,9 @@ type Sheet struct {
 // Preview draws a contact sheet of o.Count samples of a split, chosen by a
 // Fisher–Yates shuffle seeded with manifest.RNG(o.Seed) and shown in index
 // order: each cell is the image scaled with nearest neighbour, tinted with
-// the semantic mask's class colours (background untinted, the ignore id and
-// unknown ids hatched grey), each object's box outlined in its class
-// colour, and a caption of the id and targets; a legend of class colours
+// the semantic mask's class colors (background untinted, the ignore id and
+// unknown ids hatched gray), each object's box outlined in its class
+// color, and a caption of the id and targets; a legend of class colors
 // closes the sheet. The manifest is read twice (count, then pick) so only
 // the chosen records are held.
 func Preview(dir string, o PreviewOptions) (*Sheet, error) {
@@ -172,9 +172,9 @@ func Preview(dir string, o PreviewOptions) (*Sheet, error) {
 
 	classes := append([]manifest.Class(nil), d.Classes...)
 	sort.SliceStable(classes, func(i, j int) bool { return classes[i].ID < classes[j].ID })
-	colour := map[int]color.RGBA{}
+	classColor := map[int]color.RGBA{}
 	for _, c := range classes {
-		colour[c.ID] = color.RGBA{c.Colour[0], c.Colour[1], c.Colour[2], 255}
+		classColor[c.ID] = color.RGBA{c.Color[0], c.Color[1], c.Color[2], 255}
 	}
 	legendItems := legendLayout(face, classes, width)
 	legendH := legendItems.rows * (lineHeight + 4)
@@ -186,7 +186,7 @@ func Preview(dir string, o PreviewOptions) (*Sheet, error) {
 	height := legendTop + legendH + sheetMargin
 
 	sheet := image.NewRGBA(image.Rect(0, 0, width, height))
-	fill(sheet, sheet.Bounds(), pageColour)
+	fill(sheet, sheet.Bounds(), pageColor)
 	what := "split " + o.Split
 	if all {
 		what = "all splits"
@@ -198,7 +198,7 @@ func Preview(dir string, o PreviewOptions) (*Sheet, error) {
 	if font.MeasureString(face, head).Ceil() > width-2*sheetMargin {
 		head = title(filepath.Base(filepath.Clean(dir)))
 	}
-	drawText(sheet, face, sheetMargin, sheetMargin+fontSize, truncate(face, head, width-2*sheetMargin), textColour)
+	drawText(sheet, face, sheetMargin, sheetMargin+fontSize, truncate(face, head, width-2*sheetMargin), textColor)
 
 	s := &Sheet{Image: sheet, Of: n, Cols: cols, Rows: rows, Cell: image.Pt(cw, ch), Scale: scale,
 		Legend: image.Rect(0, legendTop, width, legendTop+legendH)}
@@ -206,11 +206,11 @@ func Preview(dir string, o PreviewOptions) (*Sheet, error) {
 		x0 := sheetMargin + (i%cols)*(cw+cellGap)
 		y0 := gridTop + (i/cols)*(cellH+cellGap)
 		cell := image.Rect(x0, y0, x0+cw, y0+ch)
-		fill(sheet, cell, emptyColour)
-		if err := drawCell(sheet, cell, dir, r, num, den, colour); err != nil {
+		fill(sheet, cell, emptyColor)
+		if err := drawCell(sheet, cell, dir, r, num, den, classColor); err != nil {
 			return nil, fmt.Errorf("record %s: %w", r.ID, err)
 		}
-		outline(sheet, cell.Inset(-1), frameColour)
+		outline(sheet, cell.Inset(-1), frameColor)
 		drawCaption(sheet, face, image.Pt(x0, y0+ch+4), cw, caption(d, r, all))
 		s.IDs = append(s.IDs, r.ID)
 	}
@@ -219,7 +219,7 @@ func Preview(dir string, o PreviewOptions) (*Sheet, error) {
 }
 
 // drawCell paints one sample into cell: image, tint, hatching, boxes.
-func drawCell(dst *image.RGBA, cell image.Rectangle, dir string, r *manifest.Record, num, den int, colour map[int]color.RGBA) error {
+func drawCell(dst *image.RGBA, cell image.Rectangle, dir string, r *manifest.Record, num, den int, classColor map[int]color.RGBA) error {
 	img, err := decode(dir, r.Image, r.Width, r.Height)
 	if err != nil {
 		return err
@@ -249,11 +249,11 @@ func drawCell(dst *image.RGBA, cell image.Rectangle, dir string, r *manifest.Rec
 			id := int(maskPix[sy*maskStride+sx])
 			px, py := cell.Min.X+X, cell.Min.Y+Y
 			if id != 0 {
-				cc, known := colour[id]
+				cc, known := classColor[id]
 				switch {
 				case id == manifest.IgnoreID || !known:
 					if (px+py)/3%2 == 0 {
-						c = ignoreColour
+						c = ignoreColor
 					}
 				default:
 					c = color.RGBA{blend(c.R, cc.R, a), blend(c.G, cc.G, a), blend(c.B, cc.B, a), 255}
@@ -263,11 +263,11 @@ func drawCell(dst *image.RGBA, cell image.Rectangle, dir string, r *manifest.Rec
 		}
 	}
 	for _, ob := range r.Objects {
-		cc, ok := colour[ob.Class]
+		cc, ok := classColor[ob.Class]
 		if !ok {
 			cc = color.RGBA{255, 0, 255, 255}
 		}
-		bx := image.Rect(ob.BBox[0]*num/den, ob.BBox[1]*num/den, ob.BBox[2]*num/den, ob.BBox[3]*num/den)
+		bx := image.Rect(ob.Box[0]*num/den, ob.Box[1]*num/den, ob.Box[2]*num/den, ob.Box[3]*num/den)
 		if bx.Empty() {
 			continue
 		}
@@ -359,9 +359,9 @@ func drawCaption(dst *image.RGBA, face font.Face, at image.Point, w int, words [
 		if i == captionLines {
 			break
 		}
-		c := textColour
+		c := textColor
 		if i > 0 {
-			c = mutedColour
+			c = mutedColor
 		}
 		drawText(dst, face, at.X, at.Y+fontSize+i*lineHeight, truncate(face, l, w), c)
 	}
@@ -410,7 +410,7 @@ type legend struct {
 type legendItem struct {
 	x, row int
 	name   string
-	colour color.RGBA
+	color color.RGBA
 	hatch  bool
 }
 
@@ -422,16 +422,16 @@ func legendLayout(face font.Face, classes []manifest.Class, width int) legend {
 		if x > sheetMargin && x+w > width-sheetMargin {
 			x, row = sheetMargin, row+1
 		}
-		l.items = append(l.items, legendItem{x: x, row: row, name: name, colour: c, hatch: hatch})
+		l.items = append(l.items, legendItem{x: x, row: row, name: name, color: c, hatch: hatch})
 		x += w
 	}
 	for _, c := range classes {
 		if c.ID == 0 {
 			continue
 		}
-		add(fmt.Sprintf("%d %s", c.ID, c.Name), color.RGBA{c.Colour[0], c.Colour[1], c.Colour[2], 255}, false)
+		add(fmt.Sprintf("%d %s", c.ID, c.Name), color.RGBA{c.Color[0], c.Color[1], c.Color[2], 255}, false)
 	}
-	add("ignore / unknown", ignoreColour, true)
+	add("ignore / unknown", ignoreColor, true)
 	l.rows = row + 1
 	return l
 }
@@ -441,18 +441,18 @@ func (l legend) draw(dst *image.RGBA, face font.Face, top int) {
 		y := top + it.row*(lineHeight+4)
 		sw := image.Rect(it.x, y+1, it.x+swatchSize, y+1+swatchSize)
 		if it.hatch {
-			fill(dst, sw, pageColour)
+			fill(dst, sw, pageColor)
 			for py := sw.Min.Y; py < sw.Max.Y; py++ {
 				for px := sw.Min.X; px < sw.Max.X; px++ {
 					if (px+py)/3%2 == 0 {
-						dst.SetRGBA(px, py, it.colour)
+						dst.SetRGBA(px, py, it.color)
 					}
 				}
 			}
 		} else {
-			fill(dst, sw, it.colour)
+			fill(dst, sw, it.color)
 		}
-		outline(dst, sw.Inset(-1), mutedColour)
-		drawText(dst, face, sw.Max.X+5, y+fontSize, it.name, textColour)
+		outline(dst, sw.Inset(-1), mutedColor)
+		drawText(dst, face, sw.Max.X+5, y+fontSize, it.name, textColor)
 	}
 }

@@ -29,7 +29,7 @@ import (
 
 // ReportOptions are what a report needs beyond the statistics.
 type ReportOptions struct {
-	// Dataset is the dataset's dataset.json (recipe, class colours, seed…).
+	// Dataset is the dataset's dataset.json (recipe, class colors, seed…).
 	// When nil, Report reads it from Stats.Dataset.
 	Dataset *manifest.Dataset
 	// ContactSheet is a preview of some samples, inlined as a PNG. When nil
@@ -140,7 +140,7 @@ type repCell struct {
 	Value  string
 	Text   string
 	Num    bool
-	Swatch template.CSS // background colour of a swatch before the text
+	Swatch template.CSS // background color of a swatch before the text
 	Title  string
 }
 
@@ -318,19 +318,19 @@ func buildReportView(s *Stats, d *manifest.Dataset, o ReportOptions) (*reportVie
 	v.Targets = repTargets(s)
 	repLeakage(v, s)
 
-	colours := repClassColours(d)
+	colors := repClassColors(d)
 	var err error
 	if c, ok, e := repStrataChart(s); e != nil {
 		err = e
 	} else if ok {
 		v.Charts["strata"] = c
 	}
-	if c, ok, e := repFrequencyChart(s, colours); e != nil {
+	if c, ok, e := repFrequencyChart(s, colors); e != nil {
 		err = e
 	} else if ok {
 		v.Charts["frequency"] = c
 	}
-	if c, ok, e := repObjectsChart(s, colours); e != nil {
+	if c, ok, e := repObjectsChart(s, colors); e != nil {
 		err = e
 	} else if ok {
 		v.Charts["objects"] = c
@@ -477,7 +477,7 @@ func repPixels(s *Stats) (repTable, string) {
 		if p.Estimator != "" {
 			est = " (" + p.Estimator + " std)"
 		}
-		note = fmt.Sprintf("Over the %s split, %s values per channel, in 0..255 units%s; normalise a value v as (v − mean) / std. The /255 columns are for loaders that scale to 0..1 first.",
+		note = fmt.Sprintf("Over the %s split, %s values per channel, in 0..255 units%s; normalize a value v as (v − mean) / std. The /255 columns are for loaders that scale to 0..1 first.",
 			repOrDash(p.Split), repGrouped(p.Count), est)
 	}
 	return t, note
@@ -504,16 +504,16 @@ func repOrDash(s string) string {
 	return s
 }
 
-func repClassColours(d *manifest.Dataset) map[int]color.RGBA {
+func repClassColors(d *manifest.Dataset) map[int]color.RGBA {
 	m := map[int]color.RGBA{}
 	for _, c := range d.Classes {
-		m[c.ID] = color.RGBA{c.Colour[0], c.Colour[1], c.Colour[2], 255}
+		m[c.ID] = color.RGBA{c.Color[0], c.Color[1], c.Color[2], 255}
 	}
 	return m
 }
 
-func repSwatch(colours map[int]color.RGBA, id int) template.CSS {
-	c, ok := colours[id]
+func repSwatch(colors map[int]color.RGBA, id int) template.CSS {
+	c, ok := colors[id]
 	if !ok {
 		return ""
 	}
@@ -521,12 +521,12 @@ func repSwatch(colours map[int]color.RGBA, id int) template.CSS {
 }
 
 func repClasses(s *Stats, d *manifest.Dataset) repTable {
-	colours := repClassColours(d)
+	colors := repClassColors(d)
 	t := repTable{ID: "classes", Empty: "No classes.", Head: []string{"id", "class", "pixels", "frequency", "weight 1/f", "weight median-f", "objects", "area min", "area median", "area max"}}
 	for i, c := range s.Classes {
 		p := fmt.Sprintf("classes.%d.", i)
 		name := repText(p+"name", c.Name)
-		name.Swatch = repSwatch(colours, c.ID)
+		name.Swatch = repSwatch(colors, c.ID)
 		t.Rows = append(t.Rows, []repCell{
 			repInt(p+"id", int64(c.ID)),
 			name,
@@ -546,7 +546,7 @@ func repClasses(s *Stats, d *manifest.Dataset) repTable {
 // repObjectsBySplit is objects per class and split: a split with none of
 // a class cannot test it.
 func repObjectsBySplit(s *Stats, d *manifest.Dataset) repTable {
-	colours := repClassColours(d)
+	colors := repClassColors(d)
 	t := repTable{ID: "objects-by-split", Empty: "No objects.", Head: []string{"class", "all"}}
 	splits := make([]string, len(s.Splits))
 	for i, sp := range s.Splits {
@@ -558,7 +558,7 @@ func repObjectsBySplit(s *Stats, d *manifest.Dataset) repTable {
 			continue
 		}
 		name := repPlain(c.Name)
-		name.Swatch = repSwatch(colours, c.ID)
+		name.Swatch = repSwatch(colors, c.ID)
 		// the total's data-stat is in the class table
 		row := []repCell{name, repPlainNum(repGrouped(int64(c.Objects)))}
 		for _, sp := range splits {
@@ -575,7 +575,7 @@ func repObjectsBySplit(s *Stats, d *manifest.Dataset) repTable {
 
 // repPerSample is samples by number of objects of each class.
 func repPerSample(s *Stats, d *manifest.Dataset) repTable {
-	colours := repClassColours(d)
+	colors := repClassColors(d)
 	t := repTable{ID: "per-sample", Empty: "No object counts."}
 	var ns []int
 	seen := map[int]bool{}
@@ -601,7 +601,7 @@ func repPerSample(s *Stats, d *manifest.Dataset) repTable {
 			continue // background has no objects to count
 		}
 		name := repPlain(c.Name)
-		name.Swatch = repSwatch(colours, c.ID)
+		name.Swatch = repSwatch(colors, c.ID)
 		row := []repCell{name}
 		for _, n := range ns {
 			k := strconv.Itoa(n)
@@ -677,8 +677,8 @@ const repChartDPI = 192
 
 func repPt(px int) vg.Length { return vg.Length(px) * 0.75 }
 
-var repSplitColours = []color.RGBA{
-	// Okabe & Ito (2008), "Color Universal Design": colour-blind safe.
+var repSplitColors = []color.RGBA{
+	// Okabe & Ito (2008), "Color Universal Design": color-blind safe.
 	{0, 114, 178, 255},   // blue
 	{230, 159, 0, 255},   // orange
 	{0, 158, 115, 255},   // bluish green
@@ -798,7 +798,7 @@ func repStrataChart(s *Stats) (repChart, bool, error) {
 		if err != nil {
 			return repChart{}, false, err
 		}
-		b.Color = repSplitColours[j%len(repSplitColours)]
+		b.Color = repSplitColors[j%len(repSplitColors)]
 		b.LineStyle.Width = 0
 		b.Offset = vg.Length(float64(j)-float64(k-1)/2) * w
 		p.Add(b)
@@ -824,8 +824,8 @@ func repFitLabels(p *plot.Plot, labels []string, slot vg.Length) {
 	}
 }
 
-// repClassBars draws one bar per class in its own colour, a label above each.
-func repClassBars(p *plot.Plot, width int, classes []ClassStats, colours map[int]color.RGBA, value func(ClassStats) float64, label func(ClassStats) string) error {
+// repClassBars draws one bar per class in its own color, a label above each.
+func repClassBars(p *plot.Plot, width int, classes []ClassStats, colors map[int]color.RGBA, value func(ClassStats) float64, label func(ClassStats) string) error {
 	bar := repPt(max(8, min(48, (width-120)*6/10/max(1, len(classes)))))
 	p.X.Min, p.X.Max = -0.5, float64(len(classes))-0.5
 	names := make([]string, len(classes))
@@ -837,7 +837,7 @@ func repClassBars(p *plot.Plot, width int, classes []ClassStats, colours map[int
 		if err != nil {
 			return err
 		}
-		col, ok := colours[c.ID]
+		col, ok := colors[c.ID]
 		if !ok {
 			col = color.RGBA{128, 128, 128, 255}
 		}
@@ -866,7 +866,7 @@ func repClassBars(p *plot.Plot, width int, classes []ClassStats, colours map[int
 
 func repClassChartWidth(n int) int { return min(1100, max(480, n*56+120)) }
 
-func repFrequencyChart(s *Stats, colours map[int]color.RGBA) (repChart, bool, error) {
+func repFrequencyChart(s *Stats, colors map[int]color.RGBA) (repChart, bool, error) {
 	if len(s.Classes) == 0 {
 		return repChart{}, false, nil
 	}
@@ -881,7 +881,7 @@ func repFrequencyChart(s *Stats, colours map[int]color.RGBA) (repChart, bool, er
 	}
 	p.Y.Max = top * 1.12 // room for the labels
 	width := repClassChartWidth(len(s.Classes))
-	err := repClassBars(p, width, s.Classes, colours, func(c ClassStats) float64 { return 100 * c.Frequency },
+	err := repClassBars(p, width, s.Classes, colors, func(c ClassStats) float64 { return 100 * c.Frequency },
 		func(c ClassStats) string { return repFixed(100*c.Frequency, 2) + "%" })
 	if err != nil {
 		return repChart{}, false, err
@@ -890,7 +890,7 @@ func repFrequencyChart(s *Stats, colours map[int]color.RGBA) (repChart, bool, er
 	return c, err == nil, err
 }
 
-func repObjectsChart(s *Stats, colours map[int]color.RGBA) (repChart, bool, error) {
+func repObjectsChart(s *Stats, colors map[int]color.RGBA) (repChart, bool, error) {
 	var cs []ClassStats
 	top := 0
 	for _, c := range s.Classes {
@@ -907,7 +907,7 @@ func repObjectsChart(s *Stats, colours map[int]color.RGBA) (repChart, bool, erro
 	p.Y.Tick.Marker = plot.TickerFunc(repIntegerTicks)
 	p.Y.Max = math.Max(1, float64(top)*1.12)
 	width := repClassChartWidth(len(cs))
-	err := repClassBars(p, width, cs, colours, func(c ClassStats) float64 { return float64(c.Objects) },
+	err := repClassBars(p, width, cs, colors, func(c ClassStats) float64 { return float64(c.Objects) },
 		func(c ClassStats) string { return repGrouped(int64(c.Objects)) })
 	if err != nil {
 		return repChart{}, false, err
@@ -973,7 +973,7 @@ ul.ids { columns: 4 12ch; font-family: ui-monospace, "DejaVu Sans Mono", monospa
 <h1 id="dataset-name">{{.Name}}</h1>
 <p class="sub">trueset dataset report · <code>{{.Folder}}</code></p>
 </header>
-<nav><a href="#overview">Overview</a><a href="#preview">Preview</a><a href="#splits">Splits</a><a href="#pixels">Normalisation</a><a href="#classes">Classes</a><a href="#targets">Targets</a><a href="#leakage">Leakage</a><a href="#recipe">Recipe</a></nav>
+<nav><a href="#overview">Overview</a><a href="#preview">Preview</a><a href="#splits">Splits</a><a href="#pixels">Normalization</a><a href="#classes">Classes</a><a href="#targets">Targets</a><a href="#leakage">Leakage</a><a href="#recipe">Recipe</a></nav>
 
 <section id="overview">
 <h2>Overview</h2>
@@ -999,7 +999,7 @@ ul.ids { columns: 4 12ch; font-family: ui-monospace, "DejaVu Sans Mono", monospa
 </section>
 
 <section id="pixels-section">
-<h2 id="pixels">Normalisation</h2>
+<h2 id="pixels">Normalization</h2>
 {{if .PixelsNote}}<p class="note">{{.PixelsNote}}</p>{{end}}
 {{template "table" .Pixels}}
 </section>

@@ -28,7 +28,7 @@ func reportFixture() (*Stats, *manifest.Dataset) {
 		Format: "trueset-dataset/1", ToolVersion: "0.1.0", Seed: 7, Count: 10, Width: 32, Height: 32, Mode: "rgb",
 		Recipe:       json.RawMessage(`{"name":"demo <b>set</b>","description":"</pre><script>alert(1)</script> & more","canvas":{"width":32,"height":32}}`),
 		RecipeSHA256: strings.Repeat("ab", 32), ManifestSHA256: strings.Repeat("cd", 32),
-		Classes: []manifest.Class{{ID: 0, Name: "background"}, {ID: 1, Name: "disc", Colour: [3]uint8{230, 25, 75}}, {ID: 2, Name: `<i>"tri"</i>`, Colour: [3]uint8{0, 130, 200}}},
+		Classes: []manifest.Class{{ID: 0, Name: "background"}, {ID: 1, Name: "disc", Color: [3]uint8{230, 25, 75}}, {ID: 2, Name: `<i>"tri"</i>`, Color: [3]uint8{0, 130, 200}}},
 	}
 	st := manifest.SplitTable{
 		Names: []string{"train", "val", "test"}, Stratify: "n", Spec: "train=0.6,val=0.2,test=0.2",
@@ -321,17 +321,17 @@ func TestReportSelfContainedAndEscaped(t *testing.T) {
 			continue
 		}
 		// Charts are drawn at 2× their CSS size and are not blank.
-		if img.Bounds().Dx() < 960 || repColourCount(img) < 8 {
-			t.Errorf("chart %d: %v, %d colours", i, img.Bounds(), repColourCount(img))
+		if img.Bounds().Dx() < 960 || repColorCount(img) < 8 {
+			t.Errorf("chart %d: %v, %d colors", i, img.Bounds(), repColorCount(img))
 		}
 	}
-	// The class colour swatch uses the class table's colour.
+	// The class color swatch uses the class table's color.
 	if !strings.Contains(html, `<span class="sw" style="background: #e6194b"></span>disc`) {
-		t.Error("no colour swatch for disc")
+		t.Error("no color swatch for disc")
 	}
 }
 
-func repColourCount(img image.Image) int {
+func repColorCount(img image.Image) int {
 	seen := map[color.RGBA]bool{}
 	b := img.Bounds()
 	for y := b.Min.Y; y < b.Max.Y; y += 3 {
@@ -409,7 +409,7 @@ func TestReportManyStrataAndLongNames(t *testing.T) {
 	for i := range 9 {
 		id := len(s.Classes)
 		name := fmt.Sprintf("long class name %d", i)
-		d.Classes = append(d.Classes, manifest.Class{ID: id, Name: name, Colour: [3]uint8{uint8(20 * i), 100, uint8(200 - 20*i)}})
+		d.Classes = append(d.Classes, manifest.Class{ID: id, Name: name, Color: [3]uint8{uint8(20 * i), 100, uint8(200 - 20*i)}})
 		s.Classes = append(s.Classes, ClassStats{ID: id, Name: name, Pixels: int64(100 * i), Frequency: float64(i) / 100, Objects: 1000 * i})
 	}
 	page, err := RenderReport(s, ReportOptions{Dataset: d})

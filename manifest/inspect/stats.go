@@ -42,12 +42,12 @@ const (
 
 // Options tune Compute.
 type Options struct {
-	Split     string // the split for normalisation, class weights and target scales; "" = DefaultSplit
+	Split     string // the split for normalization, class weights and target scales; "" = DefaultSplit
 	Threshold int    // dHash Hamming threshold for leakage; 0 = DefaultThreshold, ExactOnly = 0
 	Workers   int    // parallel decoders; 0 = min(NumCPU, 8). The result does not depend on it.
 }
 
-func (o Options) normalised() Options {
+func (o Options) normalized() Options {
 	if o.Split == "" {
 		o.Split = DefaultSplit
 	}
@@ -128,7 +128,7 @@ func (w Welford) SampleVar() float64 {
 }
 
 // Std is the population standard deviation √(M2/N): what a z-score
-// normalisation over the whole split divides by.
+// normalization over the whole split divides by.
 func (w Welford) Std() float64 { return math.Sqrt(w.Var()) }
 
 // ---------------------------------------------------------------------------
@@ -404,13 +404,13 @@ type sample struct {
 // (that is `trueset verify`); a file that cannot be read or decoded is an
 // error naming the record.
 func Compute(dir string, o Options) (*Stats, error) {
-	o = o.normalised()
+	o = o.normalized()
 	d, err := manifest.ReadDataset(dir)
 	if err != nil {
 		return nil, err
 	}
 	// A gray set has one channel; an RGB set three, and so has a "mixed"
-	// one (a plain folder of gray and colour sources), where gray images
+	// one (a plain folder of gray and color sources), where gray images
 	// count in all three.
 	channels := 1
 	if d.Mode == "rgb" || d.Mode == "mixed" {
@@ -549,7 +549,7 @@ func countBytes(hist []int64, pix []uint8, stride int, r image.Rectangle) {
 
 // pixelMoments runs Welford over one image's intensities per channel, in
 // 0..255 units. A gray image in an RGB set counts in all three channels; a
-// colour image in a gray set counts as its luma.
+// color image in a gray set counts as its luma.
 func pixelMoments(m image.Image, channels int) []Welford {
 	ch := make([]Welford, channels)
 	b := m.Bounds()
@@ -784,10 +784,10 @@ func (a *accumulator) finish(dir string) *Stats {
 		}
 	}
 	if a.images == 0 {
-		warn("split %s has no records: no normalisation, class weights or target scales", a.o.Split)
+		warn("split %s has no records: no normalization, class weights or target scales", a.o.Split)
 	}
 
-	// Normalisation.
+	// Normalization.
 	st.Pixels = PixelStats{Split: a.o.Split, Channels: a.channels, Estimator: "population",
 		Mean: make([]float64, a.channels), Std: make([]float64, a.channels)}
 	if a.channels == 3 {

@@ -190,7 +190,7 @@ func TestWelfordChanMerge(t *testing.T) {
 // Inverse frequency on the same table (freq over all 300 pixels):
 //
 //	1/f: background 300/220 = 15/11, washer 10, nut 6; their sum is 191/11
-//	normalised to mean 1 (× 3 / (191/11) = 33/191): 45/191, 330/191, 198/191
+//	normalized to mean 1 (× 3 / (191/11) = 33/191): 45/191, 330/191, 198/191
 //
 // A class with no pixels (pin) gets weight 0 in both and stays out of the median.
 func TestMedianFrequencyHandWorked(t *testing.T) {
@@ -225,8 +225,8 @@ func TestMedianFrequencyHandWorked(t *testing.T) {
 // which must not count) and a test sample that must not count either.
 func TestStatsHandWorkedDataset(t *testing.T) {
 	dir := t.TempDir()
-	classes := []manifest.Class{{ID: 0, Name: "background"}, {ID: 1, Name: "washer", Colour: [3]uint8{230, 25, 75}},
-		{ID: 2, Name: "nut", Colour: [3]uint8{60, 180, 75}}, {ID: 3, Name: "pin", Colour: [3]uint8{0, 130, 200}}}
+	classes := []manifest.Class{{ID: 0, Name: "background"}, {ID: 1, Name: "washer", Color: [3]uint8{230, 25, 75}},
+		{ID: 2, Name: "nut", Color: [3]uint8{60, 180, 75}}, {ID: 3, Name: "pin", Color: [3]uint8{0, 130, 200}}}
 	pal := manifest.Palette(classes)
 	type spec struct {
 		id, split string

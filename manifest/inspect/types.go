@@ -8,7 +8,7 @@ type Stats struct {
 	Records  int                 `json:"records"`  // samples in all
 	Splits   []SplitStats        `json:"splits"`   // in dataset.json's split order
 	Strata   manifest.SplitTable `json:"strata"`   // the strata × splits table from dataset.json
-	Pixels   PixelStats          `json:"pixels"`   // normalisation, over the train split
+	Pixels   PixelStats          `json:"pixels"`   // normalization, over the train split
 	Classes  []ClassStats        `json:"classes"`  // in class-id order, background included
 	Targets  []TargetStats       `json:"targets"`  // in dataset.json's target order
 	Leakage  Leakage             `json:"leakage"`  // near-duplicates across splits
@@ -29,7 +29,7 @@ type SplitStats struct {
 
 // PixelStats is the per-channel mean and standard deviation of the image
 // intensities of one split (the train split), in 0..255 units, computed in
-// one streaming pass (Welford). Normalise a pixel v of channel c as
+// one streaming pass (Welford). Normalize a pixel v of channel c as
 // (v − Mean[c]) / Std[c] to reach mean 0 and variance 1. Std is the
 // population standard deviation (divided by Count, not Count − 1).
 type PixelStats struct {
@@ -49,7 +49,7 @@ type ClassStats struct {
 	Name      string  `json:"name"`
 	Pixels    int64   `json:"pixels"`    // mask pixels of this class (train split)
 	Frequency float64 `json:"frequency"` // Pixels / all labeled pixels (ignore excluded)
-	// WeightInverse is 1/Frequency, normalised so the weights of classes
+	// WeightInverse is 1/Frequency, normalized so the weights of classes
 	// present average 1; WeightMedian is median-frequency balancing
 	// (Eigen & Fergus 2015): median(freq_c) / freq_c, with freq_c the
 	// class's pixels over the pixels of the images where it appears.
