@@ -92,6 +92,19 @@ func TestRecipeErrorPositions(t *testing.T) {
 			13, "layers[0].layout.spread", []string{`unknown field "spread"`, "max_overlap", "region"}},
 		{"unknown object field", "        size: 10\n", "        size: 10\n        weight: 3\n",
 			22, "layers[0].objects[1].weight", []string{`unknown field "weight"`, "shape", "glyph"}},
+		// Issue 10: one spelling (American) and the names of this version;
+		// the other spelling or an earlier name gets a hint, a typo a
+		// did-you-mean (Levenshtein distance ≤ 2).
+		{"British spelling of color", "    color: [0, 255, 0]\n", "    colour: [0, 255, 0]\n",
+			9, "classes[1].colour", []string{`unknown field "colour"`, `trueset spells it "color"`}},
+		{"earlier name of least_shown", "      kind: scatter\n", "      kind: scatter\n      min_visible: 0.5\n",
+			13, "layers[0].layout.min_visible", []string{`unknown field "min_visible"`, `"least_shown"`}},
+		{"earlier name of least_pixels", "      kind: scatter\n", "      kind: scatter\n      min_pixels: 4\n",
+			13, "layers[0].layout.min_pixels", []string{`"least_pixels"`}},
+		{"gray spelled grey", "  height: 64\n", "  height: 64\n  mode: grey\n",
+			5, "canvas.mode", []string{`"grey"`, "trueset spells it gray"}},
+		{"typo in a field name", "        size: 10\n", "        szie: 10\n",
+			21, "layers[0].objects[1].szie", []string{`unknown field "szie"`, `did you mean "size"?`}},
 		{"field given twice", "  height: 64\n", "  height: 64\n  height: 32\n",
 			5, "canvas.height", []string{"given twice"}},
 		{"string for width", "  width: 64\n", "  width: wide\n",

@@ -61,17 +61,17 @@ func (r *Recipe) ClassTable() []manifest.Class {
 // VisibilityError is a plan whose rendered masks break a visibility minimum;
 // the sample is re-planned.
 type VisibilityError struct {
-	Instance   int
-	Class      string
-	Area       int
-	Visible    float64
-	LeastPixels  int
-	LeastShown float64
+	Instance    int
+	Class       string
+	Area        int
+	Shown       float64
+	LeastPixels int
+	LeastShown  float64
 }
 
 func (e *VisibilityError) Error() string {
-	return fmt.Sprintf("object %d (class %q) kept %d pixels, %.0f%% visible; the layout asks for at least %d pixels and %.0f%% visible",
-		e.Instance, e.Class, e.Area, 100*e.Visible, e.LeastPixels, 100*e.LeastShown)
+	return fmt.Sprintf("object %d (class %q) kept %d pixels, %.0f%% shown; the layout asks for least_pixels %d and least_shown %.0f%%",
+		e.Instance, e.Class, e.Area, 100*e.Shown, e.LeastPixels, 100*e.LeastShown)
 }
 
 // Generate plans and renders sample index, redrawing its geometry (bounded by
@@ -317,12 +317,12 @@ func (rd *Renderer) label(p *Plan, s *Sample, alone []int) error {
 			vis = float64(area) / float64(alone[i])
 		}
 		if area < o.LeastPixels || vis < o.LeastShown {
-			return &VisibilityError{Instance: id, Class: rd.palette[o.Class].Name, Area: area, Visible: vis, LeastPixels: o.LeastPixels, LeastShown: o.LeastShown}
+			return &VisibilityError{Instance: id, Class: rd.palette[o.Class].Name, Area: area, Shown: vis, LeastPixels: o.LeastPixels, LeastShown: o.LeastShown}
 		}
 		ob := manifest.Object{
 			Instance: id, Class: o.Class, ClassName: rd.palette[o.Class].Name, Parent: o.Parent,
 			Box: bb, Area: area, Shown: manifest.Round(vis, 4),
-			Shape:   o.Kind,
+			Shape:  o.Kind,
 			Center: [2]float64{manifest.Round(o.CX, 3), manifest.Round(o.CY, 3)},
 			Size:   manifest.Round(o.Size, 3), Aspect: manifest.Round(o.Aspect, 4), Angle: manifest.Round(o.Angle, 3),
 			Value: o.Value,
