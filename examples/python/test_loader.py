@@ -10,7 +10,8 @@ instance's class; the boxes, classes and targets the loader returns equal
 the manifest's, read here independently, line by line. Then: every split of
 load_splits together holds every record once; Pillow's two modes for 16-bit
 PNGs ("I" and "I;16") give the same ids; record paths that leave the folder
-are refused; collate stacks a batch; and the PyTorch wrapper works (with a
+are refused; a dataset.json whose format is not "trueset-dataset/2" is
+refused, naming the format; collate stacks a batch; and the PyTorch wrapper works (with a
 minimal stand-in for torch where PyTorch is not installed).
 
 Prints one line per failure and ends with "N passed, M failed"; exits 1 if
@@ -91,7 +92,9 @@ def check_record(s, rec, info):
     measured = boxes_from_instances(inst, ids)
     for o in objs:
         box, area = measured[o["instance"]]
-        assert box == o["bbox"], "instance %d: box from pixels %s, manifest %s" % (o["instance"], box, o["bbox"])
+        assert "bbox" not in o and "visible" not in o and "kind" not in o, \
+            "instance %d carries a trueset-dataset/1 key: %s" % (o["instance"], sorted(o))
+        assert box == o["box_x0y0x1y1"], "instance %d: box from pixels %s, manifest %s" % (o["instance"], box, o["box_x0y0x1y1"])
         assert area == o["area"], "instance %d: area from pixels %d, manifest %d" % (o["instance"], area, o["area"])
 
     # every pixel's class is its instance's class; no instance: background
@@ -107,7 +110,7 @@ def check_record(s, rec, info):
                              % (int(bad.sum()), x, y, mask[y, x], inst[y, x], expect[y, x]))
 
     assert s["boxes"].shape == (len(objs), 4), "boxes shape %s" % (s["boxes"].shape,)
-    assert s["boxes"].tolist() == [o["bbox"] for o in objs], "loader boxes differ from the manifest"
+    assert s["boxes"].tolist() == [o["box_x0y0x1y1"] for o in objs], "loader boxes differ from the manifest"
     assert s["classes"].tolist() == [o["class"] for o in objs], "loader classes differ from the manifest"
     assert s["targets"] == rec["targets"], "targets %s, manifest %s" % (s["targets"], rec["targets"])
     assert s["class_table"] == info["classes"], "class table differs from dataset.json"
@@ -207,6 +210,39 @@ def check_refusals(d):
             s = tl.TruesetDataset(make(lambda r: None), check_sha256=True)[0]
             assert s["id"] == recs[0]["id"]
         check("a copy with paths inside loads", good_copy)
+
+        # dataset.json's "format": only trueset-dataset/2 is read; any other
+        # (the old /1 with its "bbox" keys, a future /3, none at all, not a
+        # string) is refused with ValueError naming what was found.
+        def wrong_format(fmt, named):
+            t = make(lambda r: None)
+            p = os.path.join(t, "dataset.json")
+            with open(p, encoding="utf-8") as f:
+                info = json.load(f)
+            if fmt is None:
+                info.pop("format", None)
+            else:
+                info["format"] = fmt
+            with open(p, "w", encoding="utf-8") as f:
+                json.dump(info, f)
+            try:
+                tl.TruesetDataset(t)
+            except ValueError as e:
+                msg = str(e)
+                assert named in msg, "refusal %r does not name %r" % (msg, named)
+                assert tl.FORMAT in msg, "refusal %r does not say which format the loader reads" % msg
+                return
+            raise AssertionError("format %r was not refused" % (fmt,))
+        def reads_two():
+            assert tl.FORMAT == "trueset-dataset/2", "loader FORMAT %r" % tl.FORMAT
+            with open(os.path.join(d, "dataset.json"), encoding="utf-8") as f:
+                got = json.load(f).get("format")
+            assert got == tl.FORMAT, "trueset wrote format %r, the loader reads %r" % (got, tl.FORMAT)
+        check("format is trueset-dataset/2", reads_two)
+        check("refuse format /1", lambda: wrong_format("trueset-dataset/1", "'trueset-dataset/1'"))
+        check("refuse format /3", lambda: wrong_format("trueset-dataset/3", "'trueset-dataset/3'"))
+        check("refuse no format", lambda: wrong_format(None, 'no "format"'))
+        check("refuse format 2", lambda: wrong_format(2, "format 2"))
     finally:
         shutil.rmtree(outside)
 

@@ -10,10 +10,13 @@ torch.utils.data.Dataset) and torch_collate are defined as well.
     s["mask"]       # H x W uint8 class ids (0 = background, 255 = ignore)
     s["instances"]  # H x W int32 instance ids (0 = none)
     s["boxes"]      # N x 4 int64 [x0, y0, x1, y1], x1 and y1 exclusive
+                    # (each object's "box_x0y0x1y1" in the manifest)
     s["classes"]    # N int64 class ids, one per box
     s["targets"]    # {"dice": 3.0, ...}
 
-The format is described in the README's "On disk" section: dataset.json,
+It reads format "trueset-dataset/2" only (dataset.json's "format"; any
+other is refused with ValueError naming it). The format is described in
+the README's "On disk" section: dataset.json,
 manifest.jsonl (one JSON record per line), images/, masks/ (8-bit indexed
 PNG whose palette indices are the class ids) and instances/ (16-bit gray
 PNG whose values are the instance ids). Every path a record names must stay
@@ -34,10 +37,10 @@ try:
 except ImportError:  # PyTorch is optional
     torch = None
 
-FORMAT = "trueset-dataset/1"
+FORMAT = "trueset-dataset/2"
 IGNORE_ID = 255
 
-__all__ = ["FORMAT", "IGNORE_ID", "TruesetDataset", "load_splits", "iter_split",
+__all__ = ["FORMAT", "IGNORE_ID", "TruesetDataset", "check_format", "load_splits", "iter_split",
            "collate", "read_mask", "read_instances", "read_image", "safe_path"]
 
 
@@ -123,6 +126,20 @@ def read_instances(path):
             raise ValueError("%s: %s" % (path, e))
 
 
+def check_format(info, where="dataset.json"):
+    """Refuse a dataset.json whose "format" is not FORMAT, naming it.
+
+    Formats change the record's keys (trueset-dataset/1 had "bbox",
+    "visible", "kind"; /2 has "box_x0y0x1y1", "shown", "shape"), so a
+    loader must never guess: it reads exactly the format it was written for.
+    """
+    got = info.get("format") if isinstance(info, dict) else None
+    if got != FORMAT:
+        what = "no \"format\"" if got is None else "format %r" % (got,)
+        raise ValueError("%s: %s; this loader reads only %r (regenerate the set with a current trueset, "
+                         "or use the loader that came with the tool that wrote it)" % (where, what, FORMAT))
+
+
 def _sha256(path):
     h = hashlib.sha256()
     with open(path, "rb") as f:
@@ -165,8 +182,7 @@ class TruesetDataset(object):
             raise FileNotFoundError("%s: missing: the dataset is incomplete or not a trueset dataset" % dpath)
         with open(dpath, encoding="utf-8") as f:
             self.info = json.load(f)
-        if self.info.get("format") != FORMAT:
-            raise ValueError("%s: format %r, this loader reads %r" % (dpath, self.info.get("format"), FORMAT))
+        check_format(self.info, dpath)
         self.class_table = self.info["classes"]
         self.class_names = {c["id"]: c["name"] for c in self.class_table}
         self.split_names = list(self.info["splits"]["names"])
@@ -212,7 +228,7 @@ class TruesetDataset(object):
             "image": image,
             "mask": mask,
             "instances": instances,
-            "boxes": np.array([o["bbox"] for o in objects], dtype=np.int64).reshape(-1, 4),
+            "boxes": np.array([o["box_x0y0x1y1"] for o in objects], dtype=np.int64).reshape(-1, 4),
             "classes": np.array([o["class"] for o in objects], dtype=np.int64),
             "instance_ids": np.array([o["instance"] for o in objects], dtype=np.int64),
             "targets": dict(rec.get("targets") or {}),
