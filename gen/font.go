@@ -1,8 +1,9 @@
 package gen
 
 import (
+	"errors"
 	"fmt"
-	"os"
+	"github.com/trueset/trueset/internal/safefile"
 	"path/filepath"
 	"sort"
 
@@ -98,16 +99,9 @@ func openFont(spec *GlyphSpec, dir string) (*Font, string, error) {
 		if !filepath.IsAbs(p) {
 			p = filepath.Join(dir, p)
 		}
-		st, err := os.Stat(p)
+		data, err := safefile.Read(p, "font file", MaxFontBytes)
 		if err != nil {
-			return nil, p, err
-		}
-		if st.Size() > MaxFontBytes {
-			return nil, p, fmt.Errorf("font file is %d bytes; at most %d allowed", st.Size(), MaxFontBytes)
-		}
-		data, err := os.ReadFile(p)
-		if err != nil {
-			return nil, p, err
+			return nil, p, errors.New(safefile.Msg(err))
 		}
 		f, err := loadFont(spec.File, data)
 		if err != nil {

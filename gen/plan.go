@@ -55,9 +55,9 @@ type ObjectPlan struct {
 	Sides                       int
 	Inner, Corner, Thickness    float64
 
-	order      float64 // reading order within its layer
-	LeastShown float64
-	LeastPixels  int
+	order       float64 // reading order within its layer
+	LeastShown  float64
+	LeastPixels int
 }
 
 // LayoutError is a layout that could not be satisfied within the bounded

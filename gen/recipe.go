@@ -1,11 +1,11 @@
 package gen
 
 import (
+	"github.com/trueset/trueset/internal/safefile"
 	"github.com/trueset/trueset/internal/yamlnode"
 
 	"bytes"
 	"fmt"
-	"os"
 	"sort"
 	"strconv"
 
@@ -44,18 +44,18 @@ type Canvas struct {
 
 // Background fills the canvas before objects are drawn.
 type Background struct {
-	Kind         string       `yaml:"kind" json:"kind"` // solid, gradient or noise
-	Intensity    *Range       `yaml:"intensity" json:"intensity,omitempty"`
-	Color       *ColorRange `yaml:"color" json:"color,omitempty"`
-	EndIntensity *Range       `yaml:"end_intensity" json:"end_intensity,omitempty"`
-	EndColor    *ColorRange `yaml:"end_color" json:"end_color,omitempty"`
-	Angle        *Range       `yaml:"angle" json:"angle,omitempty"`
-	Cell         *Range       `yaml:"cell" json:"cell,omitempty"`
+	Kind         string      `yaml:"kind" json:"kind"` // solid, gradient or noise
+	Intensity    *Range      `yaml:"intensity" json:"intensity,omitempty"`
+	Color        *ColorRange `yaml:"color" json:"color,omitempty"`
+	EndIntensity *Range      `yaml:"end_intensity" json:"end_intensity,omitempty"`
+	EndColor     *ColorRange `yaml:"end_color" json:"end_color,omitempty"`
+	Angle        *Range      `yaml:"angle" json:"angle,omitempty"`
+	Cell         *Range      `yaml:"cell" json:"cell,omitempty"`
 }
 
 // ClassSpec names a class and its palette color; ids follow list order from 1.
 type ClassSpec struct {
-	Name   string `yaml:"name" json:"name"`
+	Name  string `yaml:"name" json:"name"`
 	Color []int  `yaml:"color" json:"color"`
 }
 
@@ -72,7 +72,7 @@ type Layout struct {
 	MaxOverlap     float64   `yaml:"max_overlap" json:"max_overlap"`
 	MinGap         float64   `yaml:"min_gap" json:"min_gap"`
 	LeastShown     *float64  `yaml:"least_shown" json:"least_shown"`
-	LeastPixels      *int      `yaml:"least_pixels" json:"least_pixels"`
+	LeastPixels    *int      `yaml:"least_pixels" json:"least_pixels"`
 	Spacing        *Range    `yaml:"spacing" json:"spacing,omitempty"`
 	BaselineJitter float64   `yaml:"baseline_jitter" json:"baseline_jitter,omitempty"`
 	Rows           int       `yaml:"rows" json:"rows,omitempty"`
@@ -91,7 +91,7 @@ type ObjectSpec struct {
 	Aspect      *Range       `yaml:"aspect" json:"aspect"`
 	Angle       *Range       `yaml:"angle" json:"angle"`
 	Intensity   *Range       `yaml:"intensity" json:"intensity,omitempty"`
-	Color      *ColorRange `yaml:"color" json:"color,omitempty"`
+	Color       *ColorRange  `yaml:"color" json:"color,omitempty"`
 	Sides       *IntRange    `yaml:"sides" json:"sides,omitempty"`
 	Inner       *Range       `yaml:"inner" json:"inner,omitempty"`
 	Corner      *Range       `yaml:"corner" json:"corner,omitempty"`
@@ -323,16 +323,9 @@ func ParseRecipe(file string, data []byte) (*Recipe, error) {
 
 // LoadRecipe reads and parses a recipe file.
 func LoadRecipe(path string) (*Recipe, error) {
-	st, err := os.Stat(path)
+	b, err := safefile.Read(path, "recipe", MaxRecipeBytes)
 	if err != nil {
-		return nil, &RecipeError{File: path, Msg: err.Error()}
-	}
-	if st.Size() > MaxRecipeBytes {
-		return nil, &RecipeError{File: path, Msg: fmt.Sprintf("recipe is %d bytes; at most %d allowed", st.Size(), MaxRecipeBytes)}
-	}
-	b, err := os.ReadFile(path)
-	if err != nil {
-		return nil, &RecipeError{File: path, Msg: err.Error()}
+		return nil, &RecipeError{File: path, Msg: safefile.Msg(err)}
 	}
 	return ParseRecipe(path, b)
 }
