@@ -3,6 +3,7 @@ package gen
 import (
 	"github.com/trueset/trueset/internal/safefile"
 	"github.com/trueset/trueset/internal/yamlnode"
+	"slices"
 
 	"bytes"
 	"fmt"
@@ -169,6 +170,9 @@ func (c *Count) DecodeNode(d *yamlnode.Decoder, n *yaml.Node, path string) error
 			if ki < 0 {
 				return d.ErrAt(k, path, yamlnode.Show(k), "a count must not be negative")
 			}
+			if slices.Contains(c.Values, ki) {
+				return d.ErrAt(k, path, yamlnode.Show(k), "weighted count: count %d is given twice; give each count once", ki)
+			}
 			if w < 0 {
 				return d.ErrAt(v, path+"."+k.Value, yamlnode.Show(v), "a weight must not be negative")
 			}
@@ -309,6 +313,9 @@ func ParseRecipe(file string, data []byte) (*Recipe, error) {
 	}
 	if root.Kind == 0 || len(root.Content) == 0 {
 		return nil, &RecipeError{File: file, Msg: "recipe is empty"}
+	}
+	if err := yamlnode.OneDocument(file, "recipe", data); err != nil {
+		return nil, err
 	}
 	d := yamlnode.NewDecoder(file)
 	r := &Recipe{file: file}

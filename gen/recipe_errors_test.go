@@ -105,6 +105,11 @@ func TestRecipeErrorPositions(t *testing.T) {
 			5, "canvas.mode", []string{`"grey"`, "trueset spells it gray"}},
 		{"typo in a field name", "        size: 10\n", "        szie: 10\n",
 			21, "layers[0].objects[1].szie", []string{`unknown field "szie"`, `did you mean "size"?`}},
+		// Issue 11: nothing in a recipe is silently ignored.
+		{"second YAML document", "    kind: count\n", "    kind: count\n---\nname: other\n",
+			25, "", []string{"one YAML document", "a second one starts here"}},
+		{"count given twice in a weighted count", "count: 2", `count: {"1": 1, "1": 5}`,
+			20, "layers[0].objects[1].count", []string{`"1"`, "count 1 is given twice"}},
 		{"field given twice", "  height: 64\n", "  height: 64\n  height: 32\n",
 			5, "canvas.height", []string{"given twice"}},
 		{"string for width", "  width: 64\n", "  width: wide\n",

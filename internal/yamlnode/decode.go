@@ -5,7 +5,10 @@
 package yamlnode
 
 import (
+	"bytes"
+	"errors"
 	"fmt"
+	"io"
 	"reflect"
 	"sort"
 	"strconv"
@@ -315,6 +318,24 @@ func (d *Decoder) decodeStruct(n *yaml.Node, v reflect.Value, path string) error
 		}
 	}
 	return nil
+}
+
+// OneDocument refuses a file holding more than one YAML document (a second
+// document after "---" would otherwise be ignored), naming the line where the
+// second one starts. what names the kind of file ("recipe", "plan").
+func OneDocument(file, what string, data []byte) error {
+	dec := yaml.NewDecoder(bytes.NewReader(data))
+	var first, second yaml.Node
+	if err := dec.Decode(&first); err != nil {
+		return nil // the caller reports syntax errors of the first document
+	}
+	switch err := dec.Decode(&second); {
+	case errors.Is(err, io.EOF):
+		return nil
+	case err != nil:
+		return &Error{File: file, Msg: fmt.Sprintf("a %s is one YAML document; what follows the first is not valid YAML: %v", what, err)}
+	}
+	return &Error{File: file, Line: second.Line, Column: second.Column, Msg: fmt.Sprintf("a %s is one YAML document; a second one starts here (remove the \"---\" line and what follows, or merge it into the first)", what)}
 }
 
 // Renamed maps spellings trueset does not use (the other English spelling,
