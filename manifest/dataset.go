@@ -205,9 +205,15 @@ func DecodeManifest(r io.Reader, name string, fn func(*Record) error) error {
 		if err := dec.Decode(&rec); err != nil {
 			return fmt.Errorf("%s:%d: %w", name, line, err)
 		}
-		for _, p := range []string{rec.Image, rec.Mask, rec.Instances} {
-			if !SafeRel(p) {
-				return fmt.Errorf("%s:%d: record %q: path %q leaves the dataset folder", name, line, rec.ID, p)
+		if err := SafeName("record id", rec.ID); err != nil {
+			return fmt.Errorf("%s:%d: %w", name, line, err)
+		}
+		for _, f := range [][2]string{{"image", rec.Image}, {"mask", rec.Mask}, {"instances", rec.Instances}} {
+			if !SafeRel(f[1]) {
+				return fmt.Errorf("%s:%d: record %q: path %q leaves the dataset folder", name, line, rec.ID, f[1])
+			}
+			if err := recordPath(f[0], f[1]); err != nil {
+				return fmt.Errorf("%s:%d: record %q: %w", name, line, rec.ID, err)
 			}
 		}
 		if err := fn(&rec); err != nil {

@@ -1,12 +1,11 @@
 package manifest
 
 import (
-	"bufio"
 	"bytes"
 	"encoding/hex"
 	"encoding/json"
 	"fmt"
-	"io"
+	"github.com/trueset/trueset/internal/safefile"
 	"os"
 	"path/filepath"
 	"sort"
@@ -29,6 +28,7 @@ type Shard struct {
 
 // FinishShard flushes the shard's manifest and writes shard.json last.
 func (w *Writer) FinishShard(s *Shard) (int64, error) {
+	defer w.lock.Unlock()
 	if err := w.flush(); err != nil {
 		return 0, err
 	}
@@ -75,6 +75,9 @@ func readShard(dir string) (*Shard, error) {
 func Merge(dirs []string, out string, force bool) (int64, error) {
 	if len(dirs) == 0 {
 		return 0, fmt.Errorf("no shard folders given")
+	}
+	if err := CheckDisjoint(out, dirs...); err != nil {
+		return 0, err
 	}
 	shards := make([]*Shard, len(dirs))
 	for i, d := range dirs {
@@ -143,8 +146,8 @@ func Merge(dirs []string, out string, force bool) (int64, error) {
 			if r.Index != next {
 				return fmt.Errorf("record %s has index %d, want %d", r.ID, r.Index, next)
 			}
-			for _, rel := range []string{r.Image, r.Mask, r.Instances} {
-				n, err := copyFile(filepath.Join(dir, rel), filepath.Join(out, rel))
+			for _, f := range [][2]string{{"image", r.Image}, {"mask", r.Mask}, {"instances", r.Instances}} {
+				n, err := copyChecked(dir, out, f[1], f[0], r)
 				if err != nil {
 					return err
 				}
@@ -167,15 +170,20 @@ func Merge(dirs []string, out string, force bool) (int64, error) {
 	return total + n, err
 }
 
-func copyFile(src, dst string) (int64, error) {
-	in, err := os.Open(src)
+// copyChecked copies a record's file rel from a shard to out. The source
+// must be a regular file inside the shard (a symbolic link out of it is
+// refused) whose SHA-256 is the one the record gives.
+func copyChecked(dir, out, rel, kind string, r *Record) (int64, error) {
+	src, err := ResolveInside(dir, rel)
 	if err != nil {
-		return 0, err
+		return 0, fmt.Errorf("record %s: %s: %w", r.ID, kind, err)
 	}
-	defer in.Close()
-	b, err := io.ReadAll(bufio.NewReader(in))
+	b, err := safefile.Read(src, kind+" file", MaxSampleFileBytes)
 	if err != nil {
-		return 0, fmt.Errorf("read %s: %w", src, err)
+		return 0, fmt.Errorf("record %s: %w", r.ID, err)
 	}
-	return int64(len(b)), WriteFileAtomic(dst, b)
+	if got, want := SHA256Hex(b), r.SHA256[kind]; got != want {
+		return 0, fmt.Errorf("record %s: %s: SHA-256 %s, the record says %q; the shard is damaged: generate it again", r.ID, src, got, want)
+	}
+	return int64(len(b)), WriteFileAtomic(filepath.Join(out, rel), b)
 }

@@ -33,6 +33,7 @@ type Writer struct {
 	sum    hash.Hash
 	bytes  int64
 	marker bool
+	lock   *Lock // held from Create or Resume to Finish or Abort
 }
 
 // CreateOptions configures Create and Resume.
@@ -54,8 +55,24 @@ func CreateWith(dir string, o CreateOptions) (*Writer, error) {
 	if fsys == nil {
 		fsys = OS
 	}
-	if ents, err := os.ReadDir(dir); err == nil && len(ents) > 0 && !o.Force {
-		return nil, fmt.Errorf("%s is not empty; choose a new folder or pass --force to write over a previous dataset", dir)
+	// The lock comes first, so two runs started at once into one empty
+	// folder cannot both find it empty.
+	lk, err := LockDir(dir)
+	if err != nil {
+		return nil, err
+	}
+	ok := false
+	defer func() {
+		if !ok {
+			lk.Unlock()
+		}
+	}()
+	if ents, err := os.ReadDir(dir); err == nil && !o.Force {
+		for _, e := range ents {
+			if e.Name() != LockFile {
+				return nil, fmt.Errorf("%s is not empty; choose a new folder or pass --force to write over a previous dataset", dir)
+			}
+		}
 	}
 	// A stale dataset.json would mark a half-written folder complete; it is
 	// removed only when it is a trueset one (--force never deletes files
@@ -80,7 +97,7 @@ func CreateWith(dir string, o CreateOptions) (*Writer, error) {
 	if err := fsys.MkdirAll(dir, 0o755); err != nil {
 		return nil, err
 	}
-	w := &Writer{Dir: dir, fs: fsys, sum: sha256.New()}
+	w := &Writer{Dir: dir, fs: fsys, sum: sha256.New(), lock: lk}
 	if o.Marker != nil {
 		if err := writeAtomic(fsys, filepath.Join(dir, RunMarkerFile), o.Marker); err != nil {
 			return nil, err
@@ -97,6 +114,7 @@ func CreateWith(dir string, o CreateOptions) (*Writer, error) {
 		return nil, err
 	}
 	w.f, w.bw = f, bufio.NewWriterSize(f, 1<<16)
+	ok = true
 	return w, nil
 }
 
@@ -183,6 +201,19 @@ func Resume(dir string, o CreateOptions, keep func(n int) int) (*Writer, int, er
 	if fsys == nil {
 		fsys = OS
 	}
+	if _, err := os.Stat(dir); err != nil {
+		return nil, 0, noRunError{dir}
+	}
+	lk, err := LockDir(dir)
+	if err != nil {
+		return nil, 0, err
+	}
+	ok := false
+	defer func() {
+		if !ok {
+			lk.Unlock()
+		}
+	}()
 	mp := filepath.Join(dir, RunMarkerFile)
 	for _, name := range []string{DatasetFile, ShardFile} {
 		if _, err := os.Stat(filepath.Join(dir, name)); err == nil {
@@ -254,8 +285,9 @@ func Resume(dir string, o CreateOptions, keep func(n int) int) (*Writer, int, er
 		f.Close()
 		return nil, 0, err
 	}
-	w := &Writer{Dir: dir, fs: fsys, f: f, bw: bufio.NewWriterSize(f, 1<<16), sum: sha256.New(), bytes: int64(cut), marker: true}
+	w := &Writer{Dir: dir, fs: fsys, f: f, bw: bufio.NewWriterSize(f, 1<<16), sum: sha256.New(), bytes: int64(cut), marker: true, lock: lk}
 	w.sum.Write(data[:cut])
+	ok = true
 	return w, n, nil
 }
 
@@ -362,6 +394,7 @@ func (w *Writer) dropMarker() error {
 func (w *Writer) Abort() {
 	w.bw.Flush()
 	w.f.Close()
+	w.lock.Unlock()
 }
 
 func (w *Writer) flush() error {
@@ -383,6 +416,7 @@ func (w *Writer) flush() error {
 // Finish flushes the manifest to disk, records its SHA-256 in d and writes
 // dataset.json last. It returns the bytes of manifest and dataset.json.
 func (w *Writer) Finish(d *Dataset) (int64, error) {
+	defer w.lock.Unlock()
 	if err := w.flush(); err != nil {
 		return 0, err
 	}
