@@ -65,7 +65,17 @@ type ObjectPlan struct {
 type LayoutError struct {
 	Index      int
 	Layer      int
+	Field      string // the layout field that could not be met ("" = the layout as a whole)
 	Constraint string
+}
+
+// Path is the recipe field the error is about.
+func (e *LayoutError) Path() string {
+	p := fmt.Sprintf("layers[%d].layout", e.Layer)
+	if e.Field != "" {
+		p += "." + e.Field
+	}
+	return p
 }
 
 func (e *LayoutError) Error() string {

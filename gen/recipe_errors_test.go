@@ -1,7 +1,9 @@
 package gen
 
 import (
+	"context"
 	"errors"
+	"os"
 	"strings"
 	"testing"
 	"time"
@@ -108,6 +110,8 @@ func TestRecipeErrorPositions(t *testing.T) {
 		// Issue 11: nothing in a recipe is silently ignored.
 		{"second YAML document", "    kind: count\n", "    kind: count\n---\nname: other\n",
 			25, "", []string{"one YAML document", "a second one starts here"}},
+		{"class name longer than a record should repeat", "  - name: a\n", "  - name: xxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxx\n",
+			6, "classes[0].name", []string{"at most 64 bytes"}},
 		{"count given twice in a weighted count", "count: 2", `count: {"1": 1, "1": 5}`,
 			20, "layers[0].objects[1].count", []string{`"1"`, "count 1 is given twice"}},
 		{"field given twice", "  height: 64\n", "  height: 64\n  height: 32\n",
@@ -269,5 +273,32 @@ layers:
 		if !strings.Contains(msg, m) {
 			t.Errorf("error %q does not mention %q", msg, m)
 		}
+	}
+}
+
+// Issue 11: a least_pixels no object can reach is reported as a recipe
+// error naming the file and the field, before the output folder is touched.
+func TestUnreachableLeastPixelsNamesTheField(t *testing.T) {
+	src := breakOnce(t, "      kind: scatter\n", "      kind: scatter\n      least_pixels: 5000\n")
+	dir := t.TempDir()
+	file := dir + "/tiny.yaml"
+	if err := os.WriteFile(file, []byte(src), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	r, err := LoadRecipe(file)
+	if err != nil {
+		t.Fatal(err)
+	}
+	out := dir + "/out"
+	_, err = Run(context.Background(), RunOptions{Recipe: r, Out: out, Count: 3, Seed: 1, Workers: 1, Version: "test"})
+	var re *RecipeError
+	if !errors.As(err, &re) {
+		t.Fatalf("got %v, want a RecipeError", err)
+	}
+	if re.File != file || re.Path != "layers[0].layout.least_pixels" || !strings.Contains(re.Msg, "least_pixels 5000") {
+		t.Errorf("got file %q path %q msg %q", re.File, re.Path, re.Msg)
+	}
+	if _, err := os.Stat(out); !os.IsNotExist(err) {
+		t.Errorf("the output folder was created: %v", err)
 	}
 }

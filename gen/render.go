@@ -61,6 +61,7 @@ func (r *Recipe) ClassTable() []manifest.Class {
 // VisibilityError is a plan whose rendered masks break a visibility minimum;
 // the sample is re-planned.
 type VisibilityError struct {
+	Layer       int
 	Instance    int
 	Class       string
 	Area        int
@@ -72,6 +73,14 @@ type VisibilityError struct {
 func (e *VisibilityError) Error() string {
 	return fmt.Sprintf("object %d (class %q) kept %d pixels, %.0f%% shown; the layout asks for least_pixels %d and least_shown %.0f%%",
 		e.Instance, e.Class, e.Area, 100*e.Shown, e.LeastPixels, 100*e.LeastShown)
+}
+
+// Field is the layout field the object failed: least_pixels or least_shown.
+func (e *VisibilityError) Field() string {
+	if e.Area < e.LeastPixels {
+		return "least_pixels"
+	}
+	return "least_shown"
 }
 
 // Generate plans and renders sample index, redrawing its geometry (bounded by
@@ -104,6 +113,9 @@ func (rd *Renderer) Generate(seed uint64, index int) (*Sample, error) {
 	}
 	if le, ok := last.(*LayoutError); ok {
 		return nil, le
+	}
+	if ve, ok := last.(*VisibilityError); ok {
+		return nil, &LayoutError{Index: index, Layer: ve.Layer, Field: ve.Field(), Constraint: ve.Error()}
 	}
 	return nil, fmt.Errorf("sample %d: %v (gave up after %d attempts)", index, last, MaxAttempts)
 }
@@ -317,7 +329,7 @@ func (rd *Renderer) label(p *Plan, s *Sample, alone []int) error {
 			vis = float64(area) / float64(alone[i])
 		}
 		if area < o.LeastPixels || vis < o.LeastShown {
-			return &VisibilityError{Instance: id, Class: rd.palette[o.Class].Name, Area: area, Shown: vis, LeastPixels: o.LeastPixels, LeastShown: o.LeastShown}
+			return &VisibilityError{Layer: o.Layer, Instance: id, Class: rd.palette[o.Class].Name, Area: area, Shown: vis, LeastPixels: o.LeastPixels, LeastShown: o.LeastShown}
 		}
 		ob := manifest.Object{
 			Instance: id, Class: o.Class, ClassName: rd.palette[o.Class].Name, Parent: o.Parent,

@@ -199,16 +199,7 @@ func Run(ctx context.Context, o RunOptions) (Summary, error) {
 	// A layout no sample can meet fails here, before the folder is touched,
 	// rather than after the run has started (and invited a --resume).
 	if _, err := NewRenderer(r).Generate(o.Seed, first); err != nil {
-		var le *LayoutError
-		if errors.As(err, &le) {
-			file := r.file
-			if file == "" {
-				file = r.Name
-			}
-			err = &RecipeError{File: file, Path: fmt.Sprintf("layers[%d].layout", le.Layer),
-				Msg: fmt.Sprintf("sample %d cannot be laid out: %s (gave up after %d attempts); loosen the layout: fewer or smaller objects, a larger region or more overlap", le.Index, le.Constraint, MaxAttempts)}
-		}
-		return Summary{Splits: table}, err
+		return Summary{Splits: table}, r.layoutRecipeError(err)
 	}
 	co := manifest.CreateOptions{Force: o.Force, FS: o.FS, Marker: marker}
 	var w *manifest.Writer
@@ -250,7 +241,7 @@ func Run(ctx context.Context, o RunOptions) (Summary, error) {
 	sum := Summary{Samples: done, Resumed: resumed, Elapsed: time.Since(start), Bytes: total, Splits: table}
 	if firstErr != nil {
 		w.Abort()
-		return sum, firstErr
+		return sum, r.layoutRecipeError(firstErr)
 	}
 	var n int64
 	if o.Shards > 0 {
@@ -272,4 +263,20 @@ func (rd *Renderer) produce(seed uint64, i int, enc *manifest.Encoder, w *manife
 	rec := s.Record
 	n, err := w.WriteFiles(&rec, enc, s.Image, s.Mask, s.Instances)
 	return &rec, n, err
+}
+
+// layoutRecipeError turns a sample whose layout cannot be met into a
+// RecipeError naming the recipe file and the layout field: the recipe must
+// change (which makes a new run), so resuming would fail the same way.
+func (r *Recipe) layoutRecipeError(err error) error {
+	var le *LayoutError
+	if !errors.As(err, &le) {
+		return err
+	}
+	file := r.file
+	if file == "" {
+		file = "preset " + r.Name
+	}
+	return &RecipeError{File: file, Path: le.Path(),
+		Msg: fmt.Sprintf("sample %d cannot be laid out: %s (gave up after %d attempts); loosen the layout: fewer or smaller objects, a larger region, more overlap or lower least_pixels/least_shown", le.Index, le.Constraint, MaxAttempts)}
 }

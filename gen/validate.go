@@ -1,8 +1,6 @@
 package gen
 
 import (
-	"github.com/trueset/trueset/internal/yamlnode"
-
 	"fmt"
 	"math"
 	"path/filepath"
@@ -11,6 +9,7 @@ import (
 	"unicode"
 	"unicode/utf8"
 
+	"github.com/trueset/trueset/internal/yamlnode"
 	"github.com/trueset/trueset/manifest"
 )
 
@@ -21,7 +20,10 @@ const (
 	MaxCanvasPixels = 4096 * 4096
 	MaxObjects      = 1000 // per scene, parts included
 	MaxClasses      = 254  // ids 1..254; 255 is kept for "ignore"
-	MaxChars        = 4096
+	// MaxNameBytes bounds class and target names: with MaxObjects objects a
+	// record stays far below manifest.MaxRecordBytes, the most a reader takes.
+	MaxNameBytes = 64
+	MaxChars     = 4096
 )
 
 // Shape kinds.
@@ -87,6 +89,9 @@ func (r *Recipe) validate(d *yamlnode.Decoder) error {
 		p := fmt.Sprintf("classes[%d]", i)
 		if cl.Name == "" || cl.Name == "background" {
 			return d.ErrPath(p+".name", fmt.Sprintf("%q", cl.Name), "want a class name other than \"background\" (id 0 is background)")
+		}
+		if len(cl.Name) > MaxNameBytes || strings.IndexFunc(cl.Name, unicode.IsControl) >= 0 || !utf8.ValidString(cl.Name) {
+			return d.ErrPath(p+".name", fmt.Sprintf("%.40q", cl.Name), "want a class name of at most %d bytes of text without control characters (every record repeats it)", MaxNameBytes)
 		}
 		if _, dup := r.classID[cl.Name]; dup {
 			return d.ErrPath(p+".name", fmt.Sprintf("%q", cl.Name), "class names must be unique")
@@ -532,6 +537,9 @@ func (r *Recipe) validateTargets(d *yamlnode.Decoder) error {
 		p := fmt.Sprintf("targets[%d]", i)
 		if t.Name == "" || strings.ContainsAny(t.Name, " \t\n,=") {
 			return d.ErrPath(p+".name", fmt.Sprintf("%q", t.Name), "want a target name without spaces, commas or '='")
+		}
+		if len(t.Name) > MaxNameBytes || strings.IndexFunc(t.Name, unicode.IsControl) >= 0 || !utf8.ValidString(t.Name) {
+			return d.ErrPath(p+".name", fmt.Sprintf("%.40q", t.Name), "want a target name of at most %d bytes of text without control characters", MaxNameBytes)
 		}
 		if names[t.Name] {
 			return d.ErrPath(p+".name", fmt.Sprintf("%q", t.Name), "target names must be unique")

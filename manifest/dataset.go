@@ -192,7 +192,7 @@ func ReadManifest(dir string, fn func(*Record) error) error {
 // DecodeManifest reads JSON Lines records from r; name is used in errors.
 func DecodeManifest(r io.Reader, name string, fn func(*Record) error) error {
 	sc := bufio.NewScanner(r)
-	sc.Buffer(make([]byte, 0, 64*1024), 16<<20)
+	sc.Buffer(make([]byte, 0, 64*1024), MaxRecordBytes+1)
 	line := 0
 	for sc.Scan() {
 		line++

@@ -77,3 +77,21 @@ func TestCheckDisjoint(t *testing.T) {
 		}
 	}
 }
+
+// Writer and reader agree: a record longer than a reader takes is refused
+// when written, naming the record.
+func TestAppendRefusesARecordReadersCannotRead(t *testing.T) {
+	w, err := Create(filepath.Join(t.TempDir(), "out"), false)
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer w.Abort()
+	big := &Record{ID: "000007", Objects: []Object{{ClassName: strings.Repeat("x", MaxRecordBytes)}}}
+	if err := w.Append(big); err == nil || !strings.Contains(err.Error(), "record 000007") || !strings.Contains(err.Error(), "at most") {
+		t.Errorf("got %v", err)
+	}
+	ok := &Record{ID: "000000", Objects: []Object{}}
+	if err := w.Append(ok); err != nil {
+		t.Errorf("a small record: %v", err)
+	}
+}

@@ -365,6 +365,9 @@ func (w *Writer) Append(rec *Record) error {
 	if err != nil {
 		return err
 	}
+	if len(b) > MaxRecordBytes {
+		return fmt.Errorf("record %s is %d bytes of JSON; a manifest line may hold at most %d (too many objects, or names too long)", rec.ID, len(b), MaxRecordBytes)
+	}
 	b = append(b, '\n')
 	w.sum.Write(b)
 	w.bytes += int64(len(b))
