@@ -7,6 +7,7 @@ import (
 	"encoding/hex"
 	"encoding/json"
 	"fmt"
+	"github.com/trueset/trueset/internal/safefile"
 	"io"
 	"os"
 	"path/filepath"
@@ -146,11 +147,11 @@ func MarshalDataset(d *Dataset) ([]byte, error) {
 // ReadDataset reads DIR/dataset.json.
 func ReadDataset(dir string) (*Dataset, error) {
 	p := filepath.Join(dir, DatasetFile)
-	b, err := os.ReadFile(p)
+	if _, err := os.Lstat(p); os.IsNotExist(err) {
+		return nil, fmt.Errorf("%s: missing: the dataset is incomplete or not a trueset dataset", p)
+	}
+	b, err := safefile.Read(p, "dataset.json", MaxDatasetBytes)
 	if err != nil {
-		if os.IsNotExist(err) {
-			return nil, fmt.Errorf("%s: missing: the dataset is incomplete or not a trueset dataset", p)
-		}
 		return nil, err
 	}
 	var d Dataset
@@ -181,7 +182,7 @@ func CheckFormat(file, format string) error {
 // Errors name the file and line.
 func ReadManifest(dir string, fn func(*Record) error) error {
 	p := filepath.Join(dir, ManifestFile)
-	f, err := os.Open(p)
+	f, err := safefile.Open(p)
 	if err != nil {
 		return err
 	}

@@ -13,6 +13,10 @@ import (
 // (a 4096×4096 RGB PNG stored without compression is about 50 MB).
 const MaxSampleFileBytes = 256 << 20
 
+// MaxDatasetBytes bounds dataset.json and shard.json (the recipe, the plan
+// and the strata table are the large parts).
+const MaxDatasetBytes = 64 << 20
+
 // MaxRecordBytes bounds one manifest line: writers refuse a longer record
 // and readers read up to this, so whatever trueset writes it can read back.
 const MaxRecordBytes = 16 << 20

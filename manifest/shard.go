@@ -4,8 +4,10 @@ import (
 	"bytes"
 	"encoding/hex"
 	"encoding/json"
+	"errors"
 	"fmt"
 	"github.com/trueset/trueset/internal/safefile"
+	"io/fs"
 	"os"
 	"path/filepath"
 	"sort"
@@ -51,9 +53,9 @@ func (w *Writer) FinishShard(s *Shard) (int64, error) {
 
 func readShard(dir string) (*Shard, error) {
 	p := filepath.Join(dir, ShardFile)
-	b, err := os.ReadFile(p)
+	b, err := safefile.Read(p, "shard.json", MaxDatasetBytes)
 	if err != nil {
-		if os.IsNotExist(err) {
+		if errors.Is(err, fs.ErrNotExist) {
 			return nil, fmt.Errorf("%s: missing: %s is not a finished shard", p, dir)
 		}
 		return nil, err

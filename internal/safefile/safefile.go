@@ -12,9 +12,12 @@ import (
 type Error struct {
 	Path string
 	Msg  string
+	Err  error // the system's error, if any (errors.Is(err, fs.ErrNotExist) works)
 }
 
 func (e *Error) Error() string { return e.Path + ": " + e.Msg }
+
+func (e *Error) Unwrap() error { return e.Err }
 
 // kindOf names what a non-regular file is.
 func kindOf(m fs.FileMode) string {
@@ -41,9 +44,9 @@ func Open(path string) (*os.File, error) {
 	f, err := os.OpenFile(path, os.O_RDONLY|syscall.O_NONBLOCK, 0)
 	if err != nil {
 		if os.IsNotExist(err) {
-			return nil, &Error{Path: path, Msg: "does not exist"}
+			return nil, &Error{Path: path, Msg: "does not exist", Err: err}
 		}
-		return nil, &Error{Path: path, Msg: unwrap(err)}
+		return nil, &Error{Path: path, Msg: unwrap(err), Err: err}
 	}
 	st, err := f.Stat()
 	if err != nil {
