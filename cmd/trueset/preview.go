@@ -30,7 +30,7 @@ func newPreviewCmd(stdout io.Writer) *cobra.Command {
 		Short: "Draw a contact sheet of samples with their masks, boxes and targets",
 		Long: `Draw a contact sheet of --count samples of one split of the dataset in DIR,
 picked by a shuffle seeded with --seed and shown in index order. Each cell is
-the image scaled up by an integer factor (nearest neighbour) to about 192
+the image scaled up by an integer factor (nearest neighbor) to about 192
 pixels, tinted with the semantic mask's class colors (background untinted;
 the ignore id 255 hatched gray), each object's bounding box outlined in its
 class color, and a caption with the sample id and its targets. A legend of

@@ -132,7 +132,7 @@ func runReport(dir string, o *reportOptions, stdout io.Writer) error {
 		case n > 1:
 			warn = fmt.Sprintf("%d warnings", n)
 		}
-		fmt.Fprintf(stdout, "wrote %s: report of %d samples, %s, %d KiB\n", o.out, st.Records, warn, (len(b)+1023)/1024)
+		fmt.Fprintf(stdout, "wrote %s: report of %d samples, %s, %d KiB\n", o.out, st.Samples, warn, (len(b)+1023)/1024)
 	}
 	return nil
 }

@@ -9,10 +9,13 @@ import (
 	"io"
 	"os"
 	"path/filepath"
+	"reflect"
 	"regexp"
 	"strconv"
 	"strings"
 	"testing"
+
+	"go.yaml.in/yaml/v3"
 
 	"github.com/trueset/trueset/manifest/inspect"
 )
@@ -204,9 +207,9 @@ func requiredReportStats(t *testing.T, doc any) []string {
 		n, _ := strconv.Atoi(string(v.(json.Number)))
 		return n
 	}
-	want := []string{"dataset", "records", "leakage.method", "leakage.threshold", "leakage.pairs.len", "leakage.groups_spanning_splits.len"}
-	for i := range length("splits") {
-		want = append(want, fmt.Sprintf("splits.%d.name", i), fmt.Sprintf("splits.%d.samples", i), fmt.Sprintf("splits.%d.groups", i))
+	want := []string{"dir", "samples", "leakage.method", "leakage.threshold", "leakage.pairs.len", "leakage.groups_spanning_splits.len"}
+	for i := range length("per_split") {
+		want = append(want, fmt.Sprintf("per_split.%d.name", i), fmt.Sprintf("per_split.%d.samples", i), fmt.Sprintf("per_split.%d.groups", i))
 	}
 	for _, k := range []string{"mean", "std"} {
 		for c := range length("pixels." + k) {
@@ -221,8 +224,8 @@ func requiredReportStats(t *testing.T, doc any) []string {
 	for i := range length("targets") {
 		want = append(want, fmt.Sprintf("targets.%d.name", i), fmt.Sprintf("targets.%d.count", i))
 	}
-	for i := range length("strata.strata") {
-		want = append(want, fmt.Sprintf("strata.strata.%d.key", i), fmt.Sprintf("strata.strata.%d.groups", i))
+	for i := range length("splits.strata") {
+		want = append(want, fmt.Sprintf("splits.strata.%d.key", i), fmt.Sprintf("splits.strata.%d.groups", i))
 	}
 	return want
 }
@@ -286,16 +289,30 @@ func TestReportCommand(t *testing.T) {
 			t.Errorf("report contains %q", bad)
 		}
 	}
-	// The recipe is dataset.json's, pretty-printed and escaped.
-	pre := regexp.MustCompile(`(?s)<pre id="recipe-json">(.*?)</pre>`).FindStringSubmatch(html)
+	// The recipe is dataset.json's, as YAML (parsed with go.yaml.in/yaml/v3
+	// it holds the same values as the stored JSON), escaped; a list of
+	// numbers stays on one line.
+	pre := regexp.MustCompile(`(?s)<pre id="recipe-yaml">(.*?)</pre>`).FindStringSubmatch(html)
 	if pre == nil {
 		t.Fatal("no recipe <pre>")
 	}
-	var recipe struct {
-		Name string `json:"name"`
+	text := stdhtml.UnescapeString(pre[1])
+	var fromYAML any
+	if err := yaml.Unmarshal([]byte(text), &fromYAML); err != nil {
+		t.Fatalf("recipe <pre> is not YAML: %v\n%s", err, text)
 	}
-	if err := json.Unmarshal([]byte(stdhtml.UnescapeString(pre[1])), &recipe); err != nil || recipe.Name != "workshop-parts" {
-		t.Errorf("recipe <pre> is not the recipe: %v %q", err, recipe.Name)
+	yj, _ := json.Marshal(fromYAML)
+	var got, want any
+	_ = json.Unmarshal(yj, &got)
+	_ = json.Unmarshal(readDataset(t, set).Recipe, &want)
+	if !reflect.DeepEqual(got, want) {
+		t.Errorf("recipe <pre> reads as\n%s\nnot dataset.json's recipe", yj)
+	}
+	if strings.HasPrefix(strings.TrimSpace(text), "{") || regexp.MustCompile(`(?m)^\s*-?\s*\d+(\.\d+)?,?$`).MatchString(text) {
+		t.Errorf("recipe shown as JSON or one number per line:\n%s", text)
+	}
+	if !strings.Contains(text, "name: workshop-parts\n") || !regexp.MustCompile(`(?m)^\s+color: \[\d+, \d+, \d+\]$`).MatchString(text) {
+		t.Errorf("recipe YAML lacks its name or a one-line class color:\n%s", text)
 	}
 
 	// Same dataset, same flags: the same bytes; no sheet: the slot.
@@ -335,5 +352,45 @@ func TestReportUsageErrors(t *testing.T) {
 	}
 	if _, err := os.Stat(out); !os.IsNotExist(err) {
 		t.Errorf("a refused report wrote %s", out)
+	}
+}
+
+// An augmented plain labeled folder has no recipe: its report has no
+// "Recipe SHA-256" row (not an empty one) and says so; the plan shows as
+// YAML. Each target's type reads "numeric" or "text" in the page, as in
+// `trueset stats` (the same words for the same target).
+func TestReportPlainFolderAndTargetTypes(t *testing.T) {
+	plain := filepath.Join(t.TempDir(), "plain")
+	wantCode(t, exitOK, "augment", "--in", filepath.Join("..", "..", "testdata", "plain"), "--out", plain,
+		"--plan", filepath.Join("..", "..", "testdata", "plans", "upright.yaml"), "--copies", "2", "--quiet")
+	out := filepath.Join(t.TempDir(), "plain.html")
+	wantCode(t, exitOK, "report", plain, "--out", out, "-q")
+	page, err := os.ReadFile(out)
+	if err != nil {
+		t.Fatal(err)
+	}
+	html := string(page)
+	if strings.Contains(html, "Recipe SHA-256") {
+		t.Error("the report of a plain folder has a Recipe SHA-256 row")
+	}
+	if !strings.Contains(html, "dataset.json records no recipe.") || !strings.Contains(html, `<pre id="plan-yaml">`) {
+		t.Error("no note of the missing recipe, or no plan as YAML")
+	}
+	text, _ := wantCode(t, exitOK, "stats", plain)
+	st, _ := statsJSON(t, plain)
+	cells := readReportCells(t, page)
+	kinds := map[string]bool{}
+	for i, tg := range st.Targets {
+		c := cells[fmt.Sprintf("targets.%d.numeric", i)]
+		if c.Text != tg.Type() {
+			t.Errorf("target %s: the report says %q, want %q", tg.Name, c.Text, tg.Type())
+		}
+		if !regexp.MustCompile(`(?m)^\s*` + regexp.QuoteMeta(tg.Name) + `\s+` + c.Text + `\s`).MatchString(text) {
+			t.Errorf("target %s: the report says %q, stats text does not", tg.Name, c.Text)
+		}
+		kinds[c.Text] = true
+	}
+	if !kinds["numeric"] || !kinds["text"] {
+		t.Errorf("want both a numeric and a text target in testdata/plain, got %v", kinds)
 	}
 }

@@ -73,6 +73,14 @@ Checksums are not verified (that is ` + "`trueset verify`" + `).`,
 	return cmd
 }
 
+// statsJSONOut is what `stats --json` prints: the command's name, then the
+// statistics ("dir", "samples", "splits" in dataset.json's shape, …), as the
+// --json summaries of the other commands begin.
+type statsJSONOut struct {
+	Command string `json:"command"`
+	*inspect.Stats
+}
+
 func runStats(dir string, o *statsOptions, stdout io.Writer) error {
 	if o.threshold < 0 || o.threshold > 32 {
 		return usagef("--threshold %d: want 0..32 bits of 64", o.threshold)
@@ -99,23 +107,15 @@ func runStats(dir string, o *statsOptions, stdout io.Writer) error {
 		enc := json.NewEncoder(stdout)
 		enc.SetEscapeHTML(false)
 		enc.SetIndent("", "  ")
-		return enc.Encode(st)
+		return enc.Encode(statsJSONOut{Command: "stats", Stats: st})
 	}
 	printStats(stdout, d, st)
 	return nil
 }
 
-// num prints a figure with up to 4 decimals and no trailing zeros.
-func num(f float64) string {
-	s := strconv.FormatFloat(f, 'f', 4, 64)
-	if strings.Contains(s, ".") {
-		s = strings.TrimRight(strings.TrimRight(s, "0"), ".")
-	}
-	if s == "-0" {
-		s = "0"
-	}
-	return s
-}
+// num prints a figure with up to 4 decimals and no trailing zeros
+// (inspect.Figure): never float noise such as 32.62767203840939.
+func num(f float64) string { return inspect.Figure(f) }
 
 func printStats(w io.Writer, d *manifest.Dataset, st *inspect.Stats) {
 	mode := d.Mode
@@ -126,23 +126,27 @@ func printStats(w io.Writer, d *manifest.Dataset, st *inspect.Stats) {
 	if d.Augment != nil {
 		kind = "augmented"
 	}
-	fmt.Fprintf(w, "dataset %s: %d samples, %dx%d %s, %s, seed %d\n\n", st.Dataset, st.Records, d.Width, d.Height, mode, kind, d.Seed)
+	size := fmt.Sprintf("%dx%d", d.Width, d.Height)
+	if d.Width <= 0 || d.Height <= 0 {
+		size = "sizes vary"
+	}
+	fmt.Fprintf(w, "dataset %s: %s, %s %s, %s, seed %d\n\n", st.Dir, inspect.Plural(st.Samples, "sample"), size, mode, kind, d.Seed)
 	table := func() *tabwriter.Writer { return tabwriter.NewWriter(w, 2, 4, 2, ' ', tabwriter.AlignRight) }
 
 	fmt.Fprintln(w, "splits:")
 	tw := table()
 	fmt.Fprintf(tw, "split\tsamples\tgroups\t\n")
-	for _, s := range st.Splits {
+	for _, s := range st.PerSplit {
 		fmt.Fprintf(tw, "%s\t%d\t%d\t\n", s.Name, s.Samples, s.Groups)
 	}
 	tw.Flush()
-	if len(st.Strata.Strata) > 0 {
+	if len(st.Splits.Strata) > 0 {
 		fmt.Fprintln(w)
-		printSplitTable(w, st.Strata)
+		printSplitTable(w, st.Splits)
 	}
 
 	p := st.Pixels
-	fmt.Fprintf(w, "\nnormalization over split %s (%d values per channel, 0..255 units; std is the population std):\n", p.Split, p.Count)
+	fmt.Fprintf(w, "\nnormalization over split %s (%s per channel, 0..255 units; std is the population std):\n", p.Split, inspect.Plural(int(p.Count), "value"))
 	tw = table()
 	fmt.Fprintf(tw, "channel\tmean\tstd\tmean/255\tstd/255\tnormalize\t\n")
 	for c := range p.Mean {
@@ -197,19 +201,19 @@ func printStats(w io.Writer, d *manifest.Dataset, st *inspect.Stats) {
 	if len(st.Targets) > 0 {
 		fmt.Fprintf(w, "\ntargets (split %s; std is the population std):\n", p.Split)
 		tw = table()
-		fmt.Fprintf(tw, "target\tkind\tcount\tmin\tmax\tmean\tstd\tdistinct\t\n")
+		fmt.Fprintf(tw, "target\ttype\tcount\tmin\tmax\tmean\tstd\tdistinct\t\n")
 		for _, t := range st.Targets {
 			if t.Numeric {
-				fmt.Fprintf(tw, "%s\tnumber\t%d\t%s\t%s\t%s\t%s\t%d\t\n", t.Name, t.Count, num(t.Min), num(t.Max), num(t.Mean), num(t.Std), t.Distinct)
+				fmt.Fprintf(tw, "%s\t%s\t%d\t%s\t%s\t%s\t%s\t%d\t\n", t.Name, t.Type(), t.Count, num(t.Min), num(t.Max), num(t.Mean), num(t.Std), t.Distinct)
 			} else {
-				fmt.Fprintf(tw, "%s\ttext\t%d\t\t\t\t\t%d\t\n", t.Name, t.Count, t.Distinct)
+				fmt.Fprintf(tw, "%s\t%s\t%d\t–\t–\t–\t–\t%d\t\n", t.Name, t.Type(), t.Count, t.Distinct)
 			}
 		}
 		tw.Flush()
 	}
 
 	l := st.Leakage
-	fmt.Fprintf(w, "\nleakage (64-bit dHash of %d images, Hamming distance ≤ %d across splits, %s; %d candidates, confirmed when %s):\n", l.Images, l.Threshold, l.Index, l.Candidates, l.Confirm)
+	fmt.Fprintf(w, "\nleakage (64-bit dHash of %s, Hamming distance ≤ %d across splits, %s; %s, confirmed when %s):\n", inspect.Plural(l.Images, "image"), l.Threshold, l.Index, inspect.Plural(l.Candidates, "candidate"), l.Confirm)
 	if l.PairsFound == 0 {
 		fmt.Fprintln(w, "  no near-duplicate pairs across splits")
 	} else {
@@ -227,7 +231,7 @@ func printStats(w io.Writer, d *manifest.Dataset, st *inspect.Stats) {
 		}
 		tw.Flush()
 		if l.PairsFound > maxLeakRows {
-			fmt.Fprintf(w, "  … %d pairs in all (--json lists up to %d)\n", l.PairsFound, inspect.MaxLeakPairs)
+			fmt.Fprintf(w, "  … %s in all (--json lists up to %d)\n", inspect.Plural(l.PairsFound, "pair"), inspect.MaxLeakPairs)
 		}
 		fmt.Fprintln(w, "  identical = the records give both images the same SHA-256")
 	}
@@ -246,8 +250,8 @@ func printStats(w io.Writer, d *manifest.Dataset, st *inspect.Stats) {
 }
 
 func splitNames(st *inspect.Stats) []string {
-	out := make([]string, len(st.Splits))
-	for i, s := range st.Splits {
+	out := make([]string, len(st.PerSplit))
+	for i, s := range st.PerSplit {
 		out[i] = s.Name
 	}
 	return out

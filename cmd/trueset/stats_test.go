@@ -11,6 +11,8 @@ import (
 	"math/rand/v2"
 	"os"
 	"path/filepath"
+	"reflect"
+	"regexp"
 	"slices"
 	"sort"
 	"strings"
@@ -72,15 +74,15 @@ func TestStatsJSONMatchesRecount(t *testing.T) {
 			}
 			d := readDataset(t, dir)
 			recs := readRecords(t, dir)
-			if st.Records != len(recs) {
-				t.Errorf("records %d, manifest has %d", st.Records, len(recs))
+			if st.Samples != len(recs) {
+				t.Errorf("samples %d, manifest has %d", st.Samples, len(recs))
 			}
 			counts := map[string]int{}
 			for _, r := range recs {
 				counts[r.Split]++
 			}
 			var names []string
-			for _, s := range st.Splits {
+			for _, s := range st.PerSplit {
 				names = append(names, s.Name)
 				if s.Samples != counts[s.Name] || s.Groups != counts[s.Name] {
 					t.Errorf("split %s: %d samples %d groups, manifest has %d (one group per generated sample)", s.Name, s.Samples, s.Groups, counts[s.Name])
@@ -425,8 +427,8 @@ func TestStatsAugmentedSets(t *testing.T) {
 	for _, dir := range []string{aug, plain} {
 		st, _ := statsJSON(t, dir)
 		recs := readRecords(t, dir)
-		if st.Records != len(recs) {
-			t.Errorf("%s: %d records, manifest %d", dir, st.Records, len(recs))
+		if st.Samples != len(recs) {
+			t.Errorf("%s: %d samples, manifest %d", dir, st.Samples, len(recs))
 		}
 		if len(st.Leakage.GroupsSpanned) != 0 {
 			t.Errorf("%s: groups span splits: %v", dir, st.Leakage.GroupsSpanned)
@@ -445,7 +447,113 @@ func TestStatsAugmentedSets(t *testing.T) {
 		if st.IgnorePixels != ignore {
 			t.Errorf("%s: %d ignore pixels, masks have %d", dir, st.IgnorePixels, ignore)
 		}
-		t.Logf("%s: %d records, %d groups in train, %d ignore pixels, %d leak pairs, warnings %q", filepath.Base(dir), st.Records, st.Splits[0].Groups, ignore, st.Leakage.PairsFound, st.Warnings)
+		t.Logf("%s: %d records, %d groups in train, %d ignore pixels, %d leak pairs, warnings %q", filepath.Base(dir), st.Samples, st.PerSplit[0].Groups, ignore, st.Leakage.PairsFound, st.Warnings)
 		wantCode(t, exitOK, "stats", dir)
+	}
+}
+
+// `stats --json` has the shape of every --json summary: "command", "dir",
+// "samples", and the split table under "splits" exactly as dataset.json
+// holds it (names, spec, ratios, counts, stratify, strata as a list,
+// thin_strata), not nested one level deeper; no "records", "dataset" or
+// "strata" at the top. Every key is spelled the American way.
+func TestStatsJSONShape(t *testing.T) {
+	dir := statsGenerate(t, "tabletop-dice", 60)
+	_, out := statsJSON(t, dir)
+	var top map[string]json.RawMessage
+	if err := json.Unmarshal([]byte(out), &top); err != nil {
+		t.Fatal(err)
+	}
+	if string(top["command"]) != `"stats"` {
+		t.Errorf(`"command" is %s, want "stats"`, top["command"])
+	}
+	if want, _ := json.Marshal(dir); string(top["dir"]) != string(want) {
+		t.Errorf(`"dir" is %s, want %s`, top["dir"], want)
+	}
+	if string(top["samples"]) != "60" {
+		t.Errorf(`"samples" is %s, want 60`, top["samples"])
+	}
+	for _, old := range []string{"records", "dataset", "strata"} {
+		if _, ok := top[old]; ok {
+			t.Errorf("stats --json still has the top-level key %q", old)
+		}
+	}
+	raw, err := os.ReadFile(filepath.Join(dir, manifest.DatasetFile))
+	if err != nil {
+		t.Fatal(err)
+	}
+	var ds map[string]any
+	if err := json.Unmarshal(raw, &ds); err != nil {
+		t.Fatal(err)
+	}
+	var got any
+	if err := json.Unmarshal(top["splits"], &got); err != nil {
+		t.Fatal(err)
+	}
+	if !reflect.DeepEqual(got, ds["splits"]) {
+		t.Errorf("stats --json splits\n%s\ndiffer from dataset.json's\n%v", top["splits"], ds["splits"])
+	}
+	sp, _ := got.(map[string]any)
+	if _, ok := sp["strata"].([]any); !ok || len(sp["strata"].([]any)) == 0 {
+		t.Errorf("splits.strata is %T, want the list of strata", sp["strata"])
+	}
+	for _, k := range []string{"names", "spec", "ratios", "counts", "stratify", "strata"} {
+		if _, ok := sp[k]; !ok {
+			t.Errorf("splits lacks %q", k)
+		}
+	}
+	var doc any
+	if err := json.Unmarshal([]byte(out), &doc); err != nil {
+		t.Fatal(err)
+	}
+	british := regexp.MustCompile(`(?i)colour|grey|centre|normalis|neighbour`)
+	var walk func(path string, v any)
+	walk = func(path string, v any) {
+		switch v := v.(type) {
+		case map[string]any:
+			for k, e := range v {
+				if british.MatchString(k) {
+					t.Errorf("key %s.%s is not American spelling", path, k)
+				}
+				walk(path+"."+k, e)
+			}
+		case []any:
+			for i, e := range v {
+				walk(fmt.Sprintf("%s.%d", path, i), e)
+			}
+		}
+	}
+	walk("", doc)
+}
+
+// Text and JSON say what a target is the same way the report does:
+// "numeric" or "text" (never "number", a recipe target kind); figures are
+// rounded; counts agree with their nouns.
+func TestStatsTextTargetTypesAndPlurals(t *testing.T) {
+	dir := statsGenerate(t, "bin-labels", 40)
+	out, _ := wantCode(t, exitOK, "stats", dir)
+	st, _ := statsJSON(t, dir)
+	_, table, _ := strings.Cut(out, "\ntargets (split train")
+	table, _, _ = strings.Cut(table, "\n\n")
+	if !strings.Contains(table, " type ") || strings.Contains(table, "number") || strings.Contains(table, " kind ") {
+		t.Errorf("targets table:\n%s", table)
+	}
+	for _, tg := range st.Targets {
+		want := "numeric"
+		if !tg.Numeric {
+			want = "text"
+		}
+		if !regexp.MustCompile(`(?m)^\s*` + regexp.QuoteMeta(tg.Name) + `\s+` + want + `\s`).MatchString(table) {
+			t.Errorf("target %s is not shown as %s:\n%s", tg.Name, want, table)
+		}
+	}
+	if noise := regexp.MustCompile(`\d\.\d{5,}`).FindString(out); noise != "" {
+		t.Errorf("stats text prints %s unrounded", noise)
+	}
+	if m := regexp.MustCompile(`\b1 (candidates|images|pairs|samples|groups|values)\b`).FindString(out); m != "" {
+		t.Errorf("stats text says %q", m)
+	}
+	if !regexp.MustCompile(`(\d+) candidates?,`).MatchString(out) {
+		t.Errorf("no candidate count in:\n%s", out)
 	}
 }

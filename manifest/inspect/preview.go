@@ -69,7 +69,7 @@ type Sheet struct {
 
 // Preview draws a contact sheet of o.Count samples of a split, chosen by a
 // Fisher–Yates shuffle seeded with manifest.RNG(o.Seed) and shown in index
-// order: each cell is the image scaled with nearest neighbour, tinted with
+// order: each cell is the image scaled with nearest neighbor, tinted with
 // the semantic mask's class colors (background untinted, the ignore id and
 // unknown ids hatched gray), each object's box outlined in its class
 // color, and a caption of the id and targets; a legend of class colors
@@ -410,7 +410,7 @@ type legend struct {
 type legendItem struct {
 	x, row int
 	name   string
-	color color.RGBA
+	color  color.RGBA
 	hatch  bool
 }
 

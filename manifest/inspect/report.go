@@ -16,6 +16,7 @@ import (
 	"strconv"
 	"strings"
 
+	"go.yaml.in/yaml/v3"
 	xfont "golang.org/x/image/font"
 	"gonum.org/v1/plot"
 	"gonum.org/v1/plot/font"
@@ -30,7 +31,7 @@ import (
 // ReportOptions are what a report needs beyond the statistics.
 type ReportOptions struct {
 	// Dataset is the dataset's dataset.json (recipe, class colors, seed…).
-	// When nil, Report reads it from Stats.Dataset.
+	// When nil, Report reads it from Stats.Dir.
 	Dataset *manifest.Dataset
 	// ContactSheet is a preview of some samples, inlined as a PNG. When nil
 	// the report says that no contact sheet was made.
@@ -77,7 +78,7 @@ func RenderReport(s *Stats, o ReportOptions) ([]byte, error) {
 	d := o.Dataset
 	if d == nil {
 		var err error
-		if d, err = manifest.ReadDataset(s.Dataset); err != nil {
+		if d, err = manifest.ReadDataset(s.Dir); err != nil {
 			return nil, fmt.Errorf("report: %w", err)
 		}
 	}
@@ -255,8 +256,8 @@ func reportName(s *Stats, d *manifest.Dataset) string {
 	if len(d.Recipe) > 0 && json.Unmarshal(d.Recipe, &r) == nil && r.Name != "" {
 		return r.Name
 	}
-	if s.Dataset != "" {
-		return filepath.Base(filepath.Clean(s.Dataset))
+	if s.Dir != "" {
+		return filepath.Base(filepath.Clean(s.Dir))
 	}
 	return "dataset"
 }
@@ -266,19 +267,25 @@ func buildReportView(s *Stats, d *manifest.Dataset, o ReportOptions) (*reportVie
 	v := &reportView{
 		Title:    name + " · trueset report",
 		Name:     name,
-		Folder:   s.Dataset,
+		Folder:   s.Dir,
 		Warnings: s.Warnings,
 		SheetCap: o.ContactSheetCaption,
 		Charts:   map[string]repChart{},
 	}
 	v.Facts = []repFact{
-		{"Folder", repText("dataset", s.Dataset)},
-		{"Samples", repInt("records", int64(s.Records))},
+		{"Folder", repText("dir", s.Dir)},
+		{"Samples", repInt("samples", int64(s.Samples))},
 		{"Image size", repPlain(repImageSize(d))},
 		{"Seed", repPlain(strconv.FormatUint(d.Seed, 10))},
 		{"Tool version", repPlain(d.ToolVersion)},
-		{"Recipe SHA-256", repCell{Text: repShort(d.RecipeSHA256), Title: d.RecipeSHA256}},
-		{"Manifest SHA-256", repCell{Text: repShort(d.ManifestSHA256), Title: d.ManifestSHA256}},
+	}
+	// A plain labeled folder, augmented, has no recipe and so no recipe
+	// hash: no row rather than an empty one.
+	if d.RecipeSHA256 != "" {
+		v.Facts = append(v.Facts, repFact{"Recipe SHA-256", repCell{Text: repShort(d.RecipeSHA256), Title: d.RecipeSHA256}})
+	}
+	if d.ManifestSHA256 != "" {
+		v.Facts = append(v.Facts, repFact{"Manifest SHA-256", repCell{Text: repShort(d.ManifestSHA256), Title: d.ManifestSHA256}})
 	}
 	if d.Augment != nil {
 		a := d.Augment
@@ -339,9 +346,9 @@ func buildReportView(s *Stats, d *manifest.Dataset, o ReportOptions) (*reportVie
 		return nil, fmt.Errorf("report: chart: %w", err)
 	}
 
-	v.Recipe, v.RecipeNote = repPrettyJSON(d.Recipe)
+	v.Recipe, v.RecipeNote = repYAML(d.Recipe, "recipe")
 	if d.Augment != nil && len(d.Augment.Plan) > 0 {
-		v.Plan, _ = repPrettyJSON(d.Augment.Plan)
+		v.Plan, _ = repYAML(d.Augment.Plan, "plan")
 	}
 	return v, nil
 }
@@ -366,25 +373,78 @@ func repShort(h string) string {
 	return h
 }
 
-func repPrettyJSON(raw json.RawMessage) (string, string) {
+// repYAML shows a normalized recipe or plan, stored in dataset.json as
+// JSON, as the YAML it was written in: block style, keys in their stored
+// order, short lists of numbers (colors, ranges, boxes) on one line. what
+// names it in the notes ("recipe", "plan").
+func repYAML(raw json.RawMessage, what string) (string, string) {
 	if len(bytes.TrimSpace(raw)) == 0 || string(bytes.TrimSpace(raw)) == "null" {
-		return "", "dataset.json records no recipe."
+		return "", "dataset.json records no " + what + "."
 	}
+	if !json.Valid(raw) {
+		return string(raw), "the " + what + " is not valid JSON; shown as stored."
+	}
+	// JSON is YAML (1.2), so the YAML parser reads it into nodes that keep
+	// the key order; only the styles change.
+	var doc yaml.Node
+	if err := yaml.Unmarshal(raw, &doc); err != nil {
+		return repIndentJSON(raw), "the " + what + " is shown as JSON (it did not convert to YAML: " + err.Error() + ")."
+	}
+	repBlockStyle(&doc)
+	var buf bytes.Buffer
+	enc := yaml.NewEncoder(&buf)
+	enc.SetIndent(2)
+	if err := enc.Encode(&doc); err != nil {
+		return repIndentJSON(raw), "the " + what + " is shown as JSON (it did not convert to YAML: " + err.Error() + ")."
+	}
+	_ = enc.Close()
+	return strings.TrimRight(buf.String(), "\n"), ""
+}
+
+func repIndentJSON(raw json.RawMessage) string {
 	var buf bytes.Buffer
 	if err := json.Indent(&buf, raw, "", "  "); err != nil {
-		return string(raw), "the recipe is not valid JSON; shown as stored."
+		return string(raw)
 	}
-	return buf.String(), ""
+	return buf.String()
+}
+
+// repBlockStyle turns the flow style of parsed JSON into block style, keeps
+// lists of up to 8 scalars on one line ("color: [230, 25, 75]"), and drops
+// the quotes of strings; the encoder quotes again any that would read back
+// as another type ("yes", "1").
+func repBlockStyle(n *yaml.Node) {
+	switch n.Kind {
+	case yaml.ScalarNode:
+		n.Style = 0
+	case yaml.SequenceNode:
+		short := len(n.Content) > 0 && len(n.Content) <= 8
+		for _, c := range n.Content {
+			if c.Kind != yaml.ScalarNode {
+				short = false
+			}
+		}
+		if short {
+			n.Style = yaml.FlowStyle
+		} else {
+			n.Style = 0
+		}
+	default:
+		n.Style = 0
+	}
+	for _, c := range n.Content {
+		repBlockStyle(c)
+	}
 }
 
 func repSplits(s *Stats) repTable {
 	t := repTable{ID: "splits", Head: []string{"split", "samples", "share", "groups"}, Empty: "No splits."}
 	total := 0
-	for _, sp := range s.Splits {
+	for _, sp := range s.PerSplit {
 		total += sp.Samples
 	}
-	for i, sp := range s.Splits {
-		p := fmt.Sprintf("splits.%d.", i)
+	for i, sp := range s.PerSplit {
+		p := fmt.Sprintf("per_split.%d.", i)
 		share := "–"
 		if total > 0 {
 			share = repFixed(100*float64(sp.Samples)/float64(total), 1) + " %"
@@ -396,12 +456,12 @@ func repSplits(s *Stats) repTable {
 			repInt(p+"groups", int64(sp.Groups)),
 		})
 	}
-	if len(s.Splits) > 1 {
+	if len(s.PerSplit) > 1 {
 		groups := 0
-		for _, sp := range s.Splits {
+		for _, sp := range s.PerSplit {
 			groups += sp.Groups
 		}
-		t.Foot = []repCell{repPlain("all"), repPlainNum(repGrouped(int64(s.Records))), repPlainNum("100.0 %"), repPlainNum(repGrouped(int64(groups)))}
+		t.Foot = []repCell{repPlain("all"), repPlainNum(repGrouped(int64(s.Samples))), repPlainNum("100.0 %"), repPlainNum(repGrouped(int64(groups)))}
 	}
 	return t
 }
@@ -430,11 +490,11 @@ func repStrataLabels(st manifest.SplitTable) ([]string, string) {
 }
 
 func repStrata(s *Stats) (repTable, string) {
-	st := s.Strata
+	st := s.Splits
 	t := repTable{ID: "strata", Head: []string{"stratum", "groups"}, Empty: "One stratum: the split was not stratified."}
 	t.Head = append(t.Head, st.Names...)
 	for i, r := range st.Strata {
-		p := fmt.Sprintf("strata.strata.%d.", i)
+		p := fmt.Sprintf("splits.strata.%d.", i)
 		row := []repCell{repText(p+"key", r.Key), repInt(p+"groups", int64(r.Groups))}
 		for _, n := range st.Names {
 			row = append(row, repInt(p+"splits."+n, int64(r.Splits[n])))
@@ -548,8 +608,8 @@ func repClasses(s *Stats, d *manifest.Dataset) repTable {
 func repObjectsBySplit(s *Stats, d *manifest.Dataset) repTable {
 	colors := repClassColors(d)
 	t := repTable{ID: "objects-by-split", Empty: "No objects.", Head: []string{"class", "all"}}
-	splits := make([]string, len(s.Splits))
-	for i, sp := range s.Splits {
+	splits := make([]string, len(s.PerSplit))
+	for i, sp := range s.PerSplit {
 		splits[i] = sp.Name
 	}
 	t.Head = append(t.Head, splits...)
@@ -617,10 +677,13 @@ func repPerSample(s *Stats, d *manifest.Dataset) repTable {
 }
 
 func repTargets(s *Stats) repTable {
-	t := repTable{ID: "targets", Empty: "No targets.", Head: []string{"target", "numeric", "count", "min", "max", "mean", "std", "distinct"}}
+	t := repTable{ID: "targets", Empty: "No targets.", Head: []string{"target", "type", "count", "min", "max", "mean", "std", "distinct"}}
 	for i, g := range s.Targets {
 		p := fmt.Sprintf("targets.%d.", i)
-		row := []repCell{repText(p+"name", g.Name), repBool(p+"numeric", g.Numeric), repInt(p+"count", int64(g.Count))}
+		// "numeric" or "text", as `trueset stats` says it; data-value is
+		// the JSON's boolean "numeric".
+		kind := repCell{Stat: p + "numeric", Value: strconv.FormatBool(g.Numeric), Text: g.Type()}
+		row := []repCell{repText(p+"name", g.Name), kind, repInt(p+"count", int64(g.Count))}
 		if g.Numeric {
 			row = append(row, repNumWhole(p+"min", g.Min, 4), repNumWhole(p+"max", g.Max, 4), repNum(p+"mean", g.Mean, 4), repNum(p+"std", g.Std, 4))
 		} else {
@@ -686,6 +749,13 @@ var repSplitColors = []color.RGBA{
 	{86, 180, 233, 255},  // sky blue
 	{213, 94, 0, 255},    // vermillion
 	{240, 228, 66, 255},  // yellow
+}
+
+// repBarOutline is the dark edge of every bar, so a bar in a near-white
+// class color (a die, paper) or a light split color still shows on the
+// white chart.
+func repBarOutline() draw.LineStyle {
+	return draw.LineStyle{Color: color.Gray{40}, Width: vg.Points(0.75)}
 }
 
 // repFont is Liberation Sans (embedded in gonum/plot) at size points.
@@ -769,7 +839,7 @@ func repPNGURI(img image.Image) (template.URL, error) {
 // repStrataChart is a grouped bar chart: per stratum, one bar per split, of
 // the groups dealt to it.
 func repStrataChart(s *Stats) (repChart, bool, error) {
-	st := s.Strata
+	st := s.Splits
 	if len(st.Strata) == 0 || len(st.Names) == 0 {
 		return repChart{}, false, nil
 	}
@@ -799,7 +869,7 @@ func repStrataChart(s *Stats) (repChart, bool, error) {
 			return repChart{}, false, err
 		}
 		b.Color = repSplitColors[j%len(repSplitColors)]
-		b.LineStyle.Width = 0
+		b.LineStyle = repBarOutline()
 		b.Offset = vg.Length(float64(j)-float64(k-1)/2) * w
 		p.Add(b)
 		p.Legend.Add(name, b)
@@ -842,8 +912,7 @@ func repClassBars(p *plot.Plot, width int, classes []ClassStats, colors map[int]
 			col = color.RGBA{128, 128, 128, 255}
 		}
 		b.Color = col
-		b.LineStyle.Width = vg.Points(0.5)
-		b.LineStyle.Color = color.Gray{60}
+		b.LineStyle = repBarOutline()
 		b.XMin = float64(i)
 		p.Add(b)
 		xys[i] = plotter.XY{X: float64(i), Y: value(c)}
@@ -1044,9 +1113,9 @@ ul.ids { columns: 4 12ch; font-family: ui-monospace, "DejaVu Sans Mono", monospa
 <section id="recipe-section">
 <h2 id="recipe">Recipe</h2>
 {{if .RecipeNote}}<p class="note">{{.RecipeNote}}</p>{{end}}
-{{if .Recipe}}<pre id="recipe-json">{{.Recipe}}</pre>{{end}}
+{{if .Recipe}}<pre id="recipe-yaml">{{.Recipe}}</pre>{{end}}
 {{if .Plan}}<h3>Augmentation plan</h3>
-<pre id="plan-json">{{.Plan}}</pre>{{end}}
+<pre id="plan-yaml">{{.Plan}}</pre>{{end}}
 </section>
 </main>
 </body>

@@ -13,10 +13,13 @@ import (
 	"io"
 	"os"
 	"path/filepath"
+	"reflect"
 	"regexp"
 	"strconv"
 	"strings"
 	"testing"
+
+	"go.yaml.in/yaml/v3"
 
 	"github.com/trueset/trueset/manifest"
 )
@@ -25,7 +28,7 @@ import (
 // measured) with awkward text in it: markup in a class name and in the recipe.
 func reportFixture() (*Stats, *manifest.Dataset) {
 	d := &manifest.Dataset{
-		Format: "trueset-dataset/1", ToolVersion: "0.1.0", Seed: 7, Count: 10, Width: 32, Height: 32, Mode: "rgb",
+		Format: manifest.Format, ToolVersion: "0.1.0", Seed: 7, Count: 10, Width: 32, Height: 32, Mode: "rgb",
 		Recipe:       json.RawMessage(`{"name":"demo <b>set</b>","description":"</pre><script>alert(1)</script> & more","canvas":{"width":32,"height":32}}`),
 		RecipeSHA256: strings.Repeat("ab", 32), ManifestSHA256: strings.Repeat("cd", 32),
 		Classes: []manifest.Class{{ID: 0, Name: "background"}, {ID: 1, Name: "disc", Color: [3]uint8{230, 25, 75}}, {ID: 2, Name: `<i>"tri"</i>`, Color: [3]uint8{0, 130, 200}}},
@@ -40,9 +43,9 @@ func reportFixture() (*Stats, *manifest.Dataset) {
 		Thin: []string{"n=0"},
 	}
 	s := &Stats{
-		Dataset: "/data/demo", Records: 10,
-		Splits:        []SplitStats{{"train", 6, 6}, {"val", 2, 2}, {"test", 2, 2}},
-		Strata:        st,
+		Dir: "/data/demo", Samples: 10,
+		PerSplit:      []SplitStats{{"train", 6, 6}, {"val", 2, 2}, {"test", 2, 2}},
+		Splits:        st,
 		LabeledPixels: 6144, IgnorePixels: 12,
 		Pixels: PixelStats{Split: "train", Channels: 3, Names: []string{"R", "G", "B"}, Estimator: "population", Count: 6144, Mean: []float64{61.23456789, 0.1 + 0.2, 200}, Std: []float64{12.5, 1e-3, 33.333333333333336}},
 		Classes: []ClassStats{
@@ -240,12 +243,12 @@ func TestReportStatCellsEqualStats(t *testing.T) {
 	cells := parseReportCells(t, page)
 	checkReportStats(t, cells, s)
 	// The figures a training run needs are all there.
-	want := []string{"dataset", "records", "pixels.mean.0", "pixels.mean.1", "pixels.mean.2", "pixels.std.0", "pixels.std.1", "pixels.std.2",
+	want := []string{"dir", "samples", "pixels.mean.0", "pixels.mean.1", "pixels.mean.2", "pixels.std.0", "pixels.std.1", "pixels.std.2",
 		"leakage.threshold", "leakage.method", "leakage.pairs.len", "leakage.pairs.0.distance", "leakage.groups_spanning_splits.len",
-		"strata.strata.1.splits.val", "classes.1.per_sample.2", "classes.2.objects_by_split.test", "labeled_pixels", "ignore_pixels",
+		"splits.strata.1.splits.val", "classes.1.per_sample.2", "classes.2.objects_by_split.test", "labeled_pixels", "ignore_pixels",
 		"pixels.names.2", "leakage.pairs_found", "leakage.images", "leakage.pairs.0.identical", "leakage.pairs.0.mean_abs_diff", "leakage.candidates", "leakage.confirm"}
-	for i := range s.Splits {
-		want = append(want, fmt.Sprintf("splits.%d.name", i), fmt.Sprintf("splits.%d.samples", i), fmt.Sprintf("splits.%d.groups", i))
+	for i := range s.PerSplit {
+		want = append(want, fmt.Sprintf("per_split.%d.name", i), fmt.Sprintf("per_split.%d.samples", i), fmt.Sprintf("per_split.%d.groups", i))
 	}
 	for i := range s.Classes {
 		for _, f := range []string{"name", "pixels", "frequency", "weight_inverse", "weight_median", "objects", "area_median"} {
@@ -289,8 +292,10 @@ func TestReportSelfContainedAndEscaped(t *testing.T) {
 	if !strings.Contains(html, `&lt;/pre&gt;&lt;script&gt;alert(1)&lt;/script&gt; &amp; more`) {
 		t.Error("recipe not HTML-escaped in the <pre>")
 	}
-	if !strings.Contains(html, `<pre id="recipe-json">{`+"\n"+`  &#34;name&#34;`) {
-		t.Error("recipe not pretty-printed")
+	// The recipe as YAML, block style, in the stored key order: not JSON.
+	if !strings.Contains(html, `<pre id="recipe-yaml">name: demo &lt;b&gt;set&lt;/b&gt;`+"\n") ||
+		!strings.Contains(html, "canvas:\n  width: 32\n  height: 32</pre>") {
+		t.Error("recipe not shown as YAML")
 	}
 	if !strings.Contains(html, "caption &lt;x&gt;") || !strings.Contains(html, "no &lt;tri&gt; objects") {
 		t.Error("caption or warning not escaped")
@@ -354,7 +359,7 @@ func TestReportNoSheetLeavesSlotAndIsDeterministic(t *testing.T) {
 }
 
 func TestReportEmptyStats(t *testing.T) {
-	s := &Stats{Dataset: "x"}
+	s := &Stats{Dir: "x"}
 	b, err := RenderReport(s, ReportOptions{Dataset: &manifest.Dataset{}})
 	if err != nil {
 		t.Fatal(err)
@@ -401,9 +406,9 @@ func TestReportNumberText(t *testing.T) {
 
 func TestReportManyStrataAndLongNames(t *testing.T) {
 	s, d := reportFixture()
-	s.Strata.Strata = nil
+	s.Splits.Strata = nil
 	for i := range 40 {
-		s.Strata.Strata = append(s.Strata.Strata, manifest.Stratum{Key: fmt.Sprintf("n=%d", i), Groups: 10 + i,
+		s.Splits.Strata = append(s.Splits.Strata, manifest.Stratum{Key: fmt.Sprintf("n=%d", i), Groups: 10 + i,
 			Splits: map[string]int{"train": 8 + i, "val": 1 + i/10, "test": 1 + i/7}})
 	}
 	for i := range 9 {
@@ -424,5 +429,168 @@ func TestReportManyStrataAndLongNames(t *testing.T) {
 		if w, _ := strconv.Atoi(m[1]); w > 1100 {
 			t.Errorf("chart %s CSS px wide, more than the page", m[1])
 		}
+	}
+}
+
+// chartImage decodes a chart's data: URI.
+func chartImage(t *testing.T, c repChart) image.Image {
+	t.Helper()
+	b64, ok := strings.CutPrefix(string(c.URI), "data:image/png;base64,")
+	if !ok {
+		t.Fatalf("chart URI %.40q", c.URI)
+	}
+	raw, err := base64.StdEncoding.DecodeString(b64)
+	if err != nil {
+		t.Fatal(err)
+	}
+	m, err := png.Decode(bytes.NewReader(raw))
+	if err != nil {
+		t.Fatal(err)
+	}
+	return m
+}
+
+// outlined reports whether a bar of color want in m has a dark edge
+// (BT.601 luma < 80, darker than any bar color) within 4 pixels outside it
+// on the left, right and top, halfway along each side. The bar is found as
+// the first run of at least 10 pixels of the color in a row (anti-aliased
+// text leaves stray pixels of light grays), extended up and down while its
+// middle pixel keeps the color.
+func outlined(t *testing.T, m image.Image, want color.RGBA) bool {
+	t.Helper()
+	b := m.Bounds()
+	is := func(x, y int) bool {
+		return image.Pt(x, y).In(b) && color.RGBAModel.Convert(m.At(x, y)).(color.RGBA) == want
+	}
+	box := image.Rectangle{}
+	for y := b.Min.Y; y < b.Max.Y && box.Empty(); y++ {
+		run := 0
+		for x := b.Min.X; x <= b.Max.X; x++ {
+			if is(x, y) {
+				run++
+				continue
+			}
+			if run >= 10 {
+				box = image.Rect(x-run, y, x, y+1)
+				break
+			}
+			run = 0
+		}
+	}
+	if box.Empty() {
+		t.Fatalf("no bar of color %v in the chart", want)
+	}
+	midX := (box.Min.X + box.Max.X) / 2
+	for is(midX, box.Min.Y-1) {
+		box.Min.Y--
+	}
+	for is(midX, box.Max.Y) {
+		box.Max.Y++
+	}
+	if box.Dy() < 6 {
+		t.Fatalf("bar of color %v is %v", want, box)
+	}
+	dark := func(x, y int) bool { return color.GrayModel.Convert(m.At(x, y)).(color.Gray).Y < 80 }
+	side := func(pts func(d int) (int, int)) bool {
+		for d := 1; d <= 4; d++ {
+			if dark(pts(d)) {
+				return true
+			}
+		}
+		return false
+	}
+	midY := (box.Min.Y + box.Max.Y) / 2
+	return side(func(d int) (int, int) { return box.Min.X - d, midY }) &&
+		side(func(d int) (int, int) { return box.Max.X - 1 + d, midY }) &&
+		side(func(d int) (int, int) { return midX, box.Min.Y - d })
+}
+
+// A class drawn in near-white (a die, paper: 250, 250, 250) on the white
+// chart is still seen: every bar has a dark outline. So do the strata
+// chart's bars, light split colors included.
+func TestReportBarsOutlined(t *testing.T) {
+	s, d := reportFixture()
+	white := color.RGBA{250, 250, 250, 255}
+	d.Classes[1].Color = [3]uint8{white.R, white.G, white.B}
+	c, ok, err := repFrequencyChart(s, repClassColors(d))
+	if err != nil || !ok {
+		t.Fatal(ok, err)
+	}
+	if !outlined(t, chartImage(t, c), white) {
+		t.Error("the near-white class bar of the frequency chart has no dark outline")
+	}
+	c, ok, err = repObjectsChart(s, repClassColors(d))
+	if err != nil || !ok {
+		t.Fatal(ok, err)
+	}
+	if !outlined(t, chartImage(t, c), white) {
+		t.Error("the near-white class bar of the objects chart has no dark outline")
+	}
+	c, ok, err = repStrataChart(s)
+	if err != nil || !ok {
+		t.Fatal(ok, err)
+	}
+	if !outlined(t, chartImage(t, c), repSplitColors[1]) {
+		t.Error("the strata chart's bars have no dark outline")
+	}
+}
+
+// A dataset without a recipe (an augmented plain folder) shows no "Recipe
+// SHA-256" row at all, not an empty one, and says it has no recipe; one
+// with a recipe shows the row with the hash.
+func TestReportNoRecipeNoHashRow(t *testing.T) {
+	s, d := reportFixture()
+	d.Recipe, d.RecipeSHA256 = nil, ""
+	d.Augment = &manifest.AugmentInfo{Source: "plain", Copies: 2, SourceSamples: 5, Seed: 1,
+		Plan: json.RawMessage(`{"geometry":{"sampling":"bilinear","moves":[{"do":"flip","axis":"x","chance":0.5}]},"pixels":[]}`)}
+	page, err := RenderReport(s, ReportOptions{Dataset: d})
+	if err != nil {
+		t.Fatal(err)
+	}
+	html := string(page)
+	if strings.Contains(html, "Recipe SHA-256") {
+		t.Error("a dataset without a recipe has a Recipe SHA-256 row")
+	}
+	if !strings.Contains(html, "dataset.json records no recipe.") || strings.Contains(html, `id="recipe-yaml"`) {
+		t.Error("no note that the dataset has no recipe")
+	}
+	if !strings.Contains(html, "<pre id=\"plan-yaml\">geometry:\n  sampling: bilinear\n  moves:\n    - do: flip\n") {
+		t.Errorf("plan not shown as YAML:\n%s", html[strings.Index(html, "plan-yaml")-10:])
+	}
+	s, d = reportFixture()
+	page, _ = RenderReport(s, ReportOptions{Dataset: d})
+	if !strings.Contains(string(page), "<dt>Recipe SHA-256</dt><dd title=\""+d.RecipeSHA256+"\">abababababababab…</dd>") {
+		t.Error("a dataset with a recipe lacks its Recipe SHA-256 row")
+	}
+}
+
+// The recipe converts to YAML that reads back to the same values as the
+// stored JSON, keeps strings that look like other types quoted, and puts
+// short number lists on one line (not one number per line).
+func TestReportRecipeYAMLRoundTrip(t *testing.T) {
+	raw := json.RawMessage(`{"name":"x","flag":"yes","n":"1","empty":"","ratio":0.25,"color":[[1,2,3],[4,5,6]],"box":[0,0,64,64],"nested":{"list":[{"a":1}],"none":null,"t":true}}`)
+	y, note := repYAML(raw, "recipe")
+	if note != "" {
+		t.Fatal(note)
+	}
+	var back any
+	if err := yaml.Unmarshal([]byte(y), &back); err != nil {
+		t.Fatalf("%v\n%s", err, y)
+	}
+	var want any
+	_ = json.Unmarshal(raw, &want)
+	bj, _ := json.Marshal(back)
+	var got any
+	_ = json.Unmarshal(bj, &got)
+	if !reflect.DeepEqual(got, want) {
+		t.Errorf("YAML reads back as %s, want %s\n%s", bj, raw, y)
+	}
+	for _, line := range []string{"box: [0, 0, 64, 64]", "  - [1, 2, 3]", "name: x"} {
+		if !strings.Contains(y, line+"\n") {
+			t.Errorf("YAML lacks the line %q:\n%s", line, y)
+		}
+	}
+	if regexp.MustCompile(`(?m)^\s*-?\s*\d+,?$`).MatchString(y) {
+		t.Errorf("a number on a line of its own:\n%s", y)
 	}
 }

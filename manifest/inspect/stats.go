@@ -762,29 +762,29 @@ func (a *accumulator) add(s *sample) {
 }
 
 func (a *accumulator) finish(dir string) *Stats {
-	st := &Stats{Dataset: dir, Records: a.records, Strata: a.d.Splits, Warnings: []string{}}
+	st := &Stats{Dir: dir, Samples: a.records, Splits: a.d.Splits, Warnings: []string{}}
 	warn := func(format string, args ...any) { st.Warnings = append(st.Warnings, fmt.Sprintf(format, args...)) }
 
 	for i := range a.splits {
 		a.splits[i].Groups = len(a.groups[i])
 	}
-	st.Splits = a.splits
-	if st.Splits == nil {
-		st.Splits = []SplitStats{}
+	st.PerSplit = a.splits
+	if st.PerSplit == nil {
+		st.PerSplit = []SplitStats{}
 	}
-	for _, s := range st.Splits {
+	for _, s := range st.PerSplit {
 		if want, ok := a.d.Splits.Counts[s.Name]; ok && want != s.Samples {
-			warn("split %s has %d records, dataset.json says %d", s.Name, s.Samples, want)
+			warn("split %s has %s, dataset.json says %d", s.Name, Plural(s.Samples, "sample"), want)
 		}
 		if _, named := a.d.Splits.Counts[s.Name]; !named && len(a.d.Splits.Names) > 0 {
-			warn("split %s (%d records) is not one of dataset.json's splits %v", s.Name, s.Samples, a.d.Splits.Names)
+			warn("split %s (%s) is not one of dataset.json's splits %s", s.Name, Plural(s.Samples, "sample"), strings.Join(a.d.Splits.Names, ", "))
 		}
 		if s.Samples == 0 {
-			warn("split %s has no records", s.Name)
+			warn("split %s has no samples", s.Name)
 		}
 	}
 	if a.images == 0 {
-		warn("split %s has no records: no normalization, class weights or target scales", a.o.Split)
+		warn("split %s has no samples: no normalization, class weights or target scales", a.o.Split)
 	}
 
 	// Normalization.
@@ -800,7 +800,7 @@ func (a *accumulator) finish(dir string) *Stats {
 		st.Pixels.Mean[c] = w.Mean
 		st.Pixels.Std[c] = w.Std()
 		if w.N > 0 && w.Std() == 0 {
-			warn("channel %s is constant (%g) in the %s split: (x − mean) / std divides by 0", st.Pixels.Names[c], w.Mean, a.o.Split)
+			warn("channel %s is constant (%s) in the %s split: (x − mean) / std divides by 0", st.Pixels.Names[c], Figure(w.Mean), a.o.Split)
 		}
 	}
 
@@ -816,7 +816,7 @@ func (a *accumulator) finish(dir string) *Stats {
 	var unknown []string
 	for v, n := range a.classPix {
 		if _, ok := a.classIdx[v]; !ok && n > 0 && v != manifest.IgnoreID {
-			unknown = append(unknown, fmt.Sprintf("%d (%d pixels)", v, n))
+			unknown = append(unknown, fmt.Sprintf("%d (%s)", v, Plural(int(n), "pixel")))
 			a.class(v, "")
 		}
 	}
@@ -904,12 +904,15 @@ func (a *accumulator) finish(dir string) *Stats {
 			warn("target %s mixes text (%d) and numbers (%d) in the %s split", t.name, t.texts, t.count-t.texts, a.o.Split)
 		}
 		if a.images > 0 && t.count < a.images {
-			warn("target %s is missing in %d of %d %s samples", t.name, a.images-t.count, a.images, a.o.Split)
+			warn("target %s is missing in %d of %s", t.name, a.images-t.count, Plural(a.images, a.o.Split+" sample"))
 		}
 		if t.count > 0 && len(t.distinct) == 1 {
 			var only string
 			for v := range t.distinct {
 				only = v
+			}
+			if t.texts == 0 {
+				only = Figure(t.min) // the number, rounded for reading
 			}
 			warn("target %s is constant (%s) in the %s split: nothing to learn, and a z-score of it divides by 0", t.name, only, a.o.Split)
 		}
@@ -952,8 +955,8 @@ func (a *accumulator) finish(dir string) *Stats {
 				identical++
 			}
 		}
-		warn("%d near-duplicate image pairs across splits (dHash distance ≤ %d, confirmed: %s; %d of those listed identical by SHA-256), e.g. %s (%s) and %s (%s) at distance %d: look at the pairs before trusting the held-out splits",
-			found, a.o.Threshold, st.Leakage.Confirm, identical, p.A, p.SplitA, p.B, p.SplitB, p.Distance)
+		warn("%s across splits (dHash distance ≤ %d, confirmed: %s; %d of those listed identical by SHA-256), e.g. %s (%s) and %s (%s) at distance %d: look at the pairs before trusting the held-out splits",
+			Plural(found, "near-duplicate image pair"), a.o.Threshold, st.Leakage.Confirm, identical, p.A, p.SplitA, p.B, p.SplitB, p.Distance)
 	}
 	if n := len(st.Leakage.GroupsSpanned); n > 0 {
 		list := st.Leakage.GroupsSpanned
@@ -961,7 +964,11 @@ func (a *accumulator) finish(dir string) *Stats {
 		if n > 10 {
 			list, more = list[:10], fmt.Sprintf(" and %d more", n-10)
 		}
-		warn("%d groups span splits (copies of one source in more than one split): %s%s", n, strings.Join(list, ", "), more)
+		verb := "span"
+		if n == 1 {
+			verb = "spans"
+		}
+		warn("%s %s splits (copies of one source in more than one split): %s%s", Plural(n, "group"), verb, strings.Join(list, ", "), more)
 	}
 	return st
 }

@@ -8,6 +8,7 @@ import (
 	"math/rand/v2"
 	"os"
 	"path/filepath"
+	"regexp"
 	"slices"
 	"strings"
 	"testing"
@@ -403,7 +404,7 @@ func shifted(m *image.Gray, dx int) *image.Gray {
 // unrelated images differ in about half the 64 bits (> 10 on average). A
 // 1-pixel shift of a 64-pixel image moves every thumbnail cell by 1/7 of a
 // cell: the typical (median) copy stays within 4 bits, but cells that
-// nearly tie their neighbour flip, and the worst copies here reach about
+// nearly tie their neighbor flip, and the worst copies here reach about
 // 12 bits — still well short of unrelated images. Synthetic blob scenes
 // (invented test data).
 func TestDHashSynthetic(t *testing.T) {
@@ -538,5 +539,90 @@ func TestLeakMultiIndexEqualsAllPairs(t *testing.T) {
 				}
 			}
 		}
+	}
+}
+
+// Figures in text are rounded to 4 decimals, trailing zeros dropped (common
+// practice for reading; the JSON keeps the exact value); plurals agree
+// with their count.
+func TestStatsFigureAndPlural(t *testing.T) {
+	for _, c := range []struct {
+		f    float64
+		want string
+	}{{32.62767203840939, "32.6277"}, {0.1 + 0.2, "0.3"}, {12, "12"}, {-0.00001, "0"}, {41.665, "41.665"}, {1e6 + 0.5, "1000000.5"}} {
+		if got := Figure(c.f); got != c.want {
+			t.Errorf("Figure(%v) = %q, want %q", c.f, got, c.want)
+		}
+	}
+	for _, c := range []struct {
+		n    int
+		noun string
+		want string
+	}{{0, "candidate", "0 candidates"}, {1, "candidate", "1 candidate"}, {2, "pair", "2 pairs"}, {1, "train sample", "1 train sample"}} {
+		if got := Plural(c.n, c.noun); got != c.want {
+			t.Errorf("Plural(%d, %q) = %q, want %q", c.n, c.noun, got, c.want)
+		}
+	}
+	if got := Plural(3, "stratum", "strata"); got != "3 strata" {
+		t.Errorf("Plural(3, stratum, strata) = %q", got)
+	}
+	for _, c := range []struct {
+		ts   TargetStats
+		want string
+	}{{TargetStats{Count: 3, Numeric: true}, "numeric"}, {TargetStats{Count: 3}, "text"}, {TargetStats{}, "none"}} {
+		if got := c.ts.Type(); got != c.want {
+			t.Errorf("%+v.Type() = %q, want %q", c.ts, got, c.want)
+		}
+	}
+}
+
+// A gray dataset whose one train image is a flat color: its luma (ITU-R
+// BT.601 through color.Gray16Model, /257) is not a whole number, and the
+// constant-channel and constant-target warnings print it rounded, not as
+// float noise; "1 train sample" is singular.
+func TestStatsWarningsRoundFigures(t *testing.T) {
+	dir := t.TempDir()
+	classes := []manifest.Class{{ID: 0, Name: "background"}}
+	img := image.NewRGBA(image.Rect(0, 0, 4, 4))
+	for i := 0; i < len(img.Pix); i += 4 {
+		img.Pix[i], img.Pix[i+1], img.Pix[i+2], img.Pix[i+3] = 10, 200, 31, 255
+	}
+	mask := image.NewPaletted(img.Rect, manifest.Palette(classes))
+	writePNG(t, filepath.Join(dir, "images/a.png"), img)
+	writePNG(t, filepath.Join(dir, "masks/a.png"), mask)
+	writePNG(t, filepath.Join(dir, "instances/a.png"), image.NewGray16(img.Rect))
+	rec := &manifest.Record{ID: "a", Split: "train", Group: "a", Stratum: "all", Width: 4, Height: 4,
+		Image: "images/a.png", Mask: "masks/a.png", Instances: "instances/a.png",
+		Targets: map[string]manifest.Value{"size": manifest.Number(32.62767203840939)}}
+	line, err := manifest.MarshalRecord(rec)
+	if err != nil {
+		t.Fatal(err)
+	}
+	d := &manifest.Dataset{Format: manifest.Format, Count: 1, Width: 4, Height: 4, Mode: "gray", Classes: classes,
+		Targets: []string{"size", "absent"}, Splits: manifest.SplitTable{Names: []string{"train"}, Counts: map[string]int{"train": 1}}}
+	db, _ := manifest.MarshalDataset(d)
+	if err := os.WriteFile(filepath.Join(dir, manifest.DatasetFile), db, 0o644); err != nil {
+		t.Fatal(err)
+	}
+	if err := os.WriteFile(filepath.Join(dir, manifest.ManifestFile), append(line, '\n'), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	st, err := Compute(dir, Options{Workers: 1})
+	if err != nil {
+		t.Fatal(err)
+	}
+	joined := strings.Join(st.Warnings, "\n")
+	luma := float64(color.Gray16Model.Convert(color.RGBA{10, 200, 31, 255}).(color.Gray16).Y) / 257
+	if luma == math.Trunc(luma) {
+		t.Fatalf("luma %v is whole: the test needs a fraction", luma)
+	}
+	for _, want := range []string{"channel gray is constant (" + Figure(luma) + ")", "target size is constant (32.6277)",
+		"target absent is missing in 1 of 1 train sample\n"} {
+		if !strings.Contains(joined+"\n", want) {
+			t.Errorf("warnings lack %q:\n%s", want, joined)
+		}
+	}
+	if noise := regexp.MustCompile(`\d\.\d{5,}`).FindString(joined); noise != "" {
+		t.Errorf("warnings print %s unrounded:\n%s", noise, joined)
 	}
 }

@@ -1,18 +1,27 @@
 package inspect
 
-import "github.com/trueset/trueset/manifest"
+import (
+	"math"
+	"strconv"
+	"strings"
 
-// Stats is everything `trueset stats` reports; `--json` prints it as is.
+	"github.com/trueset/trueset/manifest"
+)
+
+// Stats is everything `trueset stats` reports; `--json` prints it as is
+// (after "command": "stats"). Its keys follow the --json summaries of the
+// other commands: "dir", "samples", and the split table under "splits" in
+// exactly dataset.json's shape (manifest.SplitTable).
 type Stats struct {
-	Dataset  string              `json:"dataset"`  // the folder
-	Records  int                 `json:"records"`  // samples in all
-	Splits   []SplitStats        `json:"splits"`   // in dataset.json's split order
-	Strata   manifest.SplitTable `json:"strata"`   // the strata × splits table from dataset.json
-	Pixels   PixelStats          `json:"pixels"`   // normalization, over the train split
-	Classes  []ClassStats        `json:"classes"`  // in class-id order, background included
-	Targets  []TargetStats       `json:"targets"`  // in dataset.json's target order
-	Leakage  Leakage             `json:"leakage"`  // near-duplicates across splits
-	Warnings []string            `json:"warnings"` // anything a user should look at
+	Dir      string              `json:"dir"`       // the dataset folder
+	Samples  int                 `json:"samples"`   // samples in all (manifest records)
+	Splits   manifest.SplitTable `json:"splits"`    // dataset.json's split table: names, ratios, counts, strata
+	PerSplit []SplitStats        `json:"per_split"` // samples and groups counted in the manifest, in split order
+	Pixels   PixelStats          `json:"pixels"`    // normalization, over the train split
+	Classes  []ClassStats        `json:"classes"`   // in class-id order, background included
+	Targets  []TargetStats       `json:"targets"`   // in dataset.json's target order
+	Leakage  Leakage             `json:"leakage"`   // near-duplicates across splits
+	Warnings []string            `json:"warnings"`  // anything a user should look at
 
 	// LabeledPixels and IgnorePixels count the mask pixels of the train
 	// split with a class id and with the ignore id 255.
@@ -20,7 +29,7 @@ type Stats struct {
 	IgnorePixels  int64 `json:"ignore_pixels"`
 }
 
-// SplitStats counts one split.
+// SplitStats counts one split's samples and groups in the manifest.
 type SplitStats struct {
 	Name    string `json:"name"`
 	Samples int    `json:"samples"`
@@ -79,6 +88,49 @@ type TargetStats struct {
 	Distinct int     `json:"distinct"` // distinct values (text targets)
 
 	Split string `json:"split"`
+}
+
+// Type says how a target's values read, in the words `trueset stats` and
+// the report both use: "numeric" when every value is a number (Numeric),
+// "text" when any is text, "none" when no sample of the split carries it.
+// (Not "number": that is a recipe target kind.)
+func (t TargetStats) Type() string {
+	switch {
+	case t.Count == 0:
+		return "none"
+	case t.Numeric:
+		return "numeric"
+	}
+	return "text"
+}
+
+// Figure prints a measured value for reading: rounded to 4 decimals with
+// trailing zeros dropped ("32.6277", "0.5", "12"), never float noise such
+// as 32.62767203840939. JSON keeps the exact value.
+func Figure(f float64) string {
+	if math.IsNaN(f) || math.IsInf(f, 0) {
+		return strconv.FormatFloat(f, 'f', -1, 64)
+	}
+	s := strconv.FormatFloat(f, 'f', 4, 64)
+	if strings.Contains(s, ".") {
+		s = strings.TrimRight(strings.TrimRight(s, "0"), ".")
+	}
+	if s == "-0" {
+		s = "0"
+	}
+	return s
+}
+
+// Plural is "1 pair", "2 pairs", "0 pairs": n and the noun, with "s" unless
+// n is 1 (or the plural form given, for nouns such as "stratum").
+func Plural(n int, noun string, plural ...string) string {
+	if n == 1 {
+		return strconv.Itoa(n) + " " + noun
+	}
+	if len(plural) > 0 {
+		return strconv.Itoa(n) + " " + plural[0]
+	}
+	return strconv.Itoa(n) + " " + noun + "s"
 }
 
 // Leakage reports identical or near-identical images in different splits —
