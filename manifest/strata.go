@@ -44,9 +44,62 @@ func StratumOf(r *Record, key string) (string, error) {
 	}
 	v, ok := r.Targets[key]
 	if !ok {
-		return "", fmt.Errorf("record %s has no target %q to stratify by", r.ID, key)
+		return "", &StratifyError{Key: key, Msg: fmt.Sprintf("record %s has no target %q to stratify by", r.ID, key)}
 	}
 	return key + "=" + v.String(), nil
+}
+
+// StratifyError is a stratification key that names no class or target of
+// the dataset: the caller's mistake (the command line exits 2).
+type StratifyError struct {
+	Key string
+	Msg string
+}
+
+func (e *StratifyError) Error() string { return fmt.Sprintf("stratify %q: %s", e.Key, e.Msg) }
+
+// CheckStratify tells whether key names something a dataset with these
+// classes (background, id 0, left out by the caller or not) and targets
+// has: "", "classes", class:NAME for a known class, or a target name. Every
+// command checks --stratify with it, so the message and exit code agree.
+func CheckStratify(key string, classes, targets []string) error {
+	switch {
+	case key == "" || key == "classes":
+		return nil
+	case strings.HasPrefix(key, "class:"):
+		name := strings.TrimPrefix(key, "class:")
+		for _, c := range classes {
+			if c == name {
+				return nil
+			}
+		}
+		return &StratifyError{Key: key, Msg: fmt.Sprintf("no class %q; the classes are %s", name, listOrNone(classes))}
+	}
+	for _, t := range targets {
+		if t == key {
+			return nil
+		}
+	}
+	return &StratifyError{Key: key, Msg: fmt.Sprintf("no target %q; want a target name (%s), class:NAME (NAME one of %s) or classes", key, listOrNone(targets), listOrNone(classes))}
+}
+
+// ClassNames lists the names of the classes in a class table, background
+// (id 0) left out.
+func ClassNames(classes []Class) []string {
+	var out []string
+	for _, c := range classes {
+		if c.ID != 0 {
+			out = append(out, c.Name)
+		}
+	}
+	return out
+}
+
+func listOrNone(names []string) string {
+	if len(names) == 0 {
+		return "none"
+	}
+	return strings.Join(names, ", ")
 }
 
 // Allocation is the outcome of a stratified split.

@@ -2,26 +2,66 @@ package manifest
 
 import (
 	"bytes"
+	"errors"
 	"fmt"
 	"image"
 	"image/png"
+	"io/fs"
 	"os"
 	"path/filepath"
 	"slices"
 	"sort"
+	"strings"
 )
 
-// Problem is one discrepancy found by Verify.
+// Problem is one discrepancy found by Verify: the record (ID, "" for
+// dataset-wide problems), the file it is in (relative to the dataset folder:
+// a sample file, dataset.json or manifest.jsonl), the kind of check that
+// failed (one of ProblemKinds) and a message.
 type Problem struct {
-	ID  string // record id, "" for dataset-wide problems
-	Msg string
+	ID    string
+	File  string
+	Check string
+	Msg   string
 }
+
+// The kinds of check a Problem names (its Check). They are stable: scripts may match
+// them.
+const (
+	KindIncomplete  = "incomplete"   // dataset.json is missing: the folder is not a complete dataset
+	KindFormat      = "format"       // a file cannot be parsed: dataset.json, manifest.jsonl, a PNG, or a PNG of the wrong kind
+	KindMissing     = "missing"      // a file a record names does not exist or cannot be read
+	KindPath        = "path"         // a record path leaves the dataset folder
+	KindSHA256      = "sha256"       // a file's SHA-256 differs from the one recorded
+	KindSize        = "size"         // an image's width and height differ from the record's, or exceed verify's budget
+	KindInstance    = "instance"     // the record's objects and the instance mask's ids disagree
+	KindBox         = "box"          // an object's box differs from its mask pixels' box
+	KindArea        = "area"         // an object's area differs from its mask pixel count
+	KindClassPixels = "class-pixels" // semantic mask pixels disagree with their instance's class
+	KindTarget      = "target"       // a count target differs from the objects in the instance mask
+	KindDuplicateID = "duplicate-id" // two records share an id
+	KindSplit       = "split"        // a record's split is unknown, or not the one the seeded allocation gives
+	KindSplitTable  = "split-table"  // record counts, split counts or the strata table disagree with dataset.json
+	KindGroupLeak   = "group-leak"   // one group's records are in more than one split
+)
+
+// ProblemKinds lists every kind of check, in the order above.
+var ProblemKinds = []string{KindIncomplete, KindFormat, KindMissing, KindPath, KindSHA256, KindSize, KindInstance,
+	KindBox, KindArea, KindClassPixels, KindTarget, KindDuplicateID, KindSplit, KindSplitTable, KindGroupLeak}
 
 func (p Problem) String() string {
 	if p.ID == "" {
 		return p.Msg
 	}
 	return "record " + p.ID + ": " + p.Msg
+}
+
+// Plural returns one when n is 1, else many: "1 problem", "2 problems".
+func Plural(n int, one, many string) string {
+	if n == 1 {
+		return one
+	}
+	return many
 }
 
 // Verify checks a dataset folder and calls report for every discrepancy:
@@ -35,17 +75,21 @@ func (p Problem) String() string {
 func Verify(dir string, report func(Problem)) (int, error) {
 	d, err := ReadDataset(dir)
 	if err != nil {
-		report(Problem{Msg: err.Error()})
+		check := KindFormat
+		if _, serr := os.Stat(filepath.Join(dir, DatasetFile)); errors.Is(serr, fs.ErrNotExist) {
+			check = KindIncomplete
+		}
+		report(Problem{File: DatasetFile, Check: check, Msg: err.Error()})
 		return 0, nil
 	}
 	mpath := filepath.Join(dir, ManifestFile)
 	mb, err := os.ReadFile(mpath)
 	if err != nil {
-		report(Problem{Msg: fmt.Sprintf("%s: %v", mpath, err)})
+		report(Problem{File: ManifestFile, Check: KindMissing, Msg: fmt.Sprintf("%s: %v", mpath, err)})
 		return 0, nil
 	}
 	if got := SHA256Hex(mb); got != d.ManifestSHA256 {
-		report(Problem{Msg: fmt.Sprintf("%s: SHA-256 %s, dataset.json says %s", ManifestFile, got, d.ManifestSHA256)})
+		report(Problem{File: ManifestFile, Check: KindSHA256, Msg: fmt.Sprintf("%s: SHA-256 %s, dataset.json says %s", ManifestFile, got, d.ManifestSHA256)})
 	}
 	defs := d.TargetDefs
 	classByName := map[string]int{}
@@ -75,13 +119,15 @@ func Verify(dir string, report func(Problem)) (int, error) {
 	seen := map[string]bool{}
 	err = DecodeManifest(bytes.NewReader(mb), mpath, func(r *Record) error {
 		n++
-		bad := func(format string, args ...any) { report(Problem{ID: r.ID, Msg: fmt.Sprintf(format, args...)}) }
+		bad := func(check, file, format string, args ...any) {
+			report(Problem{ID: r.ID, File: file, Check: check, Msg: fmt.Sprintf(format, args...)})
+		}
 		if seen[r.ID] {
-			bad("duplicate id")
+			bad(KindDuplicateID, ManifestFile, "duplicate id")
 		}
 		seen[r.ID] = true
 		if !splitOK[r.Split] {
-			bad("split %q is not one of dataset.json's %v", r.Split, d.Splits.Names)
+			bad(KindSplit, ManifestFile, "split %q is not one of dataset.json's (%s)", r.Split, strings.Join(d.Splits.Names, ", "))
 		}
 		counts[r.Split]++
 		g, ok := groupIdx[r.Group]
@@ -93,7 +139,7 @@ func Verify(dir string, report func(Problem)) (int, error) {
 		placedRecs = append(placedRecs, placed{r.ID, r.Split, g})
 		if s, ok := groupSplit[r.Group]; ok && s != r.Split {
 			spans = true
-			bad("group %q spans splits %s and %s", r.Group, s, r.Split)
+			bad(KindGroupLeak, ManifestFile, "group %q spans splits %s and %s", r.Group, s, r.Split)
 		} else if !ok {
 			groupSplit[r.Group] = r.Split
 			if strata[r.Stratum] == nil {
@@ -106,10 +152,10 @@ func Verify(dir string, report func(Problem)) (int, error) {
 		return nil
 	})
 	if err != nil {
-		report(Problem{Msg: err.Error()})
+		report(Problem{File: ManifestFile, Check: KindFormat, Msg: err.Error()})
 	}
 	if n != d.Count {
-		report(Problem{Msg: fmt.Sprintf("manifest has %d records, dataset.json says %d", n, d.Count)})
+		report(Problem{File: ManifestFile, Check: KindSplitTable, Msg: fmt.Sprintf("manifest has %d %s, dataset.json says %d", n, Plural(n, "record", "records"), d.Count)})
 	}
 	// The split is a function of the seed, the splits and the groups' strata
 	// (AllocateStrata, as generate and split deal it): name every record
@@ -122,14 +168,14 @@ func Verify(dir string, report func(Problem)) (int, error) {
 		if a, aerr := AllocateStrata(d.Seed, groupKeys, sp); aerr == nil {
 			for _, p := range placedRecs {
 				if want := sp.Names[a.Split[p.group]]; splitOK[p.split] && p.split != want {
-					report(Problem{ID: p.id, Msg: fmt.Sprintf("is in split %s, but seed %d's allocation (split %s, stratified by %q) puts it in split %s", p.split, d.Seed, d.Splits.Spec, d.Splits.Stratify, want)})
+					report(Problem{ID: p.id, File: ManifestFile, Check: KindSplit, Msg: fmt.Sprintf("is in split %s, but seed %d's allocation (split %s, stratified by %q) puts it in split %s", p.split, d.Seed, d.Splits.Spec, d.Splits.Stratify, want)})
 				}
 			}
 		}
 	}
 	for _, s := range d.Splits.Names {
 		if counts[s] != d.Splits.Counts[s] {
-			report(Problem{Msg: fmt.Sprintf("split %s has %d records, dataset.json says %d", s, counts[s], d.Splits.Counts[s])})
+			report(Problem{File: DatasetFile, Check: KindSplitTable, Msg: fmt.Sprintf("split %s has %d %s, dataset.json says %d", s, counts[s], Plural(counts[s], "record", "records"), d.Splits.Counts[s])})
 		}
 	}
 	declared := map[string]bool{}
@@ -137,7 +183,7 @@ func Verify(dir string, report func(Problem)) (int, error) {
 		declared[st.Key] = true
 		for _, s := range d.Splits.Names {
 			if got := strata[st.Key][s]; got != st.Splits[s] {
-				report(Problem{Msg: fmt.Sprintf("stratum %q in split %s has %d groups, dataset.json says %d", st.Key, s, got, st.Splits[s])})
+				report(Problem{File: DatasetFile, Check: KindSplitTable, Msg: fmt.Sprintf("stratum %q in split %s has %d %s, dataset.json says %d", st.Key, s, got, Plural(got, "group", "groups"), st.Splits[s])})
 			}
 		}
 	}
@@ -148,7 +194,7 @@ func Verify(dir string, report func(Problem)) (int, error) {
 	sort.Strings(keys)
 	for _, k := range keys {
 		if !declared[k] {
-			report(Problem{Msg: fmt.Sprintf("stratum %q is not in dataset.json's table", k)})
+			report(Problem{File: DatasetFile, Check: KindSplitTable, Msg: fmt.Sprintf("stratum %q is not in dataset.json's table", k)})
 		}
 	}
 	return n, nil
@@ -157,39 +203,39 @@ func Verify(dir string, report func(Problem)) (int, error) {
 // MaxVerifyPixels bounds one image verify decodes (width × height).
 const MaxVerifyPixels = 64 << 20
 
-func decodePNG(dir, rel string, want string, w, h int, bad func(string, ...any)) image.Image {
+func decodePNG(dir, rel string, want string, w, h int, bad func(check, file, format string, args ...any)) image.Image {
 	p, err := ResolveInside(dir, rel)
 	if err != nil {
-		bad("%s: %v", want, err)
+		bad(KindPath, ManifestFile, "%s: %v", want, err)
 		return nil
 	}
 	b, err := os.ReadFile(p)
 	if err != nil {
-		bad("%s: %v", rel, err)
+		bad(KindMissing, rel, "%s: %v", rel, err)
 		return nil
 	}
 	cfg, err := png.DecodeConfig(bytes.NewReader(b))
 	if err != nil {
-		bad("%s: not a readable PNG: %v", rel, err)
+		bad(KindFormat, rel, "%s: not a readable PNG: %v", rel, err)
 		return nil
 	}
 	if cfg.Width != w || cfg.Height != h {
-		bad("%s is %dx%d, the record says %dx%d", rel, cfg.Width, cfg.Height, w, h)
+		bad(KindSize, rel, "%s is %dx%d, the record says %dx%d", rel, cfg.Width, cfg.Height, w, h)
 		return nil
 	}
 	if int64(w)*int64(h) > MaxVerifyPixels {
-		bad("%s: %dx%d is over verify's budget of %d pixels", rel, w, h, MaxVerifyPixels)
+		bad(KindSize, rel, "%s: %dx%d is over verify's budget of %d pixels", rel, w, h, MaxVerifyPixels)
 		return nil
 	}
 	m, err := png.Decode(bytes.NewReader(b))
 	if err != nil {
-		bad("%s: not a readable PNG: %v", rel, err)
+		bad(KindFormat, rel, "%s: not a readable PNG: %v", rel, err)
 		return nil
 	}
 	return m
 }
 
-func verifyRecord(dir string, d *Dataset, r *Record, targets []TargetDef, classByName map[string]int, bad func(string, ...any)) {
+func verifyRecord(dir string, d *Dataset, r *Record, targets []TargetDef, classByName map[string]int, bad func(check, file, format string, args ...any)) {
 	for _, f := range [][2]string{{"image", r.Image}, {"mask", r.Mask}, {"instances", r.Instances}} {
 		key, rel := f[0], f[1]
 		if !SafeRel(rel) {
@@ -204,26 +250,27 @@ func verifyRecord(dir string, d *Dataset, r *Record, targets []TargetDef, classB
 			continue // reported when decoded
 		}
 		if got := SHA256Hex(b); got != r.SHA256[key] {
-			bad("%s: SHA-256 %s, record says %s", rel, got, r.SHA256[key])
+			bad(KindSHA256, rel, "%s: SHA-256 %s, record says %s", rel, got, r.SHA256[key])
 		}
 	}
 	img := decodePNG(dir, r.Image, "image", r.Width, r.Height, bad)
 	mk := decodePNG(dir, r.Mask, "mask", r.Width, r.Height, bad)
 	in := decodePNG(dir, r.Instances, "instances", r.Width, r.Height, bad)
 	want := image.Rect(0, 0, r.Width, r.Height)
-	for _, m := range []image.Image{img, mk, in} {
+	for i, m := range []image.Image{img, mk, in} {
 		if m != nil && m.Bounds() != want {
-			bad("an image is %v, record says %dx%d", m.Bounds().Size(), r.Width, r.Height)
+			rel := []string{r.Image, r.Mask, r.Instances}[i]
+			bad(KindSize, rel, "%s is %dx%d, record says %dx%d", rel, m.Bounds().Dx(), m.Bounds().Dy(), r.Width, r.Height)
 			return
 		}
 	}
 	mask, ok1 := mk.(*image.Paletted)
 	inst, ok2 := in.(*image.Gray16)
 	if mk != nil && !ok1 {
-		bad("%s: semantic mask is not an indexed PNG", r.Mask)
+		bad(KindFormat, r.Mask, "%s: semantic mask is not an indexed PNG", r.Mask)
 	}
 	if in != nil && !ok2 {
-		bad("%s: instance mask is not a 16-bit gray PNG", r.Instances)
+		bad(KindFormat, r.Instances, "%s: instance mask is not a 16-bit gray PNG", r.Instances)
 	}
 	if !ok1 || !ok2 {
 		return
@@ -235,14 +282,14 @@ func verifyRecord(dir string, d *Dataset, r *Record, targets []TargetDef, classB
 		byID[o.Instance] = o
 		st := stats[o.Instance]
 		if st == nil {
-			bad("object %d is in the record but not in the instance mask", o.Instance)
+			bad(KindInstance, r.Instances, "object %d is in the record but not in the instance mask", o.Instance)
 			continue
 		}
 		if st.BBox != o.Box {
-			bad("object %d: bbox %v in the record, %v in the instance mask", o.Instance, o.Box, st.BBox)
+			bad(KindBox, r.Instances, "object %d: box %v in the record, %v in the instance mask", o.Instance, o.Box, st.BBox)
 		}
 		if st.Area != o.Area {
-			bad("object %d: area %d in the record, %d in the instance mask", o.Instance, o.Area, st.Area)
+			bad(KindArea, r.Instances, "object %d: area %d in the record, %d in the instance mask", o.Instance, o.Area, st.Area)
 		}
 	}
 	ids := make([]int, 0, len(stats))
@@ -252,7 +299,7 @@ func verifyRecord(dir string, d *Dataset, r *Record, targets []TargetDef, classB
 	sort.Ints(ids)
 	for _, id := range ids {
 		if byID[id] == nil {
-			bad("instance %d is in the instance mask but not in the record", id)
+			bad(KindInstance, r.Instances, "instance %d is in the instance mask but not in the record", id)
 		}
 	}
 	// Every pixel's class is its instance's class; no instance means
@@ -271,14 +318,14 @@ func verifyRecord(dir string, d *Dataset, r *Record, targets []TargetDef, classB
 			}
 			if cls != wantCls && !(id == 0 && cls == IgnoreID) {
 				if mismatch == 0 {
-					bad("%s: pixel (%d, %d) has class %d, its instance %d is class %d", r.Mask, x, y, cls, id, wantCls)
+					bad(KindClassPixels, r.Mask, "%s: pixel (%d, %d) has class %d, its instance %d is class %d", r.Mask, x, y, cls, id, wantCls)
 				}
 				mismatch++
 			}
 		}
 	}
 	if mismatch > 1 {
-		bad("%s: %d pixels in all disagree with the instance mask", r.Mask, mismatch)
+		bad(KindClassPixels, r.Mask, "%s: %d pixels in all disagree with the instance mask", r.Mask, mismatch)
 	}
 	for _, t := range targets {
 		if t.Kind != "count" {
@@ -296,7 +343,7 @@ func verifyRecord(dir string, d *Dataset, r *Record, targets []TargetDef, classB
 		}
 		v, ok := r.Targets[t.Name]
 		if !ok || v.IsStr || int(v.Num) != n || v.Num != float64(int(v.Num)) {
-			bad("target %s is %v, the instance mask holds %d such objects", t.Name, v, n)
+			bad(KindTarget, ManifestFile, "target %s is %v, the instance mask holds %d such %s", t.Name, v, n, Plural(n, "object", "objects"))
 		}
 	}
 }

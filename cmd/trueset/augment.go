@@ -2,6 +2,7 @@ package main
 
 import (
 	"context"
+	"encoding/json"
 	"errors"
 	"fmt"
 	"io"
@@ -11,9 +12,7 @@ import (
 	"runtime"
 	"strings"
 	"syscall"
-	"time"
 
-	"github.com/schollz/progressbar/v3"
 	"github.com/spf13/cobra"
 
 	"github.com/trueset/trueset/augment"
@@ -25,13 +24,13 @@ type augmentOptions struct {
 	in, out, plan string
 	copies        int
 	seed          uint64
-	splits        string
+	split         string // the splits whose sources get copies
 	workers       int
 	allow         bool
 	force         bool
 	quiet         bool
 	maxPixels     int
-	split         string
+	ratios        string
 	strat         string
 	onError       string
 	resume        bool
@@ -47,11 +46,11 @@ func newAugmentCmd(stdout, stderr io.Writer) *cobra.Command {
 masks/ with matching file names, optional instances/, labels.csv and
 classes.json), into a new trueset dataset that ` + "`trueset verify`" + ` accepts.
 
-Every source is carried over unchanged. Only sources in --splits (default:
-train) get --copies augmented copies, so validation and test stay on real
-samples; each copy keeps its source's split, group and stratum, so copies of
-one source never leak across splits. A plain folder's sources are first dealt
-to splits (--split, --stratify), each its own group.
+Every source is carried over unchanged. Only sources in --split (default:
+train; comma-separated for more) get --copies augmented copies, so validation
+and test stay on real samples; each copy keeps its source's split, group and
+stratum, so copies of one source never leak across splits. A plain folder's
+sources are first dealt to splits (--ratios, --stratify), each its own group.
 
 All geometric steps of a copy compose into one affine matrix applied once:
 bilinear (or bicubic) for the image, nearest neighbour for both masks, so
@@ -61,13 +60,13 @@ draws only from (seed, s, k): the output is the same whatever --workers is.
 A plan that would break a class's declared invariance (a flipped glyph, a
 6 turned into a 9) is refused before any work unless --allow-label-change.`,
 		Example: `  # five copies of every training sample of a generated set
-  trueset augment --in demo --out demo-aug --plan testdata/plans/every-step.yaml --copies 5
+  trueset augment --in demo --out demo-aug --plan examples/plans/light.yaml --copies 5
 
   # your own labeled folder, held-out splits dealt first
-  trueset augment --in my-labels --out my-labels-aug --plan light.yaml --copies 10 --split train=0.7,val=0.15,test=0.15
+  trueset augment --in my-labels --out my-labels-aug --plan examples/plans/light.yaml --copies 10 --ratios train=0.7,val=0.15,test=0.15
 
   # augment train and val
-  trueset augment --in demo --out demo-aug --plan light.yaml --splits train,val`,
+  trueset augment --in demo --out demo-aug-2 --plan examples/plans/light.yaml --split train,val`,
 		Args: cobra.NoArgs,
 		RunE: func(cmd *cobra.Command, args []string) error {
 			return runAugment(cmd.Context(), o, stdout, stderr)
@@ -79,7 +78,7 @@ A plan that would break a class's declared invariance (a flipped glyph, a
 	f.StringVar(&o.plan, "plan", "", "augmentation plan YAML (required)")
 	f.IntVarP(&o.copies, "copies", "k", 1, "augmented copies per source")
 	f.Uint64Var(&o.seed, "seed", 1, "augmentation seed")
-	f.StringVar(&o.splits, "splits", "train", "comma-separated splits whose sources get copies")
+	f.StringVar(&o.split, "split", "train", "the splits whose sources get copies, comma-separated (e.g. train,val)")
 	f.IntVarP(&o.workers, "workers", "j", runtime.NumCPU(), "parallel workers (output does not depend on it)")
 	f.BoolVar(&o.allow, "allow-label-change", false, "run a plan even where it breaks a class's declared invariance")
 	f.BoolVar(&o.force, "force", false, "write into a folder that is not empty (files trueset did not write are never deleted)")
@@ -87,20 +86,25 @@ A plan that would break a class's declared invariance (a flipped glyph, a
 	f.StringVar(&o.onError, "on-error", "fail", "a source that cannot be read: fail (stop the run) or skip (leave it out; listed in the summary and dataset.json)")
 	f.BoolVarP(&o.quiet, "quiet", "q", false, "no progress bar and no summary")
 	f.IntVar(&o.maxPixels, "max-pixels", augment.DefaultMaxPixels, "refuse input images with more pixels than this")
-	f.StringVar(&o.split, "split", "", "plain folders: split names and ratios (default train=0.8,val=0.1,test=0.1)")
+	f.StringVar(&o.ratios, "ratios", "", "plain folders: split names and ratios adding up to 1 (default "+manifest.DefaultSplits+")")
 	f.StringVar(&o.strat, "stratify", "", "plain folders: stratify by a labels.csv column, count_<class>, class:NAME or classes")
 	f.BoolVar(&o.json, "json", false, "print the summary as one JSON document on stdout instead of text (errors still go to stderr)")
 	return cmd
 }
 
-// augmentJSON is the summary `augment --json` prints. Bytes and Seconds
-// count this run only; Resumed records were kept from an interrupted one;
-// Skipped lists the sources left out by --on-error skip, with their errors.
+// augmentJSON is the summary `augment --json` prints. Samples counts every
+// record written (sources and copies); Bytes and Seconds count this run
+// only; Resumed samples were kept from an interrupted one; Skipped lists the
+// sources left out by --on-error skip, with their errors.
 type augmentJSON struct {
-	Out     string              `json:"out"`
+	Command string              `json:"command"` // "augment"
+	Dir     string              `json:"dir"`
+	Input   string              `json:"input"`
+	Plan    string              `json:"plan"` // the plan's name
+	Seed    uint64              `json:"seed"`
 	Sources int                 `json:"sources"`
 	Copies  int                 `json:"copies"`
-	Records int                 `json:"records"`
+	Samples int                 `json:"samples"`
 	Resumed int                 `json:"resumed"`
 	Skipped []string            `json:"skipped"`
 	Seconds float64             `json:"seconds"`
@@ -120,6 +124,10 @@ func runAugment(ctx context.Context, o *augmentOptions, stdout, stderr io.Writer
 		return usagef("--copies %d: want 0..%d", o.copies, augment.MaxCopies)
 	case o.workers < 1 || o.workers > 1024:
 		return usagef("--workers %d: want 1..1024", o.workers)
+	case o.maxPixels < 1:
+		return usagef("--max-pixels %d: want a whole number ≥ 1", o.maxPixels)
+	case strings.Contains(o.split, "="):
+		return usagef("--split %s: --split names the splits whose sources get copies (e.g. train,val); split names and ratios are --ratios", o.split)
 	}
 	if st, err := os.Stat(o.in); err != nil || !st.IsDir() {
 		return usagef("--in %s is not a folder", o.in)
@@ -138,10 +146,16 @@ func runAugment(ctx context.Context, o *augmentOptions, stdout, stderr io.Writer
 			return usagef("--out %s is not empty; choose a new folder or pass --force", o.out)
 		}
 	}
-	if o.split != "" {
-		if _, err := parseSplitFlag(o.split); err != nil {
+	if o.ratios != "" {
+		if _, err := parseRatiosFlag(o.ratios); err != nil {
 			return err
 		}
+	}
+	if _, err := os.Stat(filepath.Join(o.in, manifest.DatasetFile)); err == nil && (o.ratios != "" || o.strat != "") {
+		return usagef("--ratios and --stratify deal a plain folder's sources to splits; %s is a trueset dataset, whose split augment keeps (re-deal it first with: trueset split %s --ratios … --stratify …)", o.in, o.in)
+	}
+	if err := fileExists("--plan", o.plan); err != nil {
+		return err
 	}
 	plan, err := augment.LoadPlan(o.plan)
 	if err != nil {
@@ -152,38 +166,42 @@ func runAugment(ctx context.Context, o *augmentOptions, stdout, stderr io.Writer
 	}
 	ctx, stop := signal.NotifyContext(ctx, os.Interrupt, syscall.SIGTERM)
 	defer stop()
-	var bar *progressbar.ProgressBar
+	var bar *progress
+	var splits []string
+	for _, s := range strings.Split(o.split, ",") {
+		if s = strings.TrimSpace(s); s != "" {
+			splits = append(splits, s)
+		}
+	}
 	opts := augment.RunOptions{
-		In: o.in, Out: o.out, Plan: plan, Copies: o.copies, Seed: o.seed, Splits: strings.Split(o.splits, ","),
+		In: o.in, Out: o.out, Plan: plan, Copies: o.copies, Seed: o.seed, Splits: splits,
 		Workers: o.workers, AllowLabelChange: o.allow, Force: o.force, MaxPixels: o.maxPixels,
-		SplitSpec: o.split, Stratify: o.strat, OnError: o.onError, Resume: o.resume, Version: version,
+		SplitSpec: o.ratios, Stratify: o.strat, OnError: o.onError, Resume: o.resume, Version: version,
 		Progress: func(done, total int) {
 			if bar == nil && !o.quiet && isTerminal(stderr) {
-				bar = progressbar.NewOptions(total, progressbar.OptionSetWriter(stderr),
-					progressbar.OptionSetDescription("augmenting"), progressbar.OptionShowCount(),
-					progressbar.OptionThrottle(100*time.Millisecond), progressbar.OptionClearOnFinish())
+				bar = newProgress(stderr, "augmenting", "samples", total, terminalWidth(stderr))
 			}
-			if bar != nil {
-				bar.Set(done)
-			}
+			bar.set(done)
 		},
 	}
 	sum, err := augment.Run(ctx, opts)
-	if bar != nil {
-		bar.Finish()
-	}
+	bar.finish()
 	if errors.Is(err, manifest.ErrComplete) {
 		if o.json {
 			fmt.Fprintf(stderr, "%s: %v\n", o.out, err)
-			return writeAugmentDone(stdout, o.out)
+			return writeAugmentDone(stdout, o)
 		}
 		fmt.Fprintf(stdout, "%s: %v\n", o.out, err)
 		return nil
 	}
 	if err != nil {
 		var pe *augment.PlanError
-		if errors.As(err, &pe) || strings.HasPrefix(err.Error(), "plan ") || strings.HasPrefix(err.Error(), "--splits") {
+		if errors.As(err, &pe) || strings.HasPrefix(err.Error(), "plan ") {
 			return usageError{err}
+		}
+		if msg := err.Error(); strings.HasPrefix(msg, "--splits ") {
+			// augment.Run names the flag by its old spelling.
+			return usageError{errors.New("--split " + strings.TrimPrefix(msg, "--splits "))}
 		}
 		if resumeRefused(err) {
 			return usageError{err}
@@ -194,8 +212,8 @@ func runAugment(ctx context.Context, o *augmentOptions, stdout, stderr io.Writer
 		fmt.Fprintf(stderr, "skipped: %s\n", s)
 	}
 	if o.json {
-		j := augmentJSON{Out: o.out, Sources: sum.Sources, Copies: sum.Copies, Records: sum.Records, Resumed: sum.Resumed,
-			Skipped: sum.Skipped, Seconds: manifest.Round(sum.Elapsed.Seconds(), 3), Bytes: sum.Bytes, Splits: sum.Splits}
+		j := augmentJSON{Command: "augment", Dir: o.out, Input: o.in, Plan: plan.Name, Seed: o.seed, Sources: sum.Sources, Copies: sum.Copies,
+			Samples: sum.Records, Resumed: sum.Resumed, Skipped: sum.Skipped, Seconds: manifest.Round(sum.Elapsed.Seconds(), 3), Bytes: sum.Bytes, Splits: sum.Splits}
 		if j.Skipped == nil {
 			j.Skipped = []string{}
 		}
@@ -203,15 +221,15 @@ func runAugment(ctx context.Context, o *augmentOptions, stdout, stderr io.Writer
 	}
 	if !o.quiet {
 		secs := sum.Elapsed.Seconds()
-		extra := ""
+		fmt.Fprintf(stdout, "wrote %d %s (%d %s, %d %s) to %s\n", sum.Records, manifest.Plural(sum.Records, "sample", "samples"),
+			sum.Sources, manifest.Plural(sum.Sources, "source", "sources"), sum.Copies, manifest.Plural(sum.Copies, "copy", "copies"), o.out)
 		if sum.Resumed > 0 {
-			extra = fmt.Sprintf(", %d records kept from the interrupted run", sum.Resumed)
+			fmt.Fprintf(stdout, "  %d kept from the interrupted run\n", sum.Resumed)
 		}
 		if len(sum.Skipped) > 0 {
-			extra += fmt.Sprintf(", %d sources skipped", len(sum.Skipped))
+			fmt.Fprintf(stdout, "  %d %s skipped\n", len(sum.Skipped), manifest.Plural(len(sum.Skipped), "source", "sources"))
 		}
-		fmt.Fprintf(stdout, "wrote %d records (%d sources, %d copies%s) to %s in %.2fs (%.0f copies/s, %s)\n",
-			sum.Records, sum.Sources, sum.Copies, extra, o.out, secs, float64(sum.Copies)/secs, humanBytes(sum.Bytes))
+		fmt.Fprintf(stdout, "  %s, %s, %s, plan %s, seed %d\n", seconds(secs), rate(sum.Copies, secs, "copies"), humanBytes(sum.Bytes), plan.Name, o.seed)
 		printSplitTable(stdout, sum.Splits)
 	}
 	return nil
@@ -219,14 +237,24 @@ func runAugment(ctx context.Context, o *augmentOptions, stdout, stderr io.Writer
 
 // writeAugmentDone describes, for --json, an augmented dataset that was
 // already complete: nothing was written, every record was kept.
-func writeAugmentDone(stdout io.Writer, out string) error {
+func writeAugmentDone(stdout io.Writer, o *augmentOptions) error {
+	out := o.out
 	d, err := manifest.ReadDataset(out)
 	if err != nil {
 		return err
 	}
-	j := augmentJSON{Out: out, Skipped: []string{}, Splits: d.Splits}
+	j := augmentJSON{Command: "augment", Dir: out, Input: o.in, Seed: o.seed, Skipped: []string{}, Splits: d.Splits}
+	if d.Augment != nil {
+		j.Seed = d.Augment.Seed
+		var p struct {
+			Name string `json:"name"`
+		}
+		if json.Unmarshal(d.Augment.Plan, &p) == nil {
+			j.Plan = p.Name
+		}
+	}
 	if err := manifest.ReadManifest(out, func(r *manifest.Record) error {
-		j.Records++
+		j.Samples++
 		if r.Lineage != nil {
 			j.Copies++
 		}
@@ -234,7 +262,7 @@ func writeAugmentDone(stdout io.Writer, out string) error {
 	}); err != nil {
 		return err
 	}
-	j.Sources, j.Resumed = j.Records-j.Copies, j.Records
+	j.Sources, j.Resumed = j.Samples-j.Copies, j.Samples
 	if d.Augment != nil && d.Augment.Skipped != nil {
 		j.Skipped = d.Augment.Skipped
 	}

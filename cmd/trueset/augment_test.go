@@ -219,7 +219,7 @@ func TestAugmentUsageErrors(t *testing.T) {
 		{"negative copies", []string{"--in", in, "--out", out, "--plan", everyStepPlan, "--copies", "-1"}, []string{"--copies -1", "0..1000"}},
 		{"bad plan file", []string{"--in", in, "--out", out, "--plan", bad}, []string{bad + ":5:", "steps[0].sigma", "flip does not take sigma"}},
 		{"missing plan file", []string{"--in", in, "--out", out, "--plan", filepath.Join(root, "nope.yaml")}, []string{"nope.yaml"}},
-		{"unknown split", []string{"--in", in, "--out", out, "--plan", everyStepPlan, "--splits", "nosuch"}, []string{"--splits nosuch", "train"}},
+		{"unknown split", []string{"--in", in, "--out", out, "--plan", everyStepPlan, "--split", "nosuch"}, []string{"--split nosuch", "train"}},
 		{"--in not a folder", []string{"--in", filepath.Join(root, "absent"), "--out", out, "--plan", everyStepPlan}, []string{"--in", "not a folder"}},
 	}
 	for _, c := range cases {

@@ -12,9 +12,7 @@ import (
 	"strconv"
 	"strings"
 	"syscall"
-	"time"
 
-	"github.com/schollz/progressbar/v3"
 	"github.com/spf13/cobra"
 	"golang.org/x/term"
 
@@ -30,7 +28,7 @@ type generateOptions struct {
 	count   int
 	seed    uint64
 	workers int
-	split   string
+	ratios  string
 	strat   string
 	cover   bool
 	shard   string
@@ -51,7 +49,7 @@ images/, masks/ (8-bit indexed PNG, palette = class colors), instances/
 (16-bit PNG of instance ids), manifest.jsonl (one record per sample, in index
 order) and dataset.json (written last; it marks the dataset complete).
 
-The split is allocated before rendering: each sample's stratum (--stratify)
+The split is allocated before rendering (--ratios): each sample's stratum (--stratify)
 is computed from its plan, and the strata × splits table is rounded so every
 cell and every split total is within ±1 of its exact share (controlled
 rounding). The table is printed and stored in dataset.json.
@@ -71,7 +69,7 @@ The same tool version, recipe and seed give byte-identical files whatever
   trueset generate --preset tabletop-dice --count 20000 --seed 7 --workers 2 --out dice
 
   # your own recipe (start from: trueset presets show bin-labels > labels.yaml)
-  trueset generate --recipe labels.yaml --out labels --split train=0.7,val=0.15,test=0.15
+  trueset generate --recipe labels.yaml --out labels --ratios train=0.7,val=0.15,test=0.15
 
   # every split must see every number of dice
   trueset generate --preset tabletop-dice --stratify dice --require-coverage --out dice
@@ -85,13 +83,13 @@ The same tool version, recipe and seed give byte-identical files whatever
 		},
 	}
 	f := cmd.Flags()
-	f.StringVar(&o.preset, "preset", "", "built-in preset name (see `trueset presets`); default "+gen.DefaultPreset)
+	f.StringVar(&o.preset, "preset", "", "built-in preset name (list them with: trueset presets); default "+gen.DefaultPreset)
 	f.StringVar(&o.recipe, "recipe", "", "recipe YAML file")
 	f.StringVarP(&o.out, "out", "o", "", "output folder (required; must be empty or new)")
 	f.IntVarP(&o.count, "count", "n", 1000, "number of samples")
 	f.Uint64Var(&o.seed, "seed", 1, "seed; with the recipe and tool version it fixes every byte")
 	f.IntVarP(&o.workers, "workers", "j", runtime.NumCPU(), "parallel workers (output does not depend on it)")
-	f.StringVar(&o.split, "split", "", "split names and ratios (default: the recipe's split.ratios, else "+manifest.DefaultSplits+")")
+	f.StringVar(&o.ratios, "ratios", "", "split names and ratios adding up to 1 (default: the recipe's split.ratios, else "+manifest.DefaultSplits+")")
 	f.StringVar(&o.strat, "stratify", "", "stratify by a target name, class:NAME (its count) or classes (the set present); default: the recipe's split.stratify")
 	f.BoolVar(&o.cover, "require-coverage", false, "fail if any split lacks any stratum")
 	f.StringVar(&o.shard, "shard", "", "render only shard I of N, as I/N (0-based)")
@@ -106,8 +104,10 @@ The same tool version, recipe and seed give byte-identical files whatever
 // generateJSON is the summary `generate --json` prints. Bytes and Seconds
 // count this run only; Resumed samples were kept from an interrupted one.
 type generateJSON struct {
-	Out              string              `json:"out"`
+	Command          string              `json:"command"` // "generate"
+	Dir              string              `json:"dir"`
 	Recipe           string              `json:"recipe"`
+	Seed             uint64              `json:"seed"`
 	Samples          int                 `json:"samples"`
 	Resumed          int                 `json:"resumed"`
 	Seconds          float64             `json:"seconds"`
@@ -135,6 +135,9 @@ func runGenerate(ctx context.Context, o *generateOptions, stdout, stderr io.Writ
 	var err error
 	switch {
 	case o.recipe != "":
+		if err := fileExists("--recipe", o.recipe); err != nil {
+			return err
+		}
 		r, err = gen.LoadRecipe(o.recipe)
 	default:
 		name := o.preset
@@ -151,14 +154,17 @@ func runGenerate(ctx context.Context, o *generateOptions, stdout, stderr io.Writ
 	if err != nil {
 		return err
 	}
-	if o.split != "" {
-		if _, err := parseSplitFlag(o.split); err != nil {
+	if o.ratios != "" {
+		if _, err := parseRatiosFlag(o.ratios); err != nil {
 			return err
 		}
 	}
 	if o.strat != "" {
+		if err := checkStratify(o.strat, r.ClassTable(), recipeTargets(r)); err != nil {
+			return err
+		}
 		if err := r.CheckStratify(o.strat); err != nil {
-			return usageError{err}
+			return usagef("--stratify: %v", err)
 		}
 	}
 	shard, shards, from, err := shardFromFlagsOrEnv(o.shard, o.shards, os.Getenv)
@@ -185,31 +191,17 @@ func runGenerate(ctx context.Context, o *generateOptions, stdout, stderr io.Writ
 	ctx, stop := signal.NotifyContext(ctx, os.Interrupt, syscall.SIGTERM)
 	defer stop()
 
-	var bar *progressbar.ProgressBar
+	var bar *progress
 	if !o.quiet && isTerminal(stderr) {
-		bar = progressbar.NewOptions(o.count,
-			progressbar.OptionSetWriter(stderr),
-			progressbar.OptionSetDescription("generating "+r.Name),
-			progressbar.OptionShowCount(),
-			progressbar.OptionShowIts(),
-			progressbar.OptionSetItsString("samples"),
-			progressbar.OptionThrottle(100*time.Millisecond),
-			progressbar.OptionClearOnFinish(),
-		)
+		bar = newProgress(stderr, "generating "+r.Name, "samples", o.count, terminalWidth(stderr))
 	}
 	sum, err := gen.Run(ctx, gen.RunOptions{
 		Recipe: r, Out: o.out, Count: o.count, Seed: o.seed, Workers: o.workers,
-		Splits: o.split, Stratify: o.strat, RequireCoverage: o.cover,
+		Splits: o.ratios, Stratify: o.strat, RequireCoverage: o.cover,
 		Shard: shard, Shards: shards, Force: o.force, Resume: o.resume, Version: version,
-		Progress: func(done, total int) {
-			if bar != nil {
-				bar.Set(done)
-			}
-		},
+		Progress: func(done, total int) { bar.set(done) },
 	})
-	if bar != nil {
-		bar.Finish()
-	}
+	bar.finish()
 	var ce *gen.CoverageError
 	if errors.As(err, &ce) {
 		printSplitTable(stderr, sum.Splits)
@@ -222,7 +214,7 @@ func runGenerate(ctx context.Context, o *generateOptions, stdout, stderr io.Writ
 			if derr != nil {
 				return derr
 			}
-			return writeJSON(stdout, generateJSON{Out: o.out, Recipe: r.Name, Samples: d.Count, Resumed: d.Count, Splits: d.Splits})
+			return writeJSON(stdout, generateJSON{Command: "generate", Dir: o.out, Recipe: r.Name, Seed: d.Seed, Samples: d.Count, Resumed: d.Count, Splits: d.Splits})
 		}
 		fmt.Fprintf(stdout, "%s: %v\n", o.out, err)
 		return nil
@@ -235,7 +227,7 @@ func runGenerate(ctx context.Context, o *generateOptions, stdout, stderr io.Writ
 	}
 	if o.json {
 		secs := sum.Elapsed.Seconds()
-		j := generateJSON{Out: o.out, Recipe: r.Name, Samples: sum.Samples, Resumed: sum.Resumed, Seconds: manifest.Round(secs, 3),
+		j := generateJSON{Command: "generate", Dir: o.out, Recipe: r.Name, Seed: o.seed, Samples: sum.Samples, Resumed: sum.Resumed, Seconds: manifest.Round(secs, 3),
 			Bytes: sum.Bytes, Splits: sum.Splits}
 		if secs > 0 {
 			j.SamplesPerSecond = manifest.Round(float64(sum.Samples-sum.Resumed)/secs, 1)
@@ -246,16 +238,16 @@ func runGenerate(ctx context.Context, o *generateOptions, stdout, stderr io.Writ
 		return writeJSON(stdout, j)
 	}
 	if !o.quiet {
+		// Short lines: the summary of a 20,000-sample run fits 80 columns.
 		secs := sum.Elapsed.Seconds()
-		what := "samples"
+		fmt.Fprintf(stdout, "wrote %d %s of %s to %s\n", sum.Samples, manifest.Plural(sum.Samples, "sample", "samples"), r.Name, o.out)
 		if shards > 0 {
-			what = fmt.Sprintf("samples (shard %d/%d%s)", shard, shards, from)
+			fmt.Fprintf(stdout, "  shard %d of 0..%d%s\n", shard, shards-1, from)
 		}
 		if sum.Resumed > 0 {
-			what += fmt.Sprintf(", %d of them kept from the interrupted run", sum.Resumed)
+			fmt.Fprintf(stdout, "  %d kept from the interrupted run\n", sum.Resumed)
 		}
-		fmt.Fprintf(stdout, "wrote %d %s of %s to %s in %.2fs (%.0f samples/s, %s)\n",
-			sum.Samples, what, r.Name, o.out, secs, float64(sum.Samples-sum.Resumed)/secs, humanBytes(sum.Bytes))
+		fmt.Fprintf(stdout, "  %s, %s, %s, seed %d\n", seconds(secs), rate(sum.Samples-sum.Resumed, secs, "samples"), humanBytes(sum.Bytes), o.seed)
 		printSplitTable(stdout, sum.Splits)
 	}
 	return nil
@@ -377,10 +369,55 @@ func humanBytes(n int64) string {
 	return fmt.Sprintf("%.1f %ciB", float64(n)/float64(div), "KMGTPE"[exp])
 }
 
-func parseSplitFlag(s string) (manifest.Splits, error) {
+// parseRatiosFlag reads --ratios; a spec that does not parse or add up to
+// 1 is the caller's mistake (exit 2).
+func parseRatiosFlag(s string) (manifest.Splits, error) {
 	sp, err := manifest.ParseSplits(s)
 	if err != nil {
-		return sp, usagef("--split: %v", err)
+		return sp, usagef("--ratios %s: %v", s, err)
 	}
 	return sp, nil
+}
+
+// checkStratify checks --stratify against a dataset's classes and targets
+// the same way in every command: an unknown class or target is exit 2,
+// naming the known ones.
+func checkStratify(key string, classes []manifest.Class, targets []string) error {
+	if err := manifest.CheckStratify(key, manifest.ClassNames(classes), targets); err != nil {
+		return usagef("--stratify: %v", err)
+	}
+	return nil
+}
+
+// recipeTargets lists a recipe's target names.
+func recipeTargets(r *gen.Recipe) []string {
+	var names []string
+	for _, t := range r.Targets {
+		names = append(names, t.Name)
+	}
+	return names
+}
+
+// fileExists refuses a file flag whose file is missing, naming both.
+func fileExists(flag, path string) error {
+	st, err := os.Stat(path)
+	switch {
+	case errors.Is(err, os.ErrNotExist):
+		return usagef("%s %s: the file does not exist", flag, path)
+	case err != nil:
+		return usagef("%s %s: %v", flag, path, err)
+	case st.IsDir():
+		return usagef("%s %s: is a folder, not a file", flag, path)
+	}
+	return nil
+}
+
+// terminalWidth is the width of the terminal w writes to, or 80.
+func terminalWidth(w io.Writer) int {
+	if f, ok := w.(*os.File); ok {
+		if cols, _, err := term.GetSize(int(f.Fd())); err == nil && cols > 0 {
+			return cols
+		}
+	}
+	return 80
 }

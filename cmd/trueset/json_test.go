@@ -11,6 +11,7 @@ import (
 	"os"
 	"path/filepath"
 	"reflect"
+	"slices"
 	"strings"
 	"testing"
 
@@ -86,8 +87,8 @@ func TestGenerateJSON(t *testing.T) {
 	decodeOneJSON(t, stdout, &j)
 	d := readDataset(t, dir)
 	recs := readRecords(t, dir)
-	if j.Out != dir || j.Recipe != "tabletop-dice" || j.Recipe != recipeName(t, d) {
-		t.Errorf("out %q recipe %q, want %q and %q", j.Out, j.Recipe, dir, recipeName(t, d))
+	if j.Command != "generate" || j.Dir != dir || j.Recipe != "tabletop-dice" || j.Recipe != recipeName(t, d) || j.Seed != 5 || j.Seed != d.Seed {
+		t.Errorf("command %q dir %q recipe %q seed %d, want generate, %q, %q and 5", j.Command, j.Dir, j.Recipe, j.Seed, dir, recipeName(t, d))
 	}
 	if j.Samples != 24 || j.Samples != d.Count || j.Samples != len(recs) || j.Resumed != 0 {
 		t.Errorf("samples %d resumed %d; dataset.json count %d, manifest records %d", j.Samples, j.Resumed, d.Count, len(recs))
@@ -120,7 +121,7 @@ func TestGenerateJSON(t *testing.T) {
 	stdout, stderr = wantCode(t, exitOK, "generate", "--preset", "tabletop-dice", "--count", "24", "--seed", "5", "--out", dir, "--json", "--resume")
 	var again generateJSON
 	decodeOneJSON(t, stdout, &again)
-	if again.Samples != 24 || again.Resumed != 24 || again.Bytes != 0 || !strings.Contains(stderr, "already complete") {
+	if again.Samples != 24 || again.Resumed != 24 || again.Bytes != 0 || again.Seed != 5 || again.Dir != dir || !strings.Contains(stderr, "already complete") {
 		t.Errorf("resume of a complete set: %+v, stderr %q", again, stderr)
 	}
 	sameSplits(t, again.Splits, d.Splits)
@@ -169,7 +170,10 @@ func TestAugmentJSON(t *testing.T) {
 			copies++
 		}
 	}
-	if j.Out != out || j.Sources != len(src) || j.Copies != 2*train || j.Copies != copies || j.Records != len(recs) || j.Records != j.Sources+j.Copies {
+	if j.Command != "augment" || j.Dir != out || j.Input != in || j.Plan != "every-step" || j.Seed != 1 {
+		t.Errorf("command %q dir %q input %q plan %q seed %d", j.Command, j.Dir, j.Input, j.Plan, j.Seed)
+	}
+	if j.Sources != len(src) || j.Copies != 2*train || j.Copies != copies || j.Samples != len(recs) || j.Samples != j.Sources+j.Copies {
 		t.Errorf("summary %+v; want %d sources, %d copies (2 × %d train), %d records", j, len(src), copies, train, len(recs))
 	}
 	if j.Resumed != 0 || j.Skipped == nil || len(j.Skipped) != 0 {
@@ -187,7 +191,8 @@ func TestAugmentJSON(t *testing.T) {
 		"--copies", "2", "--json", "--resume")
 	var again augmentJSON
 	decodeOneJSON(t, stdout, &again)
-	if again.Sources != j.Sources || again.Copies != j.Copies || again.Records != j.Records || again.Resumed != j.Records || again.Bytes != 0 {
+	if again.Sources != j.Sources || again.Copies != j.Copies || again.Samples != j.Samples || again.Resumed != j.Samples || again.Bytes != 0 ||
+		again.Plan != j.Plan || again.Seed != j.Seed || again.Dir != out {
 		t.Errorf("resume of a complete set: %+v, first run %+v", again, j)
 	}
 }
@@ -199,7 +204,11 @@ func TestVerifyJSON(t *testing.T) {
 	stdout, _ := wantCode(t, exitOK, "verify", dir, "--json", "--regenerate", "--workers", "2")
 	var j verifyJSON
 	decodeOneJSON(t, stdout, &j)
-	want := verifyJSON{Dir: dir, Records: 16, Problems: []problemJSON{}, OK: true, Regenerated: true}
+	if j.Seconds <= 0 {
+		t.Errorf("seconds %v", j.Seconds)
+	}
+	j.Seconds = 0
+	want := verifyJSON{Command: "verify", Dir: dir, Samples: 16, Problems: []problemJSON{}, OK: true, Regenerated: true}
 	if !reflect.DeepEqual(j, want) {
 		t.Errorf("clean set: %+v, want %+v", j, want)
 	}
@@ -231,7 +240,7 @@ func TestVerifyJSON(t *testing.T) {
 	stdout, stderr := wantCode(t, exitFailure, "verify", dir, "--json", "--regenerate", "--workers", "2")
 	j = verifyJSON{}
 	decodeOneJSON(t, stdout, &j)
-	if j.OK || !j.Regenerated || j.FirstDifference != victim.Image || len(j.Problems) != 0 || j.Records != 16 {
+	if j.OK || !j.Regenerated || j.FirstDifference != victim.Image || len(j.Problems) != 0 || j.Samples != 16 {
 		t.Errorf("re-encoded image: %+v, want first_difference %s", j, victim.Image)
 	}
 	if !strings.Contains(stderr, "differ") {
@@ -251,9 +260,12 @@ func TestVerifyJSON(t *testing.T) {
 		t.Fatalf("damaged mask: %+v", j)
 	}
 	for _, p := range j.Problems {
-		if p.ID != recs[5].ID || p.Message == "" {
-			t.Errorf("problem %+v: want record %s with a message", p, recs[5].ID)
+		if p.ID != recs[5].ID || p.Message == "" || p.File != recs[5].Mask || !slices.Contains(manifest.ProblemKinds, p.Check) {
+			t.Errorf("problem %+v: want record %s, file %s, a known check and a message", p, recs[5].ID, recs[5].Mask)
 		}
+	}
+	if j.Problems[0].Check != manifest.KindSHA256 {
+		t.Errorf("first problem of a damaged mask: check %q, want sha256", j.Problems[0].Check)
 	}
 	if !strings.HasPrefix(stderr, "trueset: ") || !strings.Contains(stderr, "problems found") {
 		t.Errorf("stderr %q", stderr)
@@ -266,7 +278,8 @@ func TestVerifyJSON(t *testing.T) {
 	stdout, _ = wantCode(t, exitFailure, "verify", dir, "--json")
 	j = verifyJSON{}
 	decodeOneJSON(t, stdout, &j)
-	if j.OK || len(j.Problems) != 1 || j.Problems[0].ID != "" || !strings.Contains(j.Problems[0].Message, "dataset.json") {
+	if j.OK || len(j.Problems) != 1 || j.Problems[0].ID != "" || !strings.Contains(j.Problems[0].Message, "dataset.json") ||
+		j.Problems[0].File != "dataset.json" || j.Problems[0].Check != manifest.KindIncomplete {
 		t.Errorf("no dataset.json: %+v", j)
 	}
 

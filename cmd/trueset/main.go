@@ -11,8 +11,10 @@ import (
 	"strings"
 
 	"github.com/spf13/cobra"
+	"github.com/spf13/pflag"
 
 	"github.com/trueset/trueset/gen"
+	"github.com/trueset/trueset/manifest"
 )
 
 // version is the tool version written into every dataset.json; release
@@ -48,11 +50,13 @@ anyone can regenerate byte for byte from the recipe and the seed.`,
 		SilenceUsage:      true,
 		SilenceErrors:     true,
 		CompletionOptions: cobra.CompletionOptions{DisableDefaultCmd: true},
+		Version:           version,
 	}
+	root.SetVersionTemplate(versionLine() + "\n")
 	root.SetOut(stdout)
 	root.SetErr(stderr)
 	root.SetFlagErrorFunc(func(c *cobra.Command, err error) error {
-		return usageError{fmt.Errorf("%w\nsee: %s --help", err, c.CommandPath())}
+		return usageError{fmt.Errorf("%s\nsee: %s --help", flagErrorText(c, err), c.CommandPath())}
 	})
 	root.AddCommand(newGenerateCmd(stdout, stderr), newAugmentCmd(stdout, stderr), newSplitCmd(stdout, stderr), newVerifyCmd(stdout, stderr),
 		newMergeCmd(stdout), newPresetsCmd(stdout), newVersionCmd(stdout), newStatsCmd(stdout), newPreviewCmd(stdout))
@@ -68,7 +72,8 @@ func exitCode(err error) int {
 	}
 	var ue usageError
 	var re *gen.RecipeError // also augment.PlanError: both are yamlnode.Error
-	if errors.As(err, &ue) || errors.As(err, &re) {
+	var se *manifest.StratifyError
+	if errors.As(err, &ue) || errors.As(err, &re) || errors.As(err, &se) {
 		return exitUsage
 	}
 	// cobra's own argument and command errors are usage errors too.
@@ -77,6 +82,101 @@ func exitCode(err error) int {
 		return exitUsage
 	}
 	return exitFailure
+}
+
+// renamedFlags maps, per command, a flag name trueset used to have (or that
+// people reach for) to the one that means it now.
+var renamedFlags = map[string]map[string]string{
+	"generate": {"split": "ratios"},
+	"split":    {"split": "ratios"},
+	"augment":  {"splits": "split"},
+}
+
+// flagErrorText rewrites pflag's parse errors so they name the flag and
+// what it allows, and suggests the flag a misspelled one probably meant.
+func flagErrorText(c *cobra.Command, err error) string {
+	var ne *pflag.NotExistError
+	var ie *pflag.InvalidValueError
+	var re *pflag.ValueRequiredError
+	switch {
+	case errors.As(err, &ie):
+		f := ie.GetFlag()
+		return fmt.Sprintf("--%s %s: want %s (%s)", f.Name, ie.GetValue(), flagWants(f), f.Usage)
+	case errors.As(err, &re):
+		f := re.GetFlag()
+		return fmt.Sprintf("--%s needs a value: %s", f.Name, f.Usage)
+	case errors.As(err, &ne) && ne.GetSpecifiedShortnames() == "":
+		name := ne.GetSpecifiedName()
+		if to, ok := renamedFlags[c.Name()][name]; ok {
+			return fmt.Sprintf("unknown flag --%s; did you mean --%s? (%s)", name, to, c.Flags().Lookup(to).Usage)
+		}
+		if near := nearestFlag(c, name); near != "" {
+			return fmt.Sprintf("unknown flag --%s; did you mean --%s?", name, near)
+		}
+		return fmt.Sprintf("unknown flag --%s", name)
+	}
+	return err.Error()
+}
+
+// flagWants says in words what values a flag of f's type takes.
+func flagWants(f *pflag.Flag) string {
+	switch f.Value.Type() {
+	case "int", "int64", "int32":
+		return "a whole number"
+	case "uint", "uint64", "uint32":
+		return "a whole number ≥ 0"
+	case "float64", "float32":
+		return "a number"
+	case "bool":
+		return "true or false"
+	case "duration":
+		return "a duration such as 30s or 5m"
+	}
+	return "a " + f.Value.Type()
+}
+
+// nearestFlag returns the flag of c whose name is closest to name: one it
+// begins (from 3 letters on), else one at most max(2, len/3) edits away;
+// "" when none is.
+func nearestFlag(c *cobra.Command, name string) string {
+	limit := max(2, len(name)/3)
+	best, bestD := "", limit+1
+	visit := func(f *pflag.Flag) {
+		if f.Hidden {
+			return
+		}
+		d := editDistance(name, f.Name)
+		if len(name) >= 3 && strings.HasPrefix(f.Name, name) {
+			d = 0
+		}
+		if d < bestD || (d == bestD && f.Name < best) {
+			best, bestD = f.Name, d
+		}
+	}
+	c.Flags().VisitAll(visit)
+	c.InheritedFlags().VisitAll(visit)
+	return best
+}
+
+// editDistance is the Levenshtein distance between a and b.
+func editDistance(a, b string) int {
+	prev := make([]int, len(b)+1)
+	cur := make([]int, len(b)+1)
+	for j := range prev {
+		prev[j] = j
+	}
+	for i := 1; i <= len(a); i++ {
+		cur[0] = i
+		for j := 1; j <= len(b); j++ {
+			sub := prev[j-1]
+			if a[i-1] != b[j-1] {
+				sub++
+			}
+			cur[j] = min(sub, prev[j]+1, cur[j-1]+1)
+		}
+		prev, cur = cur, prev
+	}
+	return prev[len(b)]
 }
 
 // writeJSON writes v as the one JSON document of a --json run: indented,

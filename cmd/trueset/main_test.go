@@ -65,7 +65,7 @@ func TestUsageErrors(t *testing.T) {
 		{"unknown command", []string{"no-such-command"}},
 		{"missing --out", []string{"generate"}},
 		{"bad count", []string{"generate", "--out", filepath.Join(tmp, "d"), "--count", "0"}},
-		{"bad split", []string{"generate", "--out", filepath.Join(tmp, "e"), "--split", "train"}},
+		{"bad ratios", []string{"generate", "--out", filepath.Join(tmp, "e"), "--ratios", "train"}},
 		{"presets show without name", []string{"presets", "show"}},
 		{"presets show unknown", []string{"presets", "show", "nope"}},
 	}

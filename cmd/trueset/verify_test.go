@@ -138,7 +138,7 @@ func TestVerifyDamage(t *testing.T) {
 				t.Fatal(err)
 			}
 		}},
-		{"bbox edited", firstWithObjects(t, recs, 3).ID, "bbox", func(t *testing.T, dir string) {
+		{"bbox edited", firstWithObjects(t, recs, 3).ID, "box", func(t *testing.T, dir string) {
 			editRecord(t, dir, firstWithObjects(t, recs, 3).ID, func(r *manifest.Record) { r.Objects[0].Box[2]++ })
 		}},
 		// parts is a count target of every object (workshop-parts preset).
@@ -182,7 +182,7 @@ func TestVerifyDamage(t *testing.T) {
 		dir := filepath.Join(t.TempDir(), "set")
 		copyTree(t, pristine, dir)
 		stdout, _ := wantCode(t, exitOK, "verify", dir)
-		if !strings.Contains(stdout, "12 records") {
+		if !strings.Contains(stdout, "12 samples") {
 			t.Errorf("verify printed %q", stdout)
 		}
 	})
