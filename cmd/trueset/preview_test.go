@@ -4,9 +4,11 @@ import (
 	"bytes"
 	"image"
 	"image/color"
+	"image/jpeg"
 	"image/png"
 	"os"
 	"path/filepath"
+	"strings"
 	"testing"
 
 	"github.com/trueset/trueset/gen"
@@ -109,5 +111,44 @@ func TestPreviewUsageAndSmallSplits(t *testing.T) {
 	stdout, _ = wantCode(t, exitOK, "preview", dir, "--out", out, "--split", "all", "--count", "9")
 	if !bytes.Contains([]byte(stdout), []byte("9 of 30 samples (3×3 grid")) {
 		t.Errorf("all splits: %q", stdout)
+	}
+}
+
+// The sheet's format follows --out: a JPEG for .jpg and .jpeg (any case;
+// decoded with the standard library's image/jpeg, and starting with the
+// JPEG SOI marker FF D8), a PNG for .png (PNG signature, ISO/IEC 15948);
+// any other extension, or none, is a usage error (exit 2) naming it, and
+// nothing is written.
+func TestPreviewFormatByExtension(t *testing.T) {
+	dir := statsGenerate(t, gen.DefaultPreset, 20)
+	out := t.TempDir()
+	for _, name := range []string{"s.jpg", "s.jpeg", "S.JPG"} {
+		p := filepath.Join(out, name)
+		wantCode(t, exitOK, "preview", dir, "--out", p, "-q")
+		b, err := os.ReadFile(p)
+		if err != nil {
+			t.Fatal(err)
+		}
+		if !bytes.HasPrefix(b, []byte{0xFF, 0xD8}) {
+			t.Errorf("%s starts % x, not a JPEG", name, b[:8])
+		}
+		if _, err := jpeg.Decode(bytes.NewReader(b)); err != nil {
+			t.Errorf("%s: %v", name, err)
+		}
+	}
+	p := filepath.Join(out, "s.png")
+	wantCode(t, exitOK, "preview", dir, "--out", p, "-q")
+	if b, _ := os.ReadFile(p); !bytes.HasPrefix(b, []byte("\x89PNG\r\n\x1a\n")) {
+		t.Errorf("s.png is not a PNG")
+	}
+	for _, c := range []struct{ name, named string }{{"s.gif", ".gif"}, {"s.webp", ".webp"}, {"sheet", "no extension"}} {
+		p := filepath.Join(out, c.name)
+		_, stderr := wantCode(t, exitUsage, "preview", dir, "--out", p)
+		if !strings.Contains(stderr, c.named) {
+			t.Errorf("--out %s: stderr %q does not name %s", c.name, stderr, c.named)
+		}
+		if _, err := os.Stat(p); err == nil {
+			t.Errorf("--out %s was written", c.name)
+		}
 	}
 }

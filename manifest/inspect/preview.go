@@ -9,6 +9,7 @@ import (
 	"sort"
 	"strings"
 	"sync"
+	"unicode/utf8"
 
 	"golang.org/x/image/font"
 	"golang.org/x/image/font/gofont/goregular"
@@ -34,7 +35,7 @@ const (
 	cellGap      = 10
 	fontSize     = 12
 	lineHeight   = 15
-	captionLines = 2
+	captionLines = 2 // lines kept for captions at least; longer ones wrap onto more
 	swatchSize   = 12
 )
 
@@ -65,6 +66,9 @@ type Sheet struct {
 	Cell   image.Point     // size of one cell's picture
 	Scale  string          // "×3", or "÷2" for shrunk images
 	Legend image.Rectangle // the legend rows at the bottom
+	// Captions holds each cell's caption as drawn, wrapped to the cell
+	// width: the id (and split), then the targets as name=value.
+	Captions [][]string
 }
 
 // Preview draws a contact sheet of o.Count samples of a split, chosen by a
@@ -72,7 +76,8 @@ type Sheet struct {
 // order: each cell is the image scaled with nearest neighbor, tinted with
 // the semantic mask's class colors (background untinted, the ignore id and
 // unknown ids hatched gray), each object's box outlined in its class
-// color, and a caption of the id and targets; a legend of class colors
+// color, and a caption of the id and targets, wrapped onto as many lines as
+// it needs (never cut); a legend of class colors
 // closes the sheet. The manifest is read twice (count, then pick) so only
 // the chosen records are held.
 func Preview(dir string, o PreviewOptions) (*Sheet, error) {
@@ -155,9 +160,17 @@ func Preview(dir string, o PreviewOptions) (*Sheet, error) {
 		return nil, err
 	}
 	defer face.Close()
+	// Captions wrap to the cell width, never cut: every cell keeps room
+	// for the longest (and at least captionLines lines).
+	captions := make([][]string, len(recs))
+	lines := captionLines
+	for i, r := range recs {
+		captions[i] = wrapWords(face, caption(d, r, all), cw, "  ")
+		lines = max(lines, len(captions[i]))
+	}
 	// A roughly square grid: of the column counts around the square one,
 	// the one leaving the fewest empty cells, the wider on a tie.
-	cellH := ch + 4 + captionLines*lineHeight
+	cellH := ch + 4 + lines*lineHeight
 	sq := math.Sqrt(float64(k) * float64(cellH+cellGap) / float64(cw+cellGap))
 	cols, empty := 0, k
 	for c := max(1, int(sq)); c <= int(sq)+2; c++ {
@@ -179,14 +192,6 @@ func Preview(dir string, o PreviewOptions) (*Sheet, error) {
 	legendItems := legendLayout(face, classes, width)
 	legendH := legendItems.rows * (lineHeight + 4)
 
-	titleH := lineHeight + 8
-	gridTop := sheetMargin + titleH
-	gridH := rows*cellH + (rows-1)*cellGap
-	legendTop := gridTop + gridH + cellGap
-	height := legendTop + legendH + sheetMargin
-
-	sheet := image.NewRGBA(image.Rect(0, 0, width, height))
-	fill(sheet, sheet.Bounds(), pageColor)
 	what := "split " + o.Split
 	if all {
 		what = "all splits"
@@ -198,7 +203,19 @@ func Preview(dir string, o PreviewOptions) (*Sheet, error) {
 	if font.MeasureString(face, head).Ceil() > width-2*sheetMargin {
 		head = title(filepath.Base(filepath.Clean(dir)))
 	}
-	drawText(sheet, face, sheetMargin, sheetMargin+fontSize, truncate(face, head, width-2*sheetMargin), textColor)
+	// The title wraps too (a narrow sheet, a long folder name).
+	headLines := wrapWords(face, strings.Split(head, " "), width-2*sheetMargin, " ")
+	titleH := len(headLines)*lineHeight + 8
+	gridTop := sheetMargin + titleH
+	gridH := rows*cellH + (rows-1)*cellGap
+	legendTop := gridTop + gridH + cellGap
+	height := legendTop + legendH + sheetMargin
+
+	sheet := image.NewRGBA(image.Rect(0, 0, width, height))
+	fill(sheet, sheet.Bounds(), pageColor)
+	for i, l := range headLines {
+		drawText(sheet, face, sheetMargin, sheetMargin+fontSize+i*lineHeight, l, textColor)
+	}
 
 	s := &Sheet{Image: sheet, Of: n, Cols: cols, Rows: rows, Cell: image.Pt(cw, ch), Scale: scale,
 		Legend: image.Rect(0, legendTop, width, legendTop+legendH)}
@@ -211,7 +228,8 @@ func Preview(dir string, o PreviewOptions) (*Sheet, error) {
 			return nil, fmt.Errorf("record %s: %w", r.ID, err)
 		}
 		outline(sheet, cell.Inset(-1), frameColor)
-		drawCaption(sheet, face, image.Pt(x0, y0+ch+4), cw, caption(d, r, all))
+		drawCaption(sheet, face, image.Pt(x0, y0+ch+4), captions[i])
+		s.Captions = append(s.Captions, captions[i])
 		s.IDs = append(s.IDs, r.ID)
 	}
 	legendItems.draw(sheet, face, legendTop)
@@ -329,54 +347,57 @@ func caption(d *manifest.Dataset, r *manifest.Record, split bool) []string {
 	return append([]string{head}, parts...)
 }
 
-// drawCaption sets the words of a caption in up to captionLines lines of
-// width w, the first word (the id) in full, the last line cut with "…".
-func drawCaption(dst *image.RGBA, face font.Face, at image.Point, w int, words []string) {
+// wrapWords sets words in lines of at most w pixels: firstSep after the
+// first word (two spaces after a caption's id), one space between the
+// others. A word wider than w is broken between characters, so
+// nothing is ever cut off.
+func wrapWords(face font.Face, words []string, w int, firstSep string) []string {
+	fits := func(s string) bool { return font.MeasureString(face, s).Ceil() <= w }
 	var lines []string
 	cur := ""
 	for i, wd := range words {
-		try := wd
-		if cur != "" {
-			sep := " "
-			if i == 1 {
-				sep = "  "
-			}
-			try = cur + sep + wd
-		}
-		if cur == "" || font.MeasureString(face, try).Ceil() <= w {
-			cur = try
+		if wd == "" {
 			continue
 		}
-		lines = append(lines, cur)
+		sep := " "
+		if i == 1 {
+			sep = firstSep
+		}
+		if cur != "" && fits(cur+sep+wd) {
+			cur += sep + wd
+			continue
+		}
+		if cur != "" {
+			lines = append(lines, cur)
+		}
+		cur = ""
+		for !fits(wd) && utf8.RuneCountInString(wd) > 1 {
+			r := []rune(wd)
+			n := len(r) - 1
+			for n > 1 && !fits(string(r[:n])) {
+				n--
+			}
+			lines = append(lines, string(r[:n]))
+			wd = string(r[n:])
+		}
 		cur = wd
-		if len(lines) == captionLines-1 {
-			cur = strings.Join(words[i:], " ")
-			break
-		}
 	}
-	lines = append(lines, cur)
+	if cur != "" || len(lines) == 0 {
+		lines = append(lines, cur)
+	}
+	return lines
+}
+
+// drawCaption sets a wrapped caption: the first line (with the id) dark,
+// the rest muted.
+func drawCaption(dst *image.RGBA, face font.Face, at image.Point, lines []string) {
 	for i, l := range lines {
-		if i == captionLines {
-			break
-		}
 		c := textColor
 		if i > 0 {
 			c = mutedColor
 		}
-		drawText(dst, face, at.X, at.Y+fontSize+i*lineHeight, truncate(face, l, w), c)
+		drawText(dst, face, at.X, at.Y+fontSize+i*lineHeight, l, c)
 	}
-}
-
-// truncate cuts s to fit w pixels, ending in "…" when cut.
-func truncate(face font.Face, s string, w int) string {
-	if font.MeasureString(face, s).Ceil() <= w {
-		return s
-	}
-	r := []rune(s)
-	for len(r) > 0 && font.MeasureString(face, string(r)+"…").Ceil() > w {
-		r = r[:len(r)-1]
-	}
-	return strings.TrimRight(string(r), " ") + "…"
 }
 
 func drawText(dst *image.RGBA, face font.Face, x, baseline int, s string, c color.RGBA) {
