@@ -26,20 +26,21 @@ type Output struct {
 }
 
 // Copy makes copy k (k ≥ 1) of source number src. Every draw comes from
-// manifest.RNG(seed, src, k, try): try counts the redraws the resample
-// policy makes when a crop or turn cuts an object below cut.least_shown
-// (bounded by cut.tries; after that the cut objects are dropped). Labels are
-// then measured again from the warped instance mask, and targets recomputed
-// from defs; targets without a definition are carried over unchanged.
+// manifest.RNG(seed, src, k, try): try counts the redraws the redraw policy
+// makes when a crop or turn cuts an object below cuts.least_shown (bounded
+// by cuts.tries; after that the cut objects are dropped). Labels are then
+// measured again from the warped instance mask, and targets recomputed from
+// defs; targets without a definition are carried over unchanged.
 func (p *Plan) Copy(in *Input, seed uint64, src, k int, defs []manifest.TargetDef) (*Output, error) {
 	W, H := in.Image.W, in.Image.H
+	cuts := &p.Geometry.Cuts
 	var d *Drawn
 	var frac map[int]float64
 	var inst *image.Gray16
-	min := *p.Cut.LeastShown
+	min := *cuts.LeastShown
 	tries := 1
-	if p.Cut.Policy == "resample" {
-		tries = p.Cut.Tries
+	if cuts.Policy == "redraw" {
+		tries = cuts.Tries
 	}
 	ok := false
 	for try := 0; try < tries && !ok; try++ {
@@ -48,10 +49,11 @@ func (p *Plan) Copy(in *Input, seed uint64, src, k int, defs []manifest.TargetDe
 		if err != nil {
 			return nil, fmt.Errorf("%s copy %d: %w", in.Record.ID, k, err)
 		}
+		d.Redraws = try
 		inst = WarpInstances(in.Inst, d.M, d.W, d.H)
 		frac = keptFractions(in.Record.Objects, inst, d.M)
 		ok = true
-		if p.Cut.Policy == "resample" {
+		if cuts.Policy == "redraw" {
 			for _, f := range frac {
 				if f < min {
 					ok = false
@@ -60,69 +62,68 @@ func (p *Plan) Copy(in *Input, seed uint64, src, k int, defs []manifest.TargetDe
 			}
 		}
 	}
-	if !ok {
-		d.Ops = append(d.Ops, manifest.LineageOp{Op: "cut-policy", Params: map[string]float64{"resample_tries": float64(tries), "then_drop": 1}})
-	}
 	// The last try's warped instance mask and kept fractions are what render
 	// would compute again from the same matrix; it takes them over.
 	return p.render(in, d, defs, inst, frac)
 }
 
-// lineageGeometric are the lineage names of geometric steps (their effect
-// is in the composed matrix).
-var lineageGeometric = map[string]bool{"flip-horizontal": true, "flip-vertical": true, "rotate": true, "affine": true, "crop": true, "resize": true}
-
 // Rebuild makes a copy again from its lineage alone (the composed matrix and
-// every photometric step's parameters, noise seeds included) and the plan's
-// fill, interpolation and cut settings. It gives the same bytes as the Copy
-// that wrote the lineage.
+// every pixel step's parameters, noise seeds included) and the plan's
+// geometry settings (sampling, outside, cuts). It gives the same bytes as
+// the Copy that wrote the lineage.
 func (p *Plan) Rebuild(in *Input, lin *manifest.Lineage, w, h int, defs []manifest.TargetDef) (*Output, error) {
-	d := &Drawn{M: Mat(lin.Affine), W: w, H: h, Ops: lin.Ops}
-	for i, op := range lin.Ops {
-		if !lineageGeometric[op.Op] && op.Op != "cut-policy" {
-			d.photo = append(d.photo, photoOp{op.Op, op.Params, i})
-		}
+	d := &Drawn{M: Mat(lin.Matrix), W: w, H: h, Geometry: cloneOps(lin.Geometry), Pixels: cloneOps(lin.Pixels)}
+	if lin.Cuts != nil {
+		d.Redraws = lin.Cuts.Redraws
 	}
 	return p.render(in, d, defs, nil, nil)
 }
 
-// render warps and relabels a drawn copy: image by the plan's interpolation
-// and fill, masks by nearest neighbour with the same matrix; objects cut below
-// cut.least_shown are erased (to "ignore") under the drop policy, or when a
-// resample ran out of tries; then the photometric steps run in order. inst
-// and frac, when not nil, are the instance mask already warped by d.M and its
-// keptFractions (render owns inst from then on).
+// cloneOps copies lineage steps so that render's notes (skipped_gray) do
+// not write into the caller's lineage.
+func cloneOps(ops []manifest.LineageOp) []manifest.LineageOp {
+	out := make([]manifest.LineageOp, len(ops))
+	for i, op := range ops {
+		out[i] = op
+		out[i].Params = append([]manifest.LineageParam(nil), op.Params...)
+	}
+	return out
+}
+
+// render warps and relabels a drawn copy: image by the plan's sampling and
+// outside, masks by nearest neighbour with the same matrix; objects cut
+// below cuts.least_shown are erased (to "ignore") unless the policy is keep
+// (under redraw, only a copy that ran out of tries still has such objects);
+// then the pixel steps run in order. inst and frac, when not nil, are the
+// instance mask already warped by d.M and its keptFractions (render owns
+// inst from then on).
 func (p *Plan) render(in *Input, d *Drawn, defs []manifest.TargetDef, inst *image.Gray16, frac map[int]float64) (*Output, error) {
 	if inst == nil {
 		inst = WarpInstances(in.Inst, d.M, d.W, d.H)
 		frac = keptFractions(in.Record.Objects, inst, d.M)
 	}
-	drop := p.Cut.Policy == "drop"
-	for _, op := range d.Ops {
-		if op.Op == "cut-policy" {
-			drop = true
-		}
-	}
-	min := *p.Cut.LeastShown
+	g := &p.Geometry
+	min := *g.Cuts.LeastShown
 	fillID := uint8(0)
-	if p.MaskFill == "ignore" {
+	if g.Outside.Classes == "ignore" {
 		fillID = manifest.IgnoreID
 	}
 	mask := WarpMask(in.Mask, d.M, d.W, d.H, fillID)
-	fill := Fill{Mode: p.Fill.Mode}
-	if p.Fill.Color != nil {
+	fill := Fill{Mode: g.Outside.Image}
+	if t := g.Outside.Tone; t.RGB != nil {
 		for c := 0; c < 3; c++ {
-			fill.Value[c] = float32(p.Fill.Color[c])
+			fill.Value[c] = float32(t.RGB[c])
 		}
 	} else {
-		fill.Value = [3]float32{float32(p.Fill.Intensity), float32(p.Fill.Intensity), float32(p.Fill.Intensity)}
+		fill.Value = [3]float32{float32(t.Level), float32(t.Level), float32(t.Level)}
 	}
 	interp := Bilinear
-	if p.Interpolation == "bicubic" {
+	if g.Sampling == "bicubic" {
 		interp = Bicubic
 	}
 	img := WarpImage(in.Image, d.M, d.W, d.H, interp, fill)
-	if drop {
+	dropped := 0
+	if g.Cuts.Policy != "keep" {
 		// A dropped object's pixels still show it, so they become "ignore"
 		// rather than background. Erased in id order, for determinism.
 		ids := make([]int, 0, len(frac))
@@ -135,11 +136,13 @@ func (p *Plan) render(in *Input, d *Drawn, defs []manifest.TargetDef, inst *imag
 		for _, id := range ids {
 			erase(mask, inst, id)
 		}
+		dropped = len(ids)
 	}
-	for _, op := range d.photo {
-		if (op.op == "hue" || op.op == "saturation") && img.C == 1 {
+	for i := range d.Pixels {
+		op := &d.Pixels[i]
+		if (op.Do == "hue" || op.Do == "saturation") && img.C == 1 {
 			// Color steps do nothing to a gray image; the lineage says so.
-			op.p["skipped_gray"] = 1
+			op.Set("skipped_gray", true)
 			continue
 		}
 		if err := applyPhoto(img, mask, inst, op); err != nil {
@@ -152,7 +155,16 @@ func (p *Plan) render(in *Input, d *Drawn, defs []manifest.TargetDef, inst *imag
 	rec.Width, rec.Height = d.W, d.H
 	rec.Objects = relabel(in.Record.Objects, inst, d.M, frac)
 	rec.Targets = recompute(defs, rec.Objects, in.Record.Targets)
-	rec.Lineage = &manifest.Lineage{Source: in.Record.ID, Ops: d.Ops, Affine: d.M}
+	rec.Lineage = &manifest.Lineage{Source: in.Record.ID, Geometry: d.Geometry, Pixels: d.Pixels, Matrix: d.M}
+	if rec.Lineage.Geometry == nil {
+		rec.Lineage.Geometry = []manifest.LineageOp{}
+	}
+	if rec.Lineage.Pixels == nil {
+		rec.Lineage.Pixels = []manifest.LineageOp{}
+	}
+	if d.Redraws > 0 || dropped > 0 {
+		rec.Lineage.Cuts = &manifest.LineageCuts{Redraws: d.Redraws, Dropped: dropped}
+	}
 	return out, nil
 }
 
@@ -193,7 +205,7 @@ func erase(mask *image.Paletted, inst *image.Gray16, id int) {
 func relabel(objs []manifest.Object, inst *image.Gray16, m Mat, frac map[int]float64) []manifest.Object {
 	stats := manifest.MeasureInstances(inst)
 	kept := map[int]bool{}
-	var out []manifest.Object
+	out := []manifest.Object{} // [] in the record, not null, when none is left
 	s := math.Sqrt(math.Abs(m.Det()))
 	for _, o := range objs {
 		st := stats[o.Instance]
@@ -229,48 +241,76 @@ func relabel(objs []manifest.Object, inst *image.Gray16, m Mat, frac map[int]flo
 	return out
 }
 
-func applyPhoto(img *Image, mask *image.Paletted, inst *image.Gray16, op photoOp) error {
-	p := op.p
-	rng := manifest.RNG(uint64(p["seed"]))
-	switch op.op {
+func applyPhoto(img *Image, mask *image.Paletted, inst *image.Gray16, op *manifest.LineageOp) error {
+	rng := manifest.RNG(uint64(op.Num("seed")))
+	switch op.Do {
 	case "gaussian-noise":
-		GaussianNoise(img, rng, p["sigma"])
+		GaussianNoise(img, rng, op.Num("sigma"))
 	case "salt-and-pepper":
-		SaltPepper(img, rng, p["fraction"])
+		SaltPepper(img, rng, op.Num("fraction"))
 	case "shot-noise":
-		ShotNoise(img, rng, p["photons"])
+		ShotNoise(img, rng, op.Num("photons"))
 	case "speckle":
-		Speckle(img, rng, p["sigma"])
+		Speckle(img, rng, op.Num("sigma"))
 	case "blur":
-		GaussianBlur(img, p["sigma"])
+		GaussianBlur(img, op.Num("sigma"))
 	case "brightness":
-		Brightness(img, p["delta"])
+		Brightness(img, op.Num("delta"))
 	case "contrast":
-		Contrast(img, p["factor"])
+		Contrast(img, op.Num("factor"))
 	case "gamma":
-		Gamma(img, p["gamma"])
+		Gamma(img, op.Num("gamma"))
 	case "hue":
-		return HueShift(img, p["degrees"])
+		return HueShift(img, op.Num("angle"))
 	case "saturation":
-		return Saturation(img, p["factor"])
+		return Saturation(img, op.Num("factor"))
 	case "jpeg":
-		return JPEGRoundTrip(img, int(p["quality"]))
+		return JPEGRoundTrip(img, int(op.Num("quality")))
 	case "cutout":
-		cutout(img, mask, inst, p)
+		rects, err := CutoutRects(op)
+		if err != nil {
+			return err
+		}
+		cutout(img, mask, inst, float32(op.Num("tone")), op.Str("classes") == "ignore", rects)
 	default:
-		return fmt.Errorf("internal: no photometric step %q", op.op)
+		return fmt.Errorf("internal: no pixel step %q", op.Do)
 	}
 	return nil
 }
 
-// cutout fills rectangles of the image with a constant; with "ignore" their
+// Rect is one cutout rectangle as its lineage records it: center as shares
+// of the canvas width and height, sides in pixels.
+type Rect struct{ U, V, W, H float64 }
+
+// CutoutRects reads a cutout step's rectangles from its lineage entry.
+func CutoutRects(op *manifest.LineageOp) ([]Rect, error) {
+	raw, _ := op.Get("rects")
+	list, ok := raw.([]any)
+	if !ok && raw != nil {
+		return nil, fmt.Errorf("cutout: rects is not a list")
+	}
+	out := make([]Rect, 0, len(list))
+	for i, e := range list {
+		m, ok := e.(map[string]any)
+		c, ok2 := m["center"].([]any)
+		if !ok || !ok2 || len(c) != 2 {
+			return nil, fmt.Errorf("cutout: rects[%d] is not {center: [u, v], width, height}", i)
+		}
+		u, _ := c[0].(float64)
+		v, _ := c[1].(float64)
+		w, _ := m["width"].(float64)
+		h, _ := m["height"].(float64)
+		out = append(out, Rect{u, v, w, h})
+	}
+	return out, nil
+}
+
+// cutout fills rectangles of the image with a constant; with ignore their
 // mask pixels become the ignore id and lose their instance.
-func cutout(img *Image, mask *image.Paletted, inst *image.Gray16, p map[string]float64) {
-	n := int(p["count"])
-	v := float32(p["value"])
-	for k := 0; k < n; k++ {
-		w, h := p[fmt.Sprintf("w%d", k)], p[fmt.Sprintf("h%d", k)]
-		cx, cy := p[fmt.Sprintf("u%d", k)]*float64(img.W), p[fmt.Sprintf("v%d", k)]*float64(img.H)
+func cutout(img *Image, mask *image.Paletted, inst *image.Gray16, v float32, ignore bool, rects []Rect) {
+	for _, r := range rects {
+		w, h := r.W, r.H
+		cx, cy := r.U*float64(img.W), r.V*float64(img.H)
 		x0, y0 := int(math.Round(cx-w/2)), int(math.Round(cy-h/2))
 		x1, y1 := int(math.Round(cx+w/2)), int(math.Round(cy+h/2))
 		x0, y0 = max(x0, 0), max(y0, 0)
@@ -280,7 +320,7 @@ func cutout(img *Image, mask *image.Paletted, inst *image.Gray16, p map[string]f
 				for c := 0; c < img.C; c++ {
 					img.Pix[(y*img.W+x)*img.C+c] = v
 				}
-				if p["ignore"] == 1 {
+				if ignore {
 					mask.Pix[y*mask.Stride+x] = manifest.IgnoreID
 					o := y*inst.Stride + 2*x
 					inst.Pix[o], inst.Pix[o+1] = 0, 0

@@ -9,19 +9,14 @@ import (
 )
 
 // Drawn is one copy's steps with their parameters drawn: the composed matrix
-// and output size of the geometric steps, and the photometric steps in plan
-// order.
+// and output size of the geometry moves, each phase's applied steps as the
+// lineage records them, and how many times the cut policy drew it again.
 type Drawn struct {
-	M     Mat
-	W, H  int
-	Ops   []manifest.LineageOp // every applied step, in plan order, with its parameters
-	photo []photoOp
-}
-
-type photoOp struct {
-	op  string
-	p   map[string]float64
-	lin int // its entry in Drawn.Ops
+	M        Mat
+	W, H     int
+	Geometry []manifest.LineageOp // applied moves, in plan order, with their parameters
+	Pixels   []manifest.LineageOp // applied pixel steps, in plan order, with their parameters
+	Redraws  int                  // draws the redraw policy threw away before this one
 }
 
 func uni(rng *rand.Rand, r *Range) float64 {
@@ -38,78 +33,93 @@ func uniInt(rng *rand.Rand, r *IntRange) int {
 	return r.Min + rng.IntN(r.Max-r.Min+1)
 }
 
-// Draw decides one copy of a w×h source: for every step in order, whether it
-// applies (its chance) and its parameters, all from rng.
+// Draw decides one copy of a w×h source: for every move and then every
+// pixel step in order, whether it applies (its chance) and its parameters,
+// all from rng.
 func (p *Plan) Draw(rng *rand.Rand, w, h int) (*Drawn, error) {
-	d := &Drawn{M: Identity, W: w, H: h}
-	if err := d.steps(rng, p.Steps); err != nil {
+	d := &Drawn{M: Identity, W: w, H: h, Geometry: []manifest.LineageOp{}, Pixels: []manifest.LineageOp{}}
+	if err := d.steps(rng, p.Geometry.Moves, nil); err != nil {
+		return nil, err
+	}
+	if err := d.steps(rng, p.Pixels, nil); err != nil {
 		return nil, err
 	}
 	return d, nil
 }
 
-func (d *Drawn) steps(rng *rand.Rand, steps []Step) error {
+// steps draws steps in order; pick, when not nil, is the index a pick chose
+// steps (of one) by.
+func (d *Drawn) steps(rng *rand.Rand, steps []Step, pick *int) error {
 	for i := range steps {
 		s := &steps[i]
 		if rng.Float64() >= *s.Chance {
 			continue
 		}
-		if s.Op == "one-of" {
+		if s.Do == "pick" {
 			total := 0.0
-			for _, w := range s.Weights {
+			for _, w := range s.Odds {
 				total += w
 			}
 			u := rng.Float64() * total
-			pick := len(s.Steps) - 1
-			for j, w := range s.Weights {
+			j := len(s.From) - 1
+			for k, w := range s.Odds {
 				if u < w {
-					pick = j
+					j = k
 					break
 				}
 				u -= w
 			}
-			if err := d.steps(rng, s.Steps[pick:pick+1]); err != nil {
+			if err := d.steps(rng, s.From[j:j+1], &j); err != nil {
 				return err
 			}
 			continue
 		}
-		if err := d.step(rng, s); err != nil {
+		if err := d.step(rng, s, pick); err != nil {
 			return err
 		}
 	}
 	return nil
 }
 
-func (d *Drawn) add(op string, m Mat, params map[string]float64) {
-	d.M = d.M.Then(m)
-	d.Ops = append(d.Ops, manifest.LineageOp{Op: op, Params: params})
+// param is one drawn parameter of a lineage entry.
+func param(name string, v any) manifest.LineageParam {
+	return manifest.LineageParam{Name: name, Value: v}
 }
 
-func (d *Drawn) step(rng *rand.Rand, s *Step) error {
+func (d *Drawn) move(s *Step, pick *int, m Mat, params ...manifest.LineageParam) {
+	d.M = d.M.Then(m)
+	d.Geometry = append(d.Geometry, manifest.LineageOp{Do: s.Do, Pick: pickIndex(pick), Params: params})
+}
+
+func pickIndex(pick *int) *int {
+	if pick == nil {
+		return nil
+	}
+	i := *pick
+	return &i
+}
+
+func (d *Drawn) step(rng *rand.Rand, s *Step, pick *int) error {
 	w, h := float64(d.W), float64(d.H)
-	switch s.Op {
+	switch s.Do {
 	case "flip":
 		if s.Axis == "horizontal" {
-			d.add("flip-horizontal", FlipH(w), nil)
+			d.move(s, pick, FlipH(w), param("axis", "horizontal"))
 		} else {
-			d.add("flip-vertical", FlipV(h), nil)
+			d.move(s, pick, FlipV(h), param("axis", "vertical"))
 		}
 	case "rotate":
-		deg := uni(rng, s.Degrees)
-		m, ow, oh := RotateCanvas(w, h, deg, s.Expand)
+		deg := uni(rng, s.Angle)
+		m, ow, oh := RotateCanvas(w, h, deg, s.GrowCanvas)
 		if ow > MaxSide || oh > MaxSide {
-			return fmt.Errorf("rotate with expand makes a %d×%d canvas; at most %d a side", ow, oh, MaxSide)
+			return fmt.Errorf("rotate with grow_canvas makes a %d×%d canvas; at most %d a side", ow, oh, MaxSide)
 		}
-		exp := 0.0
-		if s.Expand {
-			exp = 1
-		}
-		d.add("rotate", m, map[string]float64{"degrees": deg, "expand": exp})
+		d.move(s, pick, m, param("angle", deg), param("grow_canvas", s.GrowCanvas))
 		d.W, d.H = ow, oh
-	case "affine":
-		sc, tx, ty, sh := uni(rng, s.Scale), uni(rng, s.Translate), uni(rng, s.Translate), uni(rng, s.Shear)
+	case "warp":
+		sc, tx, ty, sh := uni(rng, s.Zoom), uni(rng, s.Shift), uni(rng, s.Shift), uni(rng, s.Slant)
 		m := About(ShearX(sh).Then(Scale(sc, sc)), w/2, h/2, w/2+tx, h/2+ty)
-		d.add("affine", m, map[string]float64{"scale": sc, "translate_x": tx, "translate_y": ty, "shear": sh})
+		d.move(s, pick, m, param("zoom", sc), param("shift", []any{tx, ty}), param("slant", sh))
 	case "crop":
 		aspect := w / h
 		if s.Aspect != nil {
@@ -126,58 +136,59 @@ func (d *Drawn) step(rng *rand.Rand, s *Step) error {
 		x0 := rng.Float64() * (w - cw)
 		y0 := rng.Float64() * (h - ch)
 		ow, oh := d.W, d.H
-		if s.Output != nil {
-			ow, oh = s.Output[0], s.Output[1]
+		if s.To != nil {
+			ow, oh = s.To[0], s.To[1]
 		}
-		d.add("crop", CropResize(x0, y0, cw, ch, ow, oh), map[string]float64{"x": x0, "y": y0, "width": cw, "height": ch, "output_width": float64(ow), "output_height": float64(oh)})
+		d.move(s, pick, CropResize(x0, y0, cw, ch, ow, oh),
+			param("x", x0), param("y", y0), param("width", cw), param("height", ch), param("to", []any{float64(ow), float64(oh)}))
 		d.W, d.H = ow, oh
 	case "resize":
-		ow, oh := s.Output[0], s.Output[1]
-		d.add("resize", Scale(float64(ow)/w, float64(oh)/h), map[string]float64{"output_width": float64(ow), "output_height": float64(oh)})
+		ow, oh := s.To[0], s.To[1]
+		d.move(s, pick, Scale(float64(ow)/w, float64(oh)/h), param("to", []any{float64(ow), float64(oh)}))
 		d.W, d.H = ow, oh
 	default:
-		params := map[string]float64{}
-		switch s.Op {
+		op := manifest.LineageOp{Do: s.Do, Pick: pickIndex(pick)}
+		switch s.Do {
 		case "gaussian-noise", "speckle", "blur":
-			params["sigma"] = uni(rng, s.Sigma)
+			op.Set("sigma", uni(rng, s.Sigma))
 		case "salt-and-pepper":
-			params["fraction"] = uni(rng, s.Fraction)
+			op.Set("fraction", uni(rng, s.Fraction))
 		case "shot-noise":
-			params["photons"] = uni(rng, s.Photons)
+			op.Set("photons", uni(rng, s.Photons))
 		case "brightness":
-			params["delta"] = uni(rng, s.Delta)
+			op.Set("delta", uni(rng, s.Delta))
 		case "contrast", "saturation":
-			params["factor"] = uni(rng, s.Factor)
+			op.Set("factor", uni(rng, s.Factor))
 		case "gamma":
-			params["gamma"] = uni(rng, s.Gamma)
+			op.Set("gamma", uni(rng, s.Gamma))
 		case "hue":
-			params["degrees"] = uni(rng, s.Degrees)
+			op.Set("angle", uni(rng, s.Angle))
 		case "jpeg":
-			params["quality"] = float64(uniInt(rng, s.Quality))
+			op.Set("quality", float64(uniInt(rng, s.Quality)))
 		case "cutout":
 			n := uniInt(rng, s.Count)
-			params["count"] = float64(n)
-			params["value"] = uni(rng, s.Value)
-			if s.Masks == "ignore" {
-				params["ignore"] = 1
-			}
+			op.Set("count", float64(n))
+			op.Set("tone", uni(rng, s.Tone))
+			op.Set("classes", s.Classes)
+			rects := make([]any, 0, n)
 			for k := 0; k < n; k++ {
-				// Positions as fractions of the final canvas, known only
-				// once every geometric step is drawn.
-				params[fmt.Sprintf("w%d", k)] = uni(rng, s.Size)
-				params[fmt.Sprintf("h%d", k)] = uni(rng, s.Size)
-				params[fmt.Sprintf("u%d", k)] = rng.Float64()
-				params[fmt.Sprintf("v%d", k)] = rng.Float64()
+				// Centers as shares of the final canvas, known only once
+				// every move is drawn; sides in pixels.
+				rw := uni(rng, s.Size)
+				rh := uni(rng, s.Size)
+				u := rng.Float64()
+				v := rng.Float64()
+				rects = append(rects, map[string]any{"center": []any{u, v}, "width": rw, "height": rh})
 			}
+			op.Set("rects", rects)
 		}
-		// Noise steps get a seed of their own so the copy can be replayed
+		// Noise steps get a seed of their own so the copy can be rebuilt
 		// from its lineage alone.
-		switch s.Op {
+		switch s.Do {
 		case "gaussian-noise", "salt-and-pepper", "shot-noise", "speckle":
-			params["seed"] = float64(rng.Uint64() >> 11) // 53 bits: exact in a float64
+			op.Set("seed", float64(rng.Uint64()>>11)) // 53 bits: exact in a float64
 		}
-		d.photo = append(d.photo, photoOp{s.Op, params, len(d.Ops)})
-		d.Ops = append(d.Ops, manifest.LineageOp{Op: s.Op, Params: params})
+		d.Pixels = append(d.Pixels, op)
 	}
 	return nil
 }

@@ -392,7 +392,7 @@ func folderPair(imagesDir string, images map[string]string, masksDir string, mas
 type folderClassEntry struct {
 	ID        *int     `json:"id"`
 	Name      *string  `json:"name"`
-	Color    []int    `json:"color"`
+	Color     []int    `json:"color"`
 	Flip      *bool    `json:"flip"`
 	MaxRotate *float64 `json:"max_rotate"`
 }

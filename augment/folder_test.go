@@ -600,7 +600,7 @@ func TestFolderErrors(t *testing.T) {
 		{"classes: id out of range", setClasses(`[{"id": 300}]`), []string{"@classes.json", "0..254"}},
 		{"classes: duplicate id", setClasses(`[{"id": 1}, {"id": 1, "name": "x"}]`), []string{"@classes.json", "entry 2", "twice"}},
 		{"classes: duplicate name", setClasses(`[{"id": 1, "name": "a"}, {"id": 2, "name": "a"}]`), []string{"@classes.json", `"a"`, "class 1"}},
-		{"classes: misspelt field", setClasses(`[{"id": 1, "color": [1, 2, 3]}]`), []string{"@classes.json", `"color"`}},
+		{"classes: misspelt field", setClasses(`[{"id": 1, "colour": [1, 2, 3]}]`), []string{"@classes.json", `"colour"`}},
 		{"classes: bad color", setClasses(`[{"id": 1, "color": [1, 2, 300]}]`), []string{"@classes.json", "300", "0..255"}},
 		{"classes: negative max_rotate", setClasses(`[{"id": 1, "max_rotate": -5}]`), []string{"@classes.json", "max_rotate", "leave it out"}},
 		{"classes: no id", setClasses(`[{"name": "leaf"}]`), []string{"@classes.json", `no "id"`}},

@@ -51,12 +51,14 @@ func TestCheckInvarianceFlip(t *testing.T) {
 	cls[2].Flip = invBool(false) // "block" does not survive a mirror
 	p := labParsePlan(t, `
 name: flips
-steps:
-  - {op: brightness, delta: [-5, 5]}
-  - {op: rotate, degrees: [-10, 10]}
-  - {op: flip, axis: vertical, chance: 0.5}
+geometry:
+  moves:
+    - {do: rotate, angle: [-10, 10]}
+    - {do: flip, axis: vertical, chance: 0.5}
+pixels:
+  - {do: brightness, delta: [-5, 5]}
 `)
-	invRefuses(t, "flip of a no-flip class", p, cls, labDefs, `"block"`, "steps[2]")
+	invRefuses(t, "flip of a no-flip class", p, cls, labDefs, `"block"`, "geometry.moves[1]")
 	// Flip true, or absent, keeps the label.
 	ok := invClasses()
 	ok[1].Flip = invBool(true)
@@ -64,42 +66,47 @@ steps:
 	// A flip that never happens breaks nothing.
 	never := labParsePlan(t, `
 name: no-flip
-steps:
-  - {op: flip, axis: horizontal, chance: 0}
-  - {op: rotate, degrees: [-10, 10]}
+geometry:
+  moves:
+    - {do: flip, axis: horizontal, chance: 0}
+    - {do: rotate, angle: [-10, 10]}
 `)
 	invAccepts(t, "flip with chance 0", never, cls, labDefs)
-	// Inside a one-of, the child's path is named.
+	// Inside a pick, the child's path is named.
 	nested := labParsePlan(t, `
 name: nested
-steps:
-  - {op: blur, sigma: [0.5, 1]}
-  - op: one-of
-    steps:
-      - {op: rotate, degrees: [-5, 5]}
-      - {op: flip, axis: horizontal}
+geometry:
+  moves:
+    - do: pick
+      from:
+        - {do: rotate, angle: [-5, 5]}
+        - {do: flip, axis: horizontal}
+pixels:
+  - {do: blur, sigma: [0.5, 1]}
 `)
-	invRefuses(t, "flip inside one-of", nested, cls, labDefs, `"block"`, "steps[1].steps[1]")
-	// A one-of that never happens is not looked into.
+	invRefuses(t, "flip inside pick", nested, cls, labDefs, `"block"`, "geometry.moves[0].from[1]")
+	// A pick that never happens is not looked into.
 	nestedNever := labParsePlan(t, `
 name: nested-never
-steps:
-  - op: one-of
-    chance: 0
-    steps:
-      - {op: flip, axis: horizontal}
+geometry:
+  moves:
+    - do: pick
+      chance: 0
+      from:
+        - {do: flip, axis: horizontal}
 `)
-	invAccepts(t, "one-of with chance 0", nestedNever, cls, labDefs)
-	// A child with chance 0 inside a one-of is not either.
+	invAccepts(t, "pick with chance 0", nestedNever, cls, labDefs)
+	// A child with chance 0 inside a pick is not either.
 	childNever := labParsePlan(t, `
 name: child-never
-steps:
-  - op: one-of
-    steps:
-      - {op: flip, axis: horizontal, chance: 0}
-      - {op: rotate, degrees: [-5, 5]}
+geometry:
+  moves:
+    - do: pick
+      from:
+        - {do: flip, axis: horizontal, chance: 0}
+        - {do: rotate, angle: [-5, 5]}
 `)
-	invAccepts(t, "one-of child with chance 0", childNever, cls, labDefs)
+	invAccepts(t, "pick child with chance 0", childNever, cls, labDefs)
 }
 
 func TestCheckInvarianceRotate(t *testing.T) {
@@ -107,45 +114,51 @@ func TestCheckInvarianceRotate(t *testing.T) {
 	cls[1].MaxRotate = invDeg(15) // "disc" keeps its label within ±15°
 	wide := labParsePlan(t, `
 name: wide
-steps:
-  - {op: flip, axis: horizontal, chance: 0.5}
-  - {op: rotate, degrees: [-10, 30]}
+geometry:
+  moves:
+    - {do: flip, axis: horizontal, chance: 0.5}
+    - {do: rotate, angle: [-10, 30]}
 `)
-	invRefuses(t, "turn beyond max_rotate", wide, cls, labDefs, `"disc"`, "steps[1]", "30", "15")
+	invRefuses(t, "turn beyond max_rotate", wide, cls, labDefs, `"disc"`, "geometry.moves[1]", "30", "15")
 	narrow := labParsePlan(t, `
 name: narrow
-steps:
-  - {op: rotate, degrees: [-10, 10]}
-  - {op: affine, scale: [0.9, 1.1], shear: [-5, 5]}
+geometry:
+  moves:
+    - {do: rotate, angle: [-10, 10]}
+    - {do: warp, zoom: [0.9, 1.1], slant: [-5, 5]}
 `)
-	// A shear of 5° tilts the y axis by 5°; with ±10° of turn, 15° in all.
+	// A slant of 5° tilts the y axis by 5°; with ±10° of turn, 15° in all.
 	invAccepts(t, "turn within max_rotate", narrow, cls, labDefs)
 	single := labParsePlan(t, `
 name: single
-steps:
-  - {op: rotate, degrees: [-15, 15]}
+geometry:
+  moves:
+    - {do: rotate, angle: [-15, 15]}
 `)
 	invAccepts(t, "one turn of exactly max_rotate", single, cls, labDefs)
 	negative := labParsePlan(t, `
 name: negative
-steps:
-  - {op: rotate, degrees: [-40, 5]}
+geometry:
+  moves:
+    - {do: rotate, angle: [-40, 5]}
 `)
-	invRefuses(t, "negative turn beyond max_rotate", negative, cls, labDefs, `"disc"`, "steps[0]", "40", "15")
+	invRefuses(t, "negative turn beyond max_rotate", negative, cls, labDefs, `"disc"`, "geometry.moves[0]", "40", "15")
 	nested := labParsePlan(t, `
 name: nested
-steps:
-  - op: one-of
-    weights: [3, 1]
-    steps:
-      - {op: rotate, degrees: [-5, 5]}
-      - {op: rotate, degrees: [-90, 90]}
+geometry:
+  moves:
+    - do: pick
+      odds: [3, 1]
+      from:
+        - {do: rotate, angle: [-5, 5]}
+        - {do: rotate, angle: [-90, 90]}
 `)
-	invRefuses(t, "turn inside one-of", nested, cls, labDefs, `"disc"`, "steps[0].steps[1]", "90", "15")
+	invRefuses(t, "turn inside pick", nested, cls, labDefs, `"disc"`, "geometry.moves[0].from[1]", "90", "15")
 	never := labParsePlan(t, `
 name: never
-steps:
-  - {op: rotate, degrees: [-90, 90], chance: 0}
+geometry:
+  moves:
+    - {do: rotate, angle: [-90, 90], chance: 0}
 `)
 	invAccepts(t, "wide turn with chance 0", never, cls, labDefs)
 
@@ -155,10 +168,12 @@ steps:
 	// turned that far (the composed matrix's angle), then want a refusal.
 	twice := labParsePlan(t, `
 name: twice
-steps:
-  - {op: rotate, degrees: [-10, 10]}
-  - {op: brightness, delta: [-5, 5]}
-  - {op: rotate, degrees: [-10, 10]}
+geometry:
+  moves:
+    - {do: rotate, angle: [-10, 10]}
+    - {do: rotate, angle: [-10, 10]}
+pixels:
+  - {do: brightness, delta: [-5, 5]}
 `)
 	in := labSources()[0]
 	worst := 0.0
@@ -167,34 +182,36 @@ steps:
 		if err != nil {
 			t.Fatal(err)
 		}
-		worst = max(worst, math.Abs(Mat(out.Record.Lineage.Affine).Angle()))
+		worst = max(worst, math.Abs(Mat(out.Record.Lineage.Matrix).Angle()))
 	}
 	if worst <= 15 {
 		t.Fatalf("40 copies of two ±10° turns turned at most %.1f°; the test needs one beyond 15°", worst)
 	}
 	t.Logf("two ±10° turns: copies turned up to %.1f°", worst)
-	invRefuses(t, "two turns adding up beyond max_rotate", twice, cls, labDefs, `"disc"`, "steps[2]", "20", "15")
-	// The worst child of a one-of counts: ±12 then ±5 is 17 > 15 …
+	invRefuses(t, "two turns adding up beyond max_rotate", twice, cls, labDefs, `"disc"`, "geometry.moves[1]", "20", "15")
+	// The worst child of a pick counts: ±12 then ±5 is 17 > 15 …
 	choice := labParsePlan(t, `
 name: choice
-steps:
-  - op: one-of
-    steps:
-      - {op: rotate, degrees: [-5, 5]}
-      - {op: rotate, degrees: [-12, 12]}
-  - {op: rotate, degrees: [-5, 5]}
+geometry:
+  moves:
+    - do: pick
+      from:
+        - {do: rotate, angle: [-5, 5]}
+        - {do: rotate, angle: [-12, 12]}
+    - {do: rotate, angle: [-5, 5]}
 `)
-	invRefuses(t, "one-of turn plus a turn", choice, cls, labDefs, `"disc"`, "steps[1]", "17", "15")
+	invRefuses(t, "pick turn plus a turn", choice, cls, labDefs, `"disc"`, "geometry.moves[1]", "17", "15")
 	// … while ±8 then ±5 is 13 ≤ 15; and turns with chance 0 add nothing.
 	fine := labParsePlan(t, `
 name: fine
-steps:
-  - op: one-of
-    steps:
-      - {op: rotate, degrees: [-5, 5]}
-      - {op: rotate, degrees: [-8, 8]}
-  - {op: rotate, degrees: [-60, 60], chance: 0}
-  - {op: rotate, degrees: [-5, 5]}
+geometry:
+  moves:
+    - do: pick
+      from:
+        - {do: rotate, angle: [-5, 5]}
+        - {do: rotate, angle: [-8, 8]}
+    - {do: rotate, angle: [-60, 60], chance: 0}
+    - {do: rotate, angle: [-5, 5]}
 `)
 	invAccepts(t, "turns adding up within max_rotate", fine, cls, labDefs)
 }
@@ -205,35 +222,40 @@ func TestCheckInvarianceText(t *testing.T) {
 	number := append(append([]manifest.TargetDef(nil), labDefs...), manifest.TargetDef{Name: "code", Kind: "number"})
 	flip := labParsePlan(t, `
 name: flip
-steps:
-  - {op: rotate, degrees: [-5, 5]}
-  - {op: flip, axis: horizontal, chance: 0.3}
+geometry:
+  moves:
+    - {do: rotate, angle: [-5, 5]}
+    - {do: flip, axis: horizontal, chance: 0.3}
 `)
-	invRefuses(t, "flip of text", flip, cls, text, `"reading"`, "steps[1]")
-	invRefuses(t, "flip of a number reading", flip, cls, number, `"code"`, "steps[1]")
+	invRefuses(t, "flip of text", flip, cls, text, `"reading"`, "geometry.moves[1]")
+	invRefuses(t, "flip of a number reading", flip, cls, number, `"code"`, "geometry.moves[1]")
 	invAccepts(t, "flip without text targets", flip, cls, labDefs)
 	over := labParsePlan(t, `
 name: over
-steps:
-  - {op: rotate, degrees: [-120, 120]}
+geometry:
+  moves:
+    - {do: rotate, angle: [-120, 120]}
 `)
-	invRefuses(t, "turn of text beyond 90°", over, cls, text, `"reading"`, "steps[0]", "120")
+	invRefuses(t, "turn of text beyond 90°", over, cls, text, `"reading"`, "geometry.moves[0]", "120")
 	upright := labParsePlan(t, `
 name: upright
-steps:
-  - {op: rotate, degrees: [-90, 90]}
-  - {op: crop, area: [0.8, 1]}
-  - {op: gaussian-noise, sigma: 3}
+geometry:
+  moves:
+    - {do: rotate, angle: [-90, 90]}
+    - {do: crop, area: [0.8, 1]}
+pixels:
+  - {do: gaussian-noise, sigma: 3}
 `)
 	invAccepts(t, "text turned within ±90°", upright, cls, text)
 	// Two ±60° turns can turn text by 120°: upside down.
 	twice := labParsePlan(t, `
 name: twice
-steps:
-  - {op: rotate, degrees: [-60, 60]}
-  - {op: rotate, degrees: [-60, 60]}
+geometry:
+  moves:
+    - {do: rotate, angle: [-60, 60]}
+    - {do: rotate, angle: [-60, 60]}
 `)
-	invRefuses(t, "two turns of text adding up beyond 90°", twice, cls, text, `"reading"`, "steps[1]", "120")
+	invRefuses(t, "two turns of text adding up beyond 90°", twice, cls, text, `"reading"`, "geometry.moves[1]", "120")
 }
 
 // TestRunRefusesBrokenInvarianceBeforeWriting: augment.Run on a dataset
@@ -251,8 +273,8 @@ func TestRunRefusesBrokenInvarianceBeforeWriting(t *testing.T) {
 	out := filepath.Join(tmp, "out")
 	o := RunOptions{In: in, Out: out, Plan: labEveryStep(t), Copies: 2, Seed: 3, Workers: 2, Version: "test"}
 	_, err := Run(context.Background(), o)
-	if err == nil || !strings.Contains(err.Error(), `"disc"`) || !strings.Contains(err.Error(), "steps[0]") {
-		t.Fatalf("Run with a flip of a no-flip class: err = %v, want a refusal naming \"disc\" and steps[0]", err)
+	if err == nil || !strings.Contains(err.Error(), `"disc"`) || !strings.Contains(err.Error(), "geometry.moves[0]") {
+		t.Fatalf("Run with a flip of a no-flip class: err = %v, want a refusal naming \"disc\" and geometry.moves[0]", err)
 	}
 	if _, serr := os.Stat(out); !os.IsNotExist(serr) {
 		ents, _ := os.ReadDir(out)

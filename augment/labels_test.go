@@ -114,7 +114,7 @@ func labInput(id string, w, h, c int, shapes []labShape) *Input {
 
 // labSources are a few small inputs, gray and RGB, with objects in the
 // middle, overlapping, and touching the border (so crops and turns cut them
-// and the resample policy has work to do).
+// and the redraw policy has work to do).
 func labSources() []*Input {
 	red, blue, green, gray := [3]float32{230, 40, 40}, [3]float32{30, 90, 240}, [3]float32{40, 200, 70}, [3]float32{200, 200, 200}
 	return []*Input{
@@ -259,58 +259,98 @@ func labLineageMatrix(t *testing.T, lin *manifest.Lineage, w, h int) Mat {
 	t.Helper()
 	m := Identity
 	W, H := float64(w), float64(h)
-	for _, op := range lin.Ops {
-		p := op.Params
-		switch op.Op {
-		case "flip-horizontal":
-			m = m.Then(FlipH(W))
-		case "flip-vertical":
-			m = m.Then(FlipV(H))
+	for _, op := range lin.Geometry {
+		to := labNums(t, op, "to")
+		switch op.Do {
+		case "flip":
+			switch op.Str("axis") {
+			case "horizontal":
+				m = m.Then(FlipH(W))
+			case "vertical":
+				m = m.Then(FlipV(H))
+			default:
+				t.Fatalf("flip with axis %q", op.Str("axis"))
+			}
 		case "rotate":
-			r, ow, oh := RotateCanvas(W, H, p["degrees"], p["expand"] == 1)
+			grow, ok := op.Get("grow_canvas")
+			if _, isBool := grow.(bool); !ok || !isBool {
+				t.Fatalf("rotate: grow_canvas is %#v, want a JSON boolean", grow)
+			}
+			r, ow, oh := RotateCanvas(W, H, op.Num("angle"), op.Bool("grow_canvas"))
 			m = m.Then(r)
 			W, H = float64(ow), float64(oh)
-		case "affine":
-			m = m.Then(About(ShearX(p["shear"]).Then(Scale(p["scale"], p["scale"])), W/2, H/2, W/2+p["translate_x"], H/2+p["translate_y"]))
+		case "warp":
+			z, shift := op.Num("zoom"), labNums(t, op, "shift")
+			m = m.Then(About(ShearX(op.Num("slant")).Then(Scale(z, z)), W/2, H/2, W/2+shift[0], H/2+shift[1]))
 		case "crop":
-			m = m.Then(CropResize(p["x"], p["y"], p["width"], p["height"], int(p["output_width"]), int(p["output_height"])))
-			W, H = p["output_width"], p["output_height"]
+			m = m.Then(CropResize(op.Num("x"), op.Num("y"), op.Num("width"), op.Num("height"), int(to[0]), int(to[1])))
+			W, H = to[0], to[1]
 		case "resize":
-			m = m.Then(Scale(p["output_width"]/W, p["output_height"]/H))
-			W, H = p["output_width"], p["output_height"]
+			m = m.Then(Scale(to[0]/W, to[1]/H))
+			W, H = to[0], to[1]
+		default:
+			t.Fatalf("lineage geometry holds %q, which is no move", op.Do)
 		}
 	}
 	return m
 }
 
-// labCutCheck checks the cut policy of a copy. Under resample, unless the
-// lineage ends in "cut-policy", every source object kept at least
-// cut.least_shown of its pixels through the warp: warped area ≥
+// labNums reads a lineage parameter that is a list of two numbers (nil when
+// absent).
+func labNums(t *testing.T, op manifest.LineageOp, name string) []float64 {
+	t.Helper()
+	v, ok := op.Get(name)
+	if !ok {
+		return nil
+	}
+	l, ok := v.([]any)
+	if !ok || len(l) != 2 {
+		t.Fatalf("%s: %s is %#v, want two numbers", op.Do, name, v)
+	}
+	out := make([]float64, 2)
+	for i, e := range l {
+		f, ok := e.(float64)
+		if !ok {
+			t.Fatalf("%s: %s is %#v, want two numbers", op.Do, name, v)
+		}
+		out[i] = f
+	}
+	return out
+}
+
+// labCutCheck checks the cut policy of a copy. Under redraw, unless the
+// lineage's cuts say objects were dropped, every source object kept at least
+// cuts.least_shown of its pixels through the warp: warped area ≥
 // least_shown · source area · |det M|. The warped area is measured before
 // any cutout (cutout hides pixels on purpose, after the policy), and the only
 // tolerance is float rounding (1e-9 of the area): the policy's share is
-// this very ratio, so no sampling slack is owed. With "cut-policy" the
-// objects below the share are gone from the record and their warped pixels
-// are 255 in the mask and 0 in the instances. It returns whether the copy
-// dropped objects.
+// this very ratio, so no sampling slack is owed. When objects were dropped
+// (the redraws ran out), the objects below the share, exactly as many as
+// cuts.dropped says, are gone from the record and their warped pixels are 255
+// in the mask and 0 in the instances. It returns whether the copy dropped
+// objects.
 func labCutCheck(t *testing.T, what string, p *Plan, in *Input, out *Output) bool {
 	t.Helper()
 	r := &out.Record
 	lin := r.Lineage
-	m := Mat(lin.Affine)
+	m := Mat(lin.Matrix)
 	pre := WarpInstances(in.Inst, m, r.Width, r.Height)
 	preStats := manifest.MeasureInstances(pre)
 	det := math.Abs(m.Det())
-	min := *p.Cut.LeastShown
-	dropped, cutout := false, false
-	for _, op := range lin.Ops {
-		if op.Op == "cut-policy" {
-			dropped = true
-		}
-		if op.Op == "cutout" && op.Params["ignore"] == 1 {
+	min := *p.Geometry.Cuts.LeastShown
+	dropped, cutout := lin.Cuts != nil && lin.Cuts.Dropped > 0, false
+	if lin.Cuts != nil && (lin.Cuts.Redraws < 0 || lin.Cuts.Redraws >= p.Geometry.Cuts.Tries || (lin.Cuts.Redraws == 0 && lin.Cuts.Dropped == 0)) {
+		t.Errorf("%s: lineage cuts %+v with %d tries", what, *lin.Cuts, p.Geometry.Cuts.Tries)
+	}
+	if dropped && lin.Cuts.Redraws != p.Geometry.Cuts.Tries-1 {
+		t.Errorf("%s: objects dropped after %d redraws, want every one of the %d tries used", what, lin.Cuts.Redraws, p.Geometry.Cuts.Tries)
+	}
+	for _, op := range lin.Pixels {
+		if op.Do == "cutout" && op.Str("classes") == "ignore" {
 			cutout = true
 		}
 	}
+	below := 0
 	kept := map[int]*manifest.Object{}
 	for i := range r.Objects {
 		kept[r.Objects[i].Instance] = &r.Objects[i]
@@ -323,11 +363,11 @@ func labCutCheck(t *testing.T, what string, p *Plan, in *Input, out *Output) boo
 		need := min * float64(o.Area) * det
 		if !dropped {
 			if float64(a) < need-1e-9*float64(o.Area) {
-				t.Errorf("%s: object %d keeps %d px of %d·|det %.4f|, below least_shown %g (no cut-policy in the lineage)", what, o.Instance, a, o.Area, det, min)
+				t.Errorf("%s: object %d keeps %d px of %d·|det %.4f|, below least_shown %g (no objects dropped in the lineage)", what, o.Instance, a, o.Area, det, min)
 			}
 			if ko := kept[o.Instance]; ko == nil {
 				if !cutout {
-					t.Errorf("%s: object %d vanished without a cutout or a cut-policy", what, o.Instance)
+					t.Errorf("%s: object %d vanished without a cutout or a drop", what, o.Instance)
 				}
 			} else if !cutout && ko.Shown < min*o.Shown-0.5e-4 {
 				// Visible is rounded to 4 decimals, hence 0.5e-4.
@@ -340,8 +380,9 @@ func labCutCheck(t *testing.T, what string, p *Plan, in *Input, out *Output) boo
 				t.Errorf("%s: object %d keeps %d px (≥ least_shown %g of %d·%.4f) but was dropped", what, o.Instance, a, min, o.Area, det)
 			}
 		} else {
+			below++
 			if kept[o.Instance] != nil {
-				t.Errorf("%s: object %d keeps %d px (< least_shown %g of %d·%.4f) but is still in the record after cut-policy", what, o.Instance, a, min, o.Area, det)
+				t.Errorf("%s: object %d keeps %d px (< least_shown %g of %d·%.4f) but is still in the record after the drop", what, o.Instance, a, min, o.Area, det)
 			}
 			for i := 0; i+1 < len(pre.Pix); i += 2 {
 				if int(pre.Pix[i])<<8|int(pre.Pix[i+1]) == o.Instance {
@@ -352,6 +393,9 @@ func labCutCheck(t *testing.T, what string, p *Plan, in *Input, out *Output) boo
 				}
 			}
 		}
+	}
+	if dropped && below != lin.Cuts.Dropped {
+		t.Errorf("%s: lineage cuts.dropped %d, but %d objects fell below least_shown", what, lin.Cuts.Dropped, below)
 	}
 	return dropped
 }
@@ -370,8 +414,8 @@ func labDigest(in *Input) string {
 // TestEveryStepLabelsAgree runs 300 copies of the every-step plan over the
 // synthetic sources and checks each one's record against its masks, its
 // count targets, its cut policy and its lineage; then 120 copies with
-// cut.tries = 1, so the resample policy runs out and the drop path
-// ("cut-policy" in the lineage) is exercised too.
+// cuts.tries = 1, so the redraw policy runs out and the drop path
+// (cuts.dropped in the lineage) is exercised too.
 func TestEveryStepLabelsAgree(t *testing.T) {
 	srcs := labSources()
 	before := make([]string, len(srcs))
@@ -398,13 +442,23 @@ func TestEveryStepLabelsAgree(t *testing.T) {
 			}
 			m := labLineageMatrix(t, lin, in.Image.W, in.Image.H)
 			for i := range m {
-				if math.Abs(m[i]-lin.Affine[i]) > 1e-9*math.Max(1, math.Abs(m[i])) {
-					t.Errorf("%s: the lineage's steps compose to %v, its matrix is %v", what, m, lin.Affine)
+				if math.Abs(m[i]-lin.Matrix[i]) > 1e-9*math.Max(1, math.Abs(m[i])) {
+					t.Errorf("%s: the lineage's moves compose to %v, its matrix is %v", what, m, lin.Matrix)
 					break
 				}
 			}
-			for _, op := range lin.Ops {
-				ops[op.Op]++
+			for _, op := range lin.Geometry {
+				if op.Do == "flip" {
+					ops["flip "+op.Str("axis")]++
+				} else {
+					ops[op.Do]++
+				}
+			}
+			for _, op := range lin.Pixels {
+				ops[op.Do]++
+				if op.Pick != nil {
+					ops["picked"]++
+				}
 			}
 			if t.Failed() {
 				t.FailNow()
@@ -416,17 +470,17 @@ func TestEveryStepLabelsAgree(t *testing.T) {
 	ops, drops := run(p, 300, 2024)
 	t.Logf("300 copies, every-step plan: steps applied %v; %d copies dropped objects", ops, drops)
 	// Every step of the plan must have been drawn at least once.
-	for _, op := range []string{"flip-horizontal", "flip-vertical", "rotate", "affine", "crop", "resize", "gaussian-noise", "speckle", "shot-noise", "salt-and-pepper", "blur", "brightness", "contrast", "gamma", "hue", "saturation", "jpeg", "cutout"} {
+	for _, op := range []string{"flip horizontal", "flip vertical", "rotate", "warp", "crop", "resize", "gaussian-noise", "speckle", "shot-noise", "picked", "salt-and-pepper", "blur", "brightness", "contrast", "gamma", "hue", "saturation", "jpeg", "cutout"} {
 		if ops[op] == 0 {
 			t.Errorf("step %s never applied in 300 copies", op)
 		}
 	}
 	q := labEveryStep(t)
-	q.Cut.Tries = 1
+	q.Geometry.Cuts.Tries = 1
 	_, drops = run(q, 120, 77)
-	t.Logf("120 copies with cut.tries 1: %d copies dropped objects", drops)
+	t.Logf("120 copies with cuts.tries 1: %d copies dropped objects", drops)
 	if drops == 0 {
-		t.Errorf("cut.tries 1: no copy ran out of tries; the drop path went untested")
+		t.Errorf("cuts.tries 1: no copy ran out of tries; the drop path went untested")
 	}
 	for i, in := range srcs {
 		if labDigest(in) != before[i] {
@@ -464,20 +518,25 @@ func labSameOutput(t *testing.T, what string, a, b *Output) bool {
 // TestReplayFromLineage replays 50 copies from their lineage alone, read back
 // from JSON as a later run would read it from manifest.jsonl, and wants
 // byte-identical pixels and an identical record. Then 50 more with
-// cut.tries = 1, so copies whose lineage ends in "cut-policy" (dropped
-// objects) are replayed too.
+// cuts.tries = 1, so copies whose lineage says objects were dropped are
+// replayed too; and 50 of the upright plan (bicubic, extend, redraws).
 func TestReplayFromLineage(t *testing.T) {
 	p := labEveryStep(t)
 	labReplay(t, p, 99)
 	q := labEveryStep(t)
-	q.Cut.Tries = 1
+	q.Geometry.Cuts.Tries = 1
 	if n := labReplay(t, q, 77); n == 0 {
-		t.Errorf("cut.tries 1: no replayed copy had dropped objects")
+		t.Errorf("cuts.tries 1: no replayed copy had dropped objects")
 	}
+	u, err := LoadPlan("../testdata/plans/upright.yaml")
+	if err != nil {
+		t.Fatal(err)
+	}
+	labReplay(t, u, 5)
 }
 
-// labReplay replays 50 copies of plan p and returns how many had a
-// "cut-policy" step.
+// labReplay replays 50 copies of plan p and returns how many had dropped
+// objects.
 func labReplay(t *testing.T, p *Plan, seed uint64) (drops int) {
 	t.Helper()
 	srcs := labSources()
@@ -488,10 +547,8 @@ func labReplay(t *testing.T, p *Plan, seed uint64) (drops int) {
 		if err != nil {
 			t.Fatal(err)
 		}
-		for _, op := range out.Record.Lineage.Ops {
-			if op.Op == "cut-policy" {
-				drops++
-			}
+		if c := out.Record.Lineage.Cuts; c != nil && c.Dropped > 0 {
+			drops++
 		}
 		b, err := json.Marshal(out.Record.Lineage)
 		if err != nil {
@@ -546,18 +603,18 @@ func TestCopyDeterminism(t *testing.T) {
 func TestPhotometricLeavesMasks(t *testing.T) {
 	p := labParsePlan(t, `
 name: photometric-only
-steps:
-  - {op: gaussian-noise, sigma: [2, 8]}
-  - {op: salt-and-pepper, fraction: [0.01, 0.05]}
-  - {op: shot-noise, photons: [50, 200]}
-  - {op: speckle, sigma: [0.02, 0.08]}
-  - {op: blur, sigma: [0.3, 1.5]}
-  - {op: brightness, delta: [-30, 30]}
-  - {op: contrast, factor: [0.5, 1.5]}
-  - {op: gamma, gamma: [0.5, 2]}
-  - {op: hue, degrees: [-90, 90]}
-  - {op: saturation, factor: [0.2, 2]}
-  - {op: jpeg, quality: [20, 90]}
+pixels:
+  - {do: gaussian-noise, sigma: [2, 8]}
+  - {do: salt-and-pepper, fraction: [0.01, 0.05]}
+  - {do: shot-noise, photons: [50, 200]}
+  - {do: speckle, sigma: [0.02, 0.08]}
+  - {do: blur, sigma: [0.3, 1.5]}
+  - {do: brightness, delta: [-30, 30]}
+  - {do: contrast, factor: [0.5, 1.5]}
+  - {do: gamma, gamma: [0.5, 2]}
+  - {do: hue, angle: [-90, 90]}
+  - {do: saturation, factor: [0.2, 2]}
+  - {do: jpeg, quality: [20, 90]}
 `)
 	for s, in := range labSources() {
 		for k := 1; k <= 8; k++ {
@@ -569,11 +626,11 @@ steps:
 			if !bytes.Equal(out.Mask.Pix, in.Mask.Pix) || !bytes.Equal(out.Inst.Pix, in.Inst.Pix) {
 				t.Errorf("%s: photometric steps changed the masks", what)
 			}
-			if Mat(out.Record.Lineage.Affine) != Identity {
-				t.Errorf("%s: matrix %v, want identity", what, out.Record.Lineage.Affine)
+			if Mat(out.Record.Lineage.Matrix) != Identity {
+				t.Errorf("%s: matrix %v, want identity", what, out.Record.Lineage.Matrix)
 			}
-			if len(out.Record.Lineage.Ops) != 11 {
-				t.Errorf("%s: %d steps in the lineage, want 11", what, len(out.Record.Lineage.Ops))
+			if n, g := len(out.Record.Lineage.Pixels), len(out.Record.Lineage.Geometry); n != 11 || g != 0 {
+				t.Errorf("%s: %d pixel steps and %d moves in the lineage, want 11 and 0", what, n, g)
 			}
 			if !reflect.DeepEqual(labBoxes(out.Record.Objects), labBoxes(in.Record.Objects)) {
 				t.Errorf("%s: boxes and areas %v, source %v", what, labBoxes(out.Record.Objects), labBoxes(in.Record.Objects))
@@ -597,12 +654,29 @@ func labBoxes(objs []manifest.Object) []string {
 // labCutRects returns, per pixel of a w×h canvas, whether a cutout rectangle
 // of the lineage covers it. The rule is the pixel convention of DESIGN.md: a
 // pixel is in a rectangle when its center is, rectangle k being centered at
-// (u_k·w, v_k·h) with sides w_k × h_k (its recorded parameters).
-func labCutRects(p map[string]float64, w, h int) []bool {
+// (u_k·w, v_k·h) with sides width_k × height_k (its recorded parameters,
+// read here from the lineage's JSON).
+func labCutRects(t *testing.T, op manifest.LineageOp, w, h int) []bool {
+	t.Helper()
+	b, err := json.Marshal(op)
+	if err != nil {
+		t.Fatal(err)
+	}
+	var p struct {
+		Do    string
+		Count int
+		Rects []struct {
+			Center        [2]float64
+			Width, Height float64
+		}
+	}
+	if err := json.Unmarshal(b, &p); err != nil || p.Do != "cutout" || len(p.Rects) != p.Count {
+		t.Fatalf("cutout lineage %s: %v", b, err)
+	}
 	in := make([]bool, w*h)
-	for k := 0; k < int(p["count"]); k++ {
-		cw, ch := p[fmt.Sprintf("w%d", k)], p[fmt.Sprintf("h%d", k)]
-		cx, cy := p[fmt.Sprintf("u%d", k)]*float64(w), p[fmt.Sprintf("v%d", k)]*float64(h)
+	for _, r := range p.Rects {
+		cw, ch := r.Width, r.Height
+		cx, cy := r.Center[0]*float64(w), r.Center[1]*float64(h)
 		for y := 0; y < h; y++ {
 			for x := 0; x < w; x++ {
 				px, py := float64(x)+0.5, float64(y)+0.5
@@ -615,16 +689,16 @@ func labCutRects(p map[string]float64, w, h int) []bool {
 	return in
 }
 
-// TestCutoutMasks: cutout with masks: ignore makes its pixels class 255 and
+// TestCutoutMasks: cutout with classes: ignore makes its pixels class 255 and
 // instance 0, and labels follow (areas fall, fully hidden objects leave the
-// counts); with masks: keep the masks are unchanged. Either way the pixels
+// counts); with classes: keep the masks are unchanged. Either way the pixels
 // show the cutout value.
 func TestCutoutMasks(t *testing.T) {
 	for _, mode := range []string{"ignore", "keep"} {
 		p := labParsePlan(t, `
 name: cutout-`+mode+`
-steps:
-  - {op: cutout, count: [2, 4], size: [5, 16], value: 77, masks: `+mode+`}
+pixels:
+  - {do: cutout, count: [2, 4], size: [5, 16], tone: 77, classes: `+mode+`}
 `)
 		cut, hidden := 0, 0
 		for s, in := range labSources() {
@@ -633,10 +707,10 @@ steps:
 				if err != nil {
 					t.Fatal(err)
 				}
-				what := fmt.Sprintf("masks %s, %s copy %d", mode, in.Record.ID, k)
+				what := fmt.Sprintf("classes %s, %s copy %d", mode, in.Record.ID, k)
 				labCheckRecord(t, what, out, labDefs)
 				w, h := in.Image.W, in.Image.H
-				rect := labCutRects(out.Record.Lineage.Ops[0].Params, w, h)
+				rect := labCutRects(t, out.Record.Lineage.Pixels[0], w, h)
 				pix := labPix(t, out.Image)
 				step := len(pix) / (w * h)
 				lost := map[int]int{}
@@ -679,9 +753,9 @@ steps:
 				}
 			}
 		}
-		t.Logf("masks %s: %d pixels cut over 40 copies, %d objects cut whole", mode, cut, hidden)
+		t.Logf("classes %s: %d pixels cut over 40 copies, %d objects cut whole", mode, cut, hidden)
 		if cut == 0 {
-			t.Errorf("masks %s: no pixel was cut", mode)
+			t.Errorf("classes %s: no pixel was cut", mode)
 		}
 	}
 }

@@ -2,11 +2,14 @@ package augment
 
 import (
 	"bytes"
+	"encoding/json"
 	"math"
 	"math/rand/v2"
 	"os"
 	"path/filepath"
 	"testing"
+
+	"github.com/trueset/trueset/manifest"
 )
 
 // FuzzParsePlan feeds any bytes to ParsePlan. It must never panic; a refusal
@@ -34,10 +37,13 @@ func FuzzParsePlan(f *testing.F) {
 		"",
 		"{}",
 		"name: x\n",
-		"name: x\nsteps: [{op: rotate, degrees: 3600, expand: true}]\n",
-		"name: x\nsteps: [{op: crop, size: [1, 4096], aspect: [0.05, 20], output: [4096, 1]}]\n",
-		"name: x\nsteps: [{op: one-of, steps: [{op: flip, axis: vertical}, {op: resize, output: [1, 1]}], weights: [0, 1]}]\n",
-		"name: x\nsteps: [{op: affine, scale: 0.05, translate: -4096, shear: 60}, {op: cutout, count: 100, size: 4096}]\n",
+		"name: x\ngeometry: {moves: [{do: rotate, angle: 3600, grow_canvas: true}]}\n",
+		"name: x\ngeometry: {moves: [{do: crop, size: [1, 4096], aspect: [0.05, 20], to: [4096, 1]}]}\n",
+		"name: x\ngeometry: {moves: [{do: pick, from: [{do: flip, axis: vertical}, {do: resize, to: [1, 1]}], odds: [0, 1]}]}\n",
+		"name: x\ngeometry: {moves: [{do: warp, zoom: 0.05, shift: -4096, slant: 60}]}\npixels: [{do: cutout, count: 100, size: 4096}]\n",
+		"name: x\ngeometry: {outside: {image: mirror, tone: [1, 2, 3]}, cuts: {policy: drop}}\npixels: [{do: pick, from: [{do: blur, sigma: 1}, {do: hue, angle: 9}]}]\n",
+		"name: x\npixels: [{do: rotate, angle: 3}]\n",
+		"name: x\nsteps: [{op: flip, axis: vertical}]\n",
 	} {
 		f.Add([]byte(s))
 	}
@@ -75,11 +81,10 @@ func FuzzParsePlan(f *testing.F) {
 					t.Fatalf("drawn matrix entry %d is %v: %v", i, v, d.M)
 				}
 			}
-			for _, op := range d.Ops {
-				for k, v := range op.Params {
-					if math.IsNaN(v) || math.IsInf(v, 0) {
-						t.Fatalf("step %s: parameter %s is %v", op.Op, k, v)
-					}
+			for _, op := range append(append([]manifest.LineageOp(nil), d.Geometry...), d.Pixels...) {
+				// Every drawn parameter is finite, so the lineage marshals.
+				if _, err := json.Marshal(op); err != nil {
+					t.Fatalf("step %s: %v", op.Do, err)
 				}
 			}
 		}

@@ -553,8 +553,9 @@ func readPlain(o RunOptions) (*input, error) {
 // class's declared invariance: a flip step for a class that does not keep its
 // label under flips, a turn beyond a class's max_rotate, or a flip or an
 // upside-down turn of samples whose targets read text. Turns compose, so the
-// bound is on the worst-case sum of every turn so far (of a one-of, its
-// widest child), not on each step alone.
+// bound is on the worst-case sum of every turn so far (of a pick, its
+// widest child), not on each move alone. Only geometry.moves can turn or
+// mirror.
 func CheckInvariance(p *Plan, classes []manifest.Class, defs []manifest.TargetDef) error {
 	reads := ""
 	for _, d := range defs {
@@ -569,11 +570,11 @@ func CheckInvariance(p *Plan, classes []manifest.Class, defs []manifest.TargetDe
 		if *s.Chance == 0 {
 			return acc, nil
 		}
-		switch s.Op {
-		case "one-of":
+		switch s.Do {
+		case "pick":
 			worst := acc
-			for j := range s.Steps {
-				a, err := step(&s.Steps[j], fmt.Sprintf("%s.steps[%d]", sp, j), acc)
+			for j := range s.From {
+				a, err := step(&s.From[j], fmt.Sprintf("%s.from[%d]", sp, j), acc)
 				if err != nil {
 					return 0, err
 				}
@@ -589,13 +590,13 @@ func CheckInvariance(p *Plan, classes []manifest.Class, defs []manifest.TargetDe
 			if reads != "" {
 				return 0, fmt.Errorf("plan %s (flip %s) would mirror samples whose target %q reads text; remove the step or pass --allow-label-change", sp, s.Axis, reads)
 			}
-		case "rotate", "affine":
+		case "rotate", "warp":
 			turn := 0.0
-			if s.Degrees != nil {
-				turn = math.Max(math.Abs(s.Degrees.Min), math.Abs(s.Degrees.Max))
+			if s.Angle != nil {
+				turn = math.Max(math.Abs(s.Angle.Min), math.Abs(s.Angle.Max))
 			}
-			if s.Shear != nil {
-				turn = math.Max(turn, math.Max(math.Abs(s.Shear.Min), math.Abs(s.Shear.Max)))
+			if s.Slant != nil {
+				turn = math.Max(turn, math.Max(math.Abs(s.Slant.Min), math.Abs(s.Slant.Max)))
 			}
 			total := acc + turn
 			also := ""
@@ -604,20 +605,20 @@ func CheckInvariance(p *Plan, classes []manifest.Class, defs []manifest.TargetDe
 			}
 			for _, c := range classes {
 				if c.MaxRotate != nil && total > *c.MaxRotate {
-					return 0, fmt.Errorf("plan %s (%s up to %s°%s) turns class %q beyond the %s° that keep its label; narrow the range or pass --allow-label-change", sp, s.Op, fmtDeg(turn), also, c.Name, fmtDeg(*c.MaxRotate))
+					return 0, fmt.Errorf("plan %s (%s up to %s°%s) turns class %q beyond the %s° that keep its label; narrow the range or pass --allow-label-change", sp, s.Do, fmtDeg(turn), also, c.Name, fmtDeg(*c.MaxRotate))
 				}
 			}
 			if reads != "" && total > 90 {
-				return 0, fmt.Errorf("plan %s (%s up to %s°%s) could turn samples whose target %q reads text upside down; keep turns within ±90° or pass --allow-label-change", sp, s.Op, fmtDeg(turn), also, reads)
+				return 0, fmt.Errorf("plan %s (%s up to %s°%s) could turn samples whose target %q reads text upside down; keep turns within ±90° or pass --allow-label-change", sp, s.Do, fmtDeg(turn), also, reads)
 			}
 			return total, nil
 		}
 		return acc, nil
 	}
 	acc := 0.0
-	for i := range p.Steps {
+	for i := range p.Geometry.Moves {
 		var err error
-		if acc, err = step(&p.Steps[i], fmt.Sprintf("steps[%d]", i), acc); err != nil {
+		if acc, err = step(&p.Geometry.Moves[i], fmt.Sprintf("geometry.moves[%d]", i), acc); err != nil {
 			return err
 		}
 	}

@@ -146,10 +146,15 @@ func TestPlanSchemaAcceptsTestdataPlans(t *testing.T) {
 }
 
 const psBase = `name: t
-steps:
-  - op: rotate
-    degrees: [-10, 10]
+geometry:
+  moves:
+    - do: rotate
+      angle: [-10, 10]
 `
+
+// psTail is a plan's sections after its name, for cases that change the
+// geometry settings.
+const psTail = "pixels: [{do: blur, sigma: 1}]\n"
 
 func psEdit(t *testing.T, s, old, new string) string {
 	t.Helper()
@@ -162,26 +167,32 @@ func psEdit(t *testing.T, s, old, new string) string {
 // Flexible forms that both trueset and the schema accept.
 func TestPlanSchemaAcceptsFlexibleForms(t *testing.T) {
 	sch := psCompile(t)
-	step := func(s string) string { return psEdit(t, psBase, "  - op: rotate\n    degrees: [-10, 10]\n", s) }
+	move := func(s string) string { return psEdit(t, psBase, "    - do: rotate\n      angle: [-10, 10]\n", s) }
+	pix := func(s string) string { return "name: t\npixels:\n" + s }
 	cases := map[string]string{
 		"base":               psBase,
-		"fixed degrees":      psEdit(t, psBase, "degrees: [-10, 10]", "degrees: 90"),
-		"integer-valued 2.0": psEdit(t, psBase, "degrees: [-10, 10]", "degrees: [-2.0, 2.0]"),
-		"null chance":        psEdit(t, psBase, "degrees: [-10, 10]", "degrees: 5\n    chance: ~"),
-		"chance 0":           psEdit(t, psBase, "degrees: [-10, 10]", "degrees: 5\n    chance: 0"),
-		"every top field": "name: t\ndescription: all of them\ninterpolation: bicubic\nfill: {mode: reflect, intensity: 12.5, color: [1, 2, 3]}\n" +
-			"mask_fill: background\ncut: {policy: drop, least_shown: 0, tries: 1000}\nsteps:\n  - {op: blur, sigma: 1}\n",
-		"null least_shown":     "name: t\ncut: {least_shown: ~}\nsteps: [{op: blur, sigma: 1}]\n",
-		"flow style":           "{name: t, steps: [{op: flip, axis: vertical}]}\n",
-		"crop by size":         step("  - {op: crop, size: [20, 30], output: [16, 16]}\n"),
-		"crop, null size":      step("  - {op: crop, area: 0.5, size: ~}\n"),
-		"affine, shear only":   step("  - {op: affine, shear: [-4, 4], scale: ~}\n"),
-		"cutout, size only":    step("  - {op: cutout, size: 5}\n"),
-		"cutout, zero count":   step("  - {op: cutout, size: 5, count: 0}\n"),
-		"one-of, no weights":   step("  - op: one-of\n    chance: 0.5\n    steps:\n      - {op: blur, sigma: 1, chance: 0.3}\n      - {op: flip, axis: horizontal}\n"),
-		"one-of, zero weight":  step("  - op: one-of\n    steps: [{op: blur, sigma: 1}, {op: gamma, gamma: 2}]\n    weights: [0, 0.5]\n"),
-		"jpeg, fixed quality":  step("  - {op: jpeg, quality: 75}\n"),
-		"rotate, expand false": psEdit(t, psBase, "degrees: [-10, 10]", "degrees: 30\n    expand: false"),
+		"fixed angle":        psEdit(t, psBase, "angle: [-10, 10]", "angle: 90"),
+		"integer-valued 2.0": psEdit(t, psBase, "angle: [-10, 10]", "angle: [-2.0, 2.0]"),
+		"null chance":        psEdit(t, psBase, "angle: [-10, 10]", "angle: 5\n      chance: ~"),
+		"chance 0":           psEdit(t, psBase, "angle: [-10, 10]", "angle: 5\n      chance: 0"),
+		"every geometry field": "name: t\ndescription: all of them\ngeometry:\n  sampling: bicubic\n  outside: {image: mirror, tone: [1, 2, 3], classes: background}\n" +
+			"  cuts: {policy: drop, least_shown: 0, tries: 1000}\n  moves: [{do: flip, axis: vertical}]\npixels:\n  - {do: blur, sigma: 1}\n",
+		"gray tone 12.5":       "name: t\ngeometry: {outside: {tone: 12.5}}\n" + psTail,
+		"null least_shown":     "name: t\ngeometry: {cuts: {least_shown: ~}}\n" + psTail,
+		"pixels only":          "name: t\n" + psTail,
+		"geometry, no moves":   "name: t\ngeometry: {sampling: bicubic}\n" + psTail,
+		"flow style":           "{name: t, geometry: {moves: [{do: flip, axis: vertical}]}}\n",
+		"crop by size":         move("    - {do: crop, size: [20, 30], to: [16, 16]}\n"),
+		"crop, null size":      move("    - {do: crop, area: 0.5, size: ~}\n"),
+		"warp, slant only":     move("    - {do: warp, slant: [-4, 4], zoom: ~}\n"),
+		"cutout, size only":    pix("  - {do: cutout, size: 5}\n"),
+		"cutout, zero count":   pix("  - {do: cutout, size: 5, count: 0}\n"),
+		"pick of moves":        move("    - do: pick\n      chance: 0.5\n      from:\n        - {do: rotate, angle: 1, chance: 0.3}\n        - {do: flip, axis: horizontal}\n"),
+		"pick, zero odds":      pix("  - do: pick\n    from: [{do: blur, sigma: 1}, {do: gamma, gamma: 2}]\n    odds: [0, 0.5]\n"),
+		"jpeg, fixed quality":  pix("  - {do: jpeg, quality: 75}\n"),
+		"rotate, grow false":   psEdit(t, psBase, "angle: [-10, 10]", "angle: 30\n      grow_canvas: false"),
+		"README's light plan":  psReadFile(t, "../examples/plans/light.yaml"),
+		"bench's kernels plan": psReadFile(t, "../bench/plans/kernels.yaml"),
 	}
 	for name, doc := range cases {
 		t.Run(name, func(t *testing.T) {
@@ -195,51 +206,72 @@ func TestPlanSchemaAcceptsFlexibleForms(t *testing.T) {
 	}
 }
 
+func psReadFile(t *testing.T, name string) string {
+	t.Helper()
+	b, err := os.ReadFile(name)
+	if err != nil {
+		t.Fatal(err)
+	}
+	return string(b)
+}
+
 // Each document breaks one rule; the schema must refuse it for that rule,
 // and trueset must refuse it too.
 func TestPlanSchemaRejectsInvalid(t *testing.T) {
 	sch := psCompile(t)
-	step := func(s string) string { return psEdit(t, psBase, "  - op: rotate\n    degrees: [-10, 10]\n", s) }
+	move := func(s string) string { return psEdit(t, psBase, "    - do: rotate\n      angle: [-10, 10]\n", s) }
+	pix := func(s string) string { return "name: t\npixels:\n" + s }
+	geo := func(s string) string { return "name: t\ngeometry: " + s + "\n" + psTail }
 	// why is a piece of the validator's complaint (the instance location, the
 	// keyword or the property), so a case cannot pass for another reason.
 	cases := []struct{ name, why, doc string }{
 		{"missing name", "missing property 'name'", psEdit(t, psBase, "name: t\n", "")},
 		{"empty name", "at '/name': minLength: got 0, want 1", psEdit(t, psBase, "name: t", `name: ""`)},
 		{"unknown top-level field", "additional properties 'seed' not allowed", psEdit(t, psBase, "name: t\n", "name: t\nseed: 3\n")},
-		{"no steps", "at '/steps': minItems: got 0, want 1", psEdit(t, psBase, "  - op: rotate\n    degrees: [-10, 10]\n", "  []\n")},
-		{"unknown op", "at '/steps/0/op': value must be one of", psEdit(t, psBase, "op: rotate", "op: twirl")},
-		{"unknown step field", "additional properties 'radius' not allowed", psEdit(t, psBase, "degrees: [-10, 10]", "degrees: 3\n    radius: 2")},
-		{"sigma on flip", "invalid propertyName 'sigma'", step("  - {op: flip, axis: horizontal, sigma: 2}\n")},
-		{"null sigma on flip", "invalid propertyName 'sigma'", step("  - {op: flip, axis: horizontal, sigma: ~}\n")},
-		{"expand false on flip", "invalid propertyName 'expand'", step("  - {op: flip, axis: horizontal, expand: false}\n")},
-		{"rotate without degrees", "missing property 'degrees'", step("  - {op: rotate, expand: true}\n")},
-		{"chance over 1", "at '/steps/0/chance': maximum: got 1.5, want 1", psEdit(t, psBase, "degrees: [-10, 10]", "degrees: 3\n    chance: 1.5")},
-		{"three-number range", "at '/steps/0/degrees': maxItems: got 3, want 2", psEdit(t, psBase, "degrees: [-10, 10]", "degrees: [1, 2, 3]")},
-		{"degrees over 3600", "at '/steps/0/degrees/1': maximum: got 3,601, want 3,600", psEdit(t, psBase, "degrees: [-10, 10]", "degrees: [0, 3601]")},
-		{"string degrees", "at '/steps/0/degrees': got string, want number", psEdit(t, psBase, "degrees: [-10, 10]", "degrees: lots")},
-		{"crop with area and size", "'oneOf' failed, subschemas 0, 1 matched", step("  - {op: crop, area: 0.5, size: 10}\n")},
-		{"crop with neither", "'oneOf' failed, none matched", step("  - {op: crop, aspect: 1}\n")},
-		{"affine with nothing", "at '/steps/0': missing property 'shear'", step("  - {op: affine, scale: ~}\n")},
-		{"resize without output", "missing property 'output'", step("  - {op: resize}\n")},
-		{"output with three numbers", "at '/steps/0/output': maxItems: got 3, want 2", step("  - {op: resize, output: [8, 8, 8]}\n")},
-		{"fractional output", "at '/steps/0/output/0': got number, want integer", step("  - {op: resize, output: [8.5, 8]}\n")},
-		{"jpeg quality 0", "at '/steps/0/quality/0': minimum: got 0, want 1", step("  - {op: jpeg, quality: [0, 90]}\n")},
-		{"fractional quality", "at '/steps/0/quality': got number, want integer", step("  - {op: jpeg, quality: 90.5}\n")},
-		{"speckle sigma 6", "at '/steps/0/sigma': maximum: got 6, want 5", step("  - {op: speckle, sigma: 6}\n")},
-		{"cutout masks erase", "at '/steps/0/masks': value must be one of 'keep', 'ignore'", step("  - {op: cutout, size: 4, masks: erase}\n")},
-		{"cutout without size", "missing property 'size'", step("  - {op: cutout, count: 2}\n")},
-		{"nested one-of", "at '/steps/0/steps/0/op': 'not' failed", step("  - op: one-of\n    steps:\n      - op: one-of\n        steps: [{op: blur, sigma: 1}]\n")},
-		{"one-of without steps", "missing property 'steps'", step("  - {op: one-of, weights: [1]}\n")},
-		{"all weights zero", "at '/steps/0/weights': no items match contains schema", step("  - {op: one-of, steps: [{op: blur, sigma: 1}], weights: [0]}\n")},
-		{"negative weight", "at '/steps/0/weights/1': minimum: got -1, want 0", step("  - {op: one-of, steps: [{op: blur, sigma: 1}, {op: blur, sigma: 2}], weights: [1, -1]}\n")},
-		{"fill mode wrap", "at '/fill/mode': value must be one of", "name: t\nfill: {mode: wrap}\n" + psBase[len("name: t\n"):]},
-		{"fill color of two", "at '/fill/color': minItems: got 2, want 3", "name: t\nfill: {color: [1, 2]}\n" + psBase[len("name: t\n"):]},
-		{"mask_fill other", "at '/mask_fill': value must be one of", "name: t\nmask_fill: other\n" + psBase[len("name: t\n"):]},
-		{"interpolation nearest", "at '/interpolation': value must be one of", "name: t\ninterpolation: nearest\n" + psBase[len("name: t\n"):]},
-		{"cut policy skip", "at '/cut/policy': value must be one of", "name: t\ncut: {policy: skip}\n" + psBase[len("name: t\n"):]},
-		{"cut least_shown 2", "at '/cut/least_shown': maximum: got 2, want 1", "name: t\ncut: {least_shown: 2}\n" + psBase[len("name: t\n"):]},
-		{"cut tries 1001", "at '/cut/tries': maximum: got 1,001, want 1,000", "name: t\ncut: {tries: 1001}\n" + psBase[len("name: t\n"):]},
-		{"unknown cut field", "additional properties 'retries' not allowed", "name: t\ncut: {retries: 3}\n" + psBase[len("name: t\n"):]},
+		{"old steps", "additional properties 'steps' not allowed", "name: t\nsteps: [{op: blur, sigma: 1}]\n"},
+		{"no steps", "at '/geometry/moves': minItems: got 0, want 1", "name: t\ngeometry: {moves: []}\npixels: []\n"},
+		{"no sections", "missing property 'pixels'", "name: t\n"},
+		{"unknown op", "at '/geometry/moves/0/do': value must be one of", psEdit(t, psBase, "do: rotate", "do: twirl")},
+		{"old op name", "additional properties 'op' not allowed", psEdit(t, psBase, "do: rotate", "op: rotate")},
+		{"move under pixels", "at '/pixels/0/do': value must be one of", pix("  - {do: rotate, angle: 3}\n")},
+		{"pixel step under moves", "at '/geometry/moves/0/do': value must be one of", move("    - {do: blur, sigma: 1}\n")},
+		{"unknown step field", "additional properties 'radius' not allowed", psEdit(t, psBase, "angle: [-10, 10]", "angle: 3\n      radius: 2")},
+		{"sigma on flip", "invalid propertyName 'sigma'", move("    - {do: flip, axis: horizontal, sigma: 2}\n")},
+		{"null sigma on flip", "invalid propertyName 'sigma'", move("    - {do: flip, axis: horizontal, sigma: ~}\n")},
+		{"grow_canvas false on flip", "invalid propertyName 'grow_canvas'", move("    - {do: flip, axis: horizontal, grow_canvas: false}\n")},
+		{"flip without axis", "missing property 'axis'", move("    - {do: flip}\n")},
+		{"rotate without angle", "missing property 'angle'", move("    - {do: rotate, grow_canvas: true}\n")},
+		{"old degrees", "additional properties 'degrees' not allowed", psEdit(t, psBase, "angle: [-10, 10]", "degrees: 3")},
+		{"chance over 1", "at '/geometry/moves/0/chance': maximum: got 1.5, want 1", psEdit(t, psBase, "angle: [-10, 10]", "angle: 3\n      chance: 1.5")},
+		{"three-number range", "at '/geometry/moves/0/angle': maxItems: got 3, want 2", psEdit(t, psBase, "angle: [-10, 10]", "angle: [1, 2, 3]")},
+		{"angle over 3600", "at '/geometry/moves/0/angle/1': maximum: got 3,601, want 3,600", psEdit(t, psBase, "angle: [-10, 10]", "angle: [0, 3601]")},
+		{"string angle", "at '/geometry/moves/0/angle': got string, want number", psEdit(t, psBase, "angle: [-10, 10]", "angle: lots")},
+		{"crop with area and size", "'oneOf' failed, subschemas 0, 1 matched", move("    - {do: crop, area: 0.5, size: 10}\n")},
+		{"crop with neither", "'oneOf' failed, none matched", move("    - {do: crop, aspect: 1}\n")},
+		{"warp with nothing", "at '/geometry/moves/0': missing property 'slant'", move("    - {do: warp, zoom: ~}\n")},
+		{"resize without to", "missing property 'to'", move("    - {do: resize}\n")},
+		{"to with three numbers", "at '/geometry/moves/0/to': maxItems: got 3, want 2", move("    - {do: resize, to: [8, 8, 8]}\n")},
+		{"fractional to", "at '/geometry/moves/0/to/0': got number, want integer", move("    - {do: resize, to: [8.5, 8]}\n")},
+		{"jpeg quality 0", "at '/pixels/0/quality/0': minimum: got 0, want 1", pix("  - {do: jpeg, quality: [0, 90]}\n")},
+		{"fractional quality", "at '/pixels/0/quality': got number, want integer", pix("  - {do: jpeg, quality: 90.5}\n")},
+		{"speckle sigma 6", "at '/pixels/0/sigma': maximum: got 6, want 5", pix("  - {do: speckle, sigma: 6}\n")},
+		{"cutout classes erase", "at '/pixels/0/classes': value must be one of 'keep', 'ignore'", pix("  - {do: cutout, size: 4, classes: erase}\n")},
+		{"cutout without size", "missing property 'size'", pix("  - {do: cutout, count: 2}\n")},
+		{"nested pick", "at '/pixels/0/from/0/do': value must be one of", pix("  - do: pick\n    from:\n      - do: pick\n        from: [{do: blur, sigma: 1}]\n")},
+		{"move picked under pixels", "at '/pixels/0/from/1/do': value must be one of", pix("  - {do: pick, from: [{do: blur, sigma: 1}, {do: flip, axis: vertical}]}\n")},
+		{"pick without from", "missing property 'from'", pix("  - {do: pick, odds: [1]}\n")},
+		{"all odds zero", "at '/pixels/0/odds': no items match contains schema", pix("  - {do: pick, from: [{do: blur, sigma: 1}], odds: [0]}\n")},
+		{"negative odds", "at '/pixels/0/odds/1': minimum: got -1, want 0", pix("  - {do: pick, from: [{do: blur, sigma: 1}, {do: blur, sigma: 2}], odds: [1, -1]}\n")},
+		{"outside image wrap", "at '/geometry/outside/image': value must be one of", geo("{outside: {image: wrap}}")},
+		{"outside image constant", "at '/geometry/outside/image': value must be one of", geo("{outside: {image: constant}}")},
+		{"outside tone of two", "at '/geometry/outside/tone'", geo("{outside: {tone: [1, 2]}}")},
+		{"outside classes other", "at '/geometry/outside/classes': value must be one of", geo("{outside: {classes: other}}")},
+		{"sampling nearest", "at '/geometry/sampling': value must be one of", geo("{sampling: nearest}")},
+		{"old interpolation", "additional properties 'interpolation' not allowed", "name: t\ninterpolation: bicubic\n" + psTail},
+		{"cuts policy resample", "at '/geometry/cuts/policy': value must be one of", geo("{cuts: {policy: resample}}")},
+		{"cuts least_shown 2", "at '/geometry/cuts/least_shown': maximum: got 2, want 1", geo("{cuts: {least_shown: 2}}")},
+		{"cuts tries 1001", "at '/geometry/cuts/tries': maximum: got 1,001, want 1,000", geo("{cuts: {tries: 1001}}")},
+		{"unknown cuts field", "additional properties 'retries' not allowed", geo("{cuts: {retries: 3}}")},
 	}
 	for _, c := range cases {
 		t.Run(c.name, func(t *testing.T) {
@@ -265,26 +297,27 @@ type psStep struct {
 }
 
 var psSteps = []psStep{
-	{"flip", "{op: flip, axis: horizontal, chance: 0.5}"},
-	{"rotate", "{op: rotate, degrees: [-10, 10], expand: true}"},
-	{"affine", "{op: affine, scale: [0.9, 1.1], translate: 2, shear: [-3, 3]}"},
-	{"affine", "{op: affine, shear: 4}"},
-	{"crop", "{op: crop, area: [0.5, 1], aspect: [0.8, 1.25], output: [32, 32]}"},
-	{"crop", "{op: crop, size: [20, 30]}"},
-	{"resize", "{op: resize, output: [48, 40]}"},
-	{"one-of", "{op: one-of, steps: [{op: blur, sigma: 1}, {op: flip, axis: vertical}], weights: [1, 3]}"},
-	{"gaussian-noise", "{op: gaussian-noise, sigma: [1, 5]}"},
-	{"salt-and-pepper", "{op: salt-and-pepper, fraction: 0.01}"},
-	{"shot-noise", "{op: shot-noise, photons: [10, 100]}"},
-	{"speckle", "{op: speckle, sigma: 0.1}"},
-	{"blur", "{op: blur, sigma: [0.5, 2]}"},
-	{"brightness", "{op: brightness, delta: [-20, 20]}"},
-	{"contrast", "{op: contrast, factor: [0.8, 1.2]}"},
-	{"gamma", "{op: gamma, gamma: [0.8, 1.25]}"},
-	{"hue", "{op: hue, degrees: [-10, 10]}"},
-	{"saturation", "{op: saturation, factor: [0.5, 1.5]}"},
-	{"jpeg", "{op: jpeg, quality: [50, 90]}"},
-	{"cutout", "{op: cutout, count: [1, 3], size: [4, 8], value: 128, masks: ignore}"},
+	{"flip", "{do: flip, axis: horizontal, chance: 0.5}"},
+	{"rotate", "{do: rotate, angle: [-10, 10], grow_canvas: true}"},
+	{"warp", "{do: warp, zoom: [0.9, 1.1], shift: 2, slant: [-3, 3]}"},
+	{"warp", "{do: warp, slant: 4}"},
+	{"crop", "{do: crop, area: [0.5, 1], aspect: [0.8, 1.25], to: [32, 32]}"},
+	{"crop", "{do: crop, size: [20, 30]}"},
+	{"resize", "{do: resize, to: [48, 40]}"},
+	{"pick", "{do: pick, from: [{do: blur, sigma: 1}, {do: gamma, gamma: 2}], odds: [1, 3]}"},
+	{"pick", "{do: pick, from: [{do: rotate, angle: 3}, {do: flip, axis: vertical}], odds: [2, 1]}"},
+	{"gaussian-noise", "{do: gaussian-noise, sigma: [1, 5]}"},
+	{"salt-and-pepper", "{do: salt-and-pepper, fraction: 0.01}"},
+	{"shot-noise", "{do: shot-noise, photons: [10, 100]}"},
+	{"speckle", "{do: speckle, sigma: 0.1}"},
+	{"blur", "{do: blur, sigma: [0.5, 2]}"},
+	{"brightness", "{do: brightness, delta: [-20, 20]}"},
+	{"contrast", "{do: contrast, factor: [0.8, 1.2]}"},
+	{"gamma", "{do: gamma, gamma: [0.8, 1.25]}"},
+	{"hue", "{do: hue, angle: [-10, 10]}"},
+	{"saturation", "{do: saturation, factor: [0.5, 1.5]}"},
+	{"jpeg", "{do: jpeg, quality: [50, 90]}"},
+	{"cutout", "{do: cutout, count: [1, 3], size: [4, 8], tone: 128, classes: ignore}"},
 }
 
 func psStepMap(t *testing.T, doc string) map[string]any {
@@ -296,14 +329,52 @@ func psStepMap(t *testing.T, doc string) map[string]any {
 	return m
 }
 
-// psPlanDoc is a plan holding the one step.
-func psPlanDoc(t *testing.T, step map[string]any) []byte {
+// psGeometric reports whether a step map belongs under geometry.moves: a
+// move, or a pick whose first choice is a move.
+func psGeometric(step map[string]any) bool {
+	op, _ := step["do"].(string)
+	if op == "pick" {
+		from, _ := step["from"].([]any)
+		if len(from) > 0 {
+			first, _ := from[0].(map[string]any)
+			op, _ = first["do"].(string)
+		}
+	}
+	return Geometric(op)
+}
+
+// psSectionDoc is a plan holding the one step under geometry.moves
+// (geometry true) or pixels.
+func psSectionDoc(t *testing.T, step map[string]any, geometry bool) []byte {
 	t.Helper()
-	b, err := yaml.Marshal(map[string]any{"name": "probe", "steps": []any{step}})
+	doc := map[string]any{"name": "probe", "pixels": []any{step}}
+	if geometry {
+		doc = map[string]any{"name": "probe", "geometry": map[string]any{"moves": []any{step}}}
+	}
+	b, err := yaml.Marshal(doc)
 	if err != nil {
 		t.Fatal(err)
 	}
 	return b
+}
+
+// psPlanDoc is a plan holding the one step in its own section.
+func psPlanDoc(t *testing.T, step map[string]any) []byte {
+	t.Helper()
+	return psSectionDoc(t, step, psGeometric(step))
+}
+
+// psStepOf returns the one step of a plan's normalized JSON.
+func psStepOf(t *testing.T, js map[string]any) map[string]any {
+	t.Helper()
+	list, _ := js["pixels"].([]any)
+	if g, _ := js["geometry"].(map[string]any); len(list) == 0 && g != nil {
+		list, _ = g["moves"].([]any)
+	}
+	if len(list) != 1 {
+		t.Fatalf("plan JSON %v does not hold one step", js)
+	}
+	return list[0].(map[string]any)
 }
 
 // psAgree checks that trueset and the schema give the same verdict on doc.
@@ -332,7 +403,7 @@ func TestPlanSchemaAgreesOnEveryField(t *testing.T) {
 	some := map[string]any{}
 	for _, ex := range psSteps {
 		for k, v := range psStepMap(t, ex.doc) {
-			if _, ok := some[k]; !ok && k != "op" {
+			if _, ok := some[k]; !ok && k != "do" {
 				some[k] = v
 			}
 		}
@@ -340,12 +411,18 @@ func TestPlanSchemaAgreesOnEveryField(t *testing.T) {
 	used := map[string]map[string]bool{}
 	for _, ex := range psSteps {
 		m := psStepMap(t, ex.doc)
-		if m["op"] != ex.op {
-			t.Fatalf("example %s has op %v", ex.doc, m["op"])
+		if m["do"] != ex.op {
+			t.Fatalf("example %s has do %v", ex.doc, m["do"])
 		}
 		psAgree(t, sch, ex.doc, psPlanDoc(t, m))
 		if _, err := ParsePlan("ex.yaml", psPlanDoc(t, m)); err != nil {
 			t.Errorf("example %s is refused: %v", ex.doc, err)
+		}
+		// In the other section, it is refused by both.
+		wrong := psSectionDoc(t, m, !psGeometric(m))
+		psAgree(t, sch, ex.doc+" in the other section", wrong)
+		if _, err := ParsePlan("x.yaml", wrong); err == nil {
+			t.Errorf("%s in the other section is accepted", ex.doc)
 		}
 		if used[ex.op] == nil {
 			used[ex.op] = map[string]bool{}
@@ -359,7 +436,7 @@ func TestPlanSchemaAgreesOnEveryField(t *testing.T) {
 			null[k] = nil
 			psAgree(t, sch, ex.doc+" with "+k+": null", psPlanDoc(t, null))
 		}
-		allowed := map[string]bool{"op": true, "chance": true}
+		allowed := map[string]bool{"do": true, "chance": true}
 		for _, f := range stepFields[ex.op] {
 			allowed[f] = true
 		}
@@ -455,14 +532,15 @@ func TestPlanSchemaBoundsMatchValidation(t *testing.T) {
 		doc  string
 		want bool
 	}{
-		{"fill: {intensity: 0}", true}, {"fill: {intensity: 255}", true},
-		{"fill: {intensity: -0.001}", false}, {"fill: {intensity: 255.001}", false},
-		{"fill: {color: [0, 0, 255]}", true}, {"fill: {color: [0, 0, 256]}", false}, {"fill: {color: [-1, 0, 0]}", false},
-		{"cut: {least_shown: 0}", true}, {"cut: {least_shown: 1}", true},
-		{"cut: {least_shown: -0.001}", false}, {"cut: {least_shown: 1.001}", false},
-		{"cut: {tries: 1}", true}, {"cut: {tries: 1000}", true}, {"cut: {tries: 1001}", false}, {"cut: {tries: -1}", false},
+		{"outside: {tone: 0}", true}, {"outside: {tone: 255}", true},
+		{"outside: {tone: -0.001}", false}, {"outside: {tone: 255.001}", false},
+		{"outside: {tone: [0, 0, 255]}", true}, {"outside: {tone: [0, 0, 256]}", false}, {"outside: {tone: [-1, 0, 0]}", false},
+		{"outside: {tone: [0, 0, 0, 0]}", false}, {"outside: {tone: [0.5, 0, 0]}", false},
+		{"cuts: {least_shown: 0}", true}, {"cuts: {least_shown: 1}", true},
+		{"cuts: {least_shown: -0.001}", false}, {"cuts: {least_shown: 1.001}", false},
+		{"cuts: {tries: 1}", true}, {"cuts: {tries: 1000}", true}, {"cuts: {tries: 1001}", false}, {"cuts: {tries: -1}", false},
 	} {
-		doc := []byte("name: t\n" + c.doc + "\nsteps: [{op: blur, sigma: 1}]\n")
+		doc := []byte("name: t\ngeometry: {" + c.doc + "}\n" + psTail)
 		_, perr := ParsePlan("probe.yaml", doc)
 		if (perr == nil) != c.want {
 			t.Errorf("%s: trueset says %v, want accepted=%v", c.doc, perr, c.want)
@@ -490,13 +568,13 @@ func psRules(t *testing.T, doc map[string]any) map[string]map[string]any {
 		rule, _ := r.(map[string]any)
 		ifs, _ := rule["if"].(map[string]any)
 		props, _ := ifs["properties"].(map[string]any)
-		opc, _ := props["op"].(map[string]any)
+		opc, _ := props["do"].(map[string]any)
 		op, _ := opc["const"].(string)
 		if op == "" {
-			t.Fatalf("$defs/step/allOf/%d: no if op const", i)
+			t.Fatalf("$defs/step/allOf/%d: no if do const", i)
 		}
-		if req, _ := ifs["required"].([]any); len(req) != 1 || req[0] != "op" {
-			t.Errorf("$defs/step/allOf/%d (%s): the if clause must require op, or it holds vacuously", i, op)
+		if req, _ := ifs["required"].([]any); len(req) != 1 || req[0] != "do" {
+			t.Errorf("$defs/step/allOf/%d (%s): the if clause must require do, or it holds vacuously", i, op)
 		}
 		then, _ := rule["then"].(map[string]any)
 		if then == nil {
@@ -560,9 +638,11 @@ func psStrings(v any) []string {
 	return out
 }
 
-// The schema's objects have exactly the Go structs' yaml fields, its op enum
-// and per-op rules are stepFields' ops, and each op's allowed fields (the
-// then-clause's propertyNames) are stepFields[op] plus op and chance.
+// The schema's objects have exactly the Go structs' yaml fields, its do enum
+// and per-op rules are stepFields' ops, each section's do enum is the ops
+// Geometric puts there (plus pick; a pick's choices without it), and each
+// op's allowed fields (the then-clause's propertyNames) are stepFields[op]
+// plus do and chance.
 func TestPlanSchemaFieldsMatchCode(t *testing.T) {
 	doc := psSchemaDoc(t)
 	for _, c := range []struct {
@@ -570,8 +650,9 @@ func TestPlanSchemaFieldsMatchCode(t *testing.T) {
 		at  string
 	}{
 		{reflect.TypeOf(Plan{}), ""},
-		{reflect.TypeOf(FillSpec{}), "properties/fill"},
-		{reflect.TypeOf(CutSpec{}), "properties/cut"},
+		{reflect.TypeOf(Geometry{}), "properties/geometry"},
+		{reflect.TypeOf(Outside{}), "properties/geometry/properties/outside"},
+		{reflect.TypeOf(Cuts{}), "properties/geometry/properties/cuts"},
 		{reflect.TypeOf(Step{}), "$defs/step"},
 	} {
 		s := psAt(t, doc, c.at)
@@ -586,8 +667,25 @@ func TestPlanSchemaFieldsMatchCode(t *testing.T) {
 	for _, f := range psYAMLFields(reflect.TypeOf(Step{})) {
 		stepTags[f] = true
 	}
-	if got := psStrings(psAt(t, doc, "$defs/step/properties/op")["enum"]); !reflect.DeepEqual(got, opNames()) {
-		t.Errorf("op enum %v, stepFields has %v", got, opNames())
+	if got := psStrings(psAt(t, doc, "$defs/step/properties/do")["enum"]); !reflect.DeepEqual(got, opNames()) {
+		t.Errorf("do enum %v, stepFields has %v", got, opNames())
+	}
+	for _, c := range []struct {
+		at       string
+		geometry bool
+		pick     bool
+	}{
+		{"$defs/move", true, true}, {"$defs/picked-move", true, false},
+		{"$defs/pixel-step", false, true}, {"$defs/picked-pixel-step", false, false},
+	} {
+		want := sectionOps(c.geometry)
+		if !c.pick {
+			want = want[:len(want)-1]
+		}
+		sort.Strings(want)
+		if got := psStrings(psAt(t, doc, c.at+"/properties/do")["enum"]); !reflect.DeepEqual(got, want) {
+			t.Errorf("%s: do enum %v, want %v", c.at, got, want)
+		}
 	}
 	rules := psRules(t, doc)
 	var ruleOps []string
@@ -603,7 +701,7 @@ func TestPlanSchemaFieldsMatchCode(t *testing.T) {
 		if then == nil {
 			continue
 		}
-		want := append([]string{"op", "chance"}, fields...)
+		want := append([]string{"do", "chance"}, fields...)
 		sort.Strings(want)
 		names, _ := then["propertyNames"].(map[string]any)
 		if got := psStrings(names["enum"]); !reflect.DeepEqual(got, want) {
@@ -632,14 +730,16 @@ func TestPlanSchemaFieldsMatchCode(t *testing.T) {
 		}
 	}
 	// Bounds from plan.go's constants.
-	if got := fmt.Sprint(psAt(t, doc, "properties/steps")["maxItems"]); got != fmt.Sprint(MaxSteps) {
-		t.Errorf("steps maxItems %s, MaxSteps %d", got, MaxSteps)
+	for _, at := range []string{"properties/pixels", "properties/geometry/properties/moves"} {
+		if got := fmt.Sprint(psAt(t, doc, at)["maxItems"]); got != fmt.Sprint(MaxSteps) {
+			t.Errorf("%s maxItems %s, MaxSteps %d", at, got, MaxSteps)
+		}
 	}
 	for _, op := range []string{"resize", "crop"} {
-		out := psAt(t, rules[op], "properties/output")
+		out := psAt(t, rules[op], "properties/to")
 		for i, it := range out["prefixItems"].([]any) {
 			if got := fmt.Sprint(it.(map[string]any)["maximum"]); got != fmt.Sprint(MaxSide) {
-				t.Errorf("%s output[%d] maximum %s, MaxSide %d", op, i, got, MaxSide)
+				t.Errorf("%s to[%d] maximum %s, MaxSide %d", op, i, got, MaxSide)
 			}
 		}
 	}
@@ -657,7 +757,7 @@ func slicesContains(s []string, v string) bool {
 // Every default the schema states is the one ParsePlan fills in.
 func TestPlanSchemaDefaultsMatchCode(t *testing.T) {
 	doc := psSchemaDoc(t)
-	p, err := ParsePlan("min.yaml", []byte("name: t\nsteps: [{op: blur, sigma: 1}]\n"))
+	p, err := ParsePlan("min.yaml", []byte("name: t\n"+psTail))
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -665,7 +765,7 @@ func TestPlanSchemaDefaultsMatchCode(t *testing.T) {
 	if err := json.Unmarshal(p.JSON(), &got); err != nil {
 		t.Fatal(err)
 	}
-	for _, path := range []string{"interpolation", "fill/mode", "fill/intensity", "cut/policy", "cut/least_shown", "cut/tries"} {
+	for _, path := range []string{"geometry/sampling", "geometry/outside/image", "geometry/outside/tone", "geometry/cuts/policy", "geometry/cuts/least_shown", "geometry/cuts/tries"} {
 		parts := strings.Split(path, "/")
 		sp := "properties/" + strings.Join(parts, "/properties/")
 		def := fmt.Sprint(psAt(t, doc, sp)["default"])
@@ -677,8 +777,8 @@ func TestPlanSchemaDefaultsMatchCode(t *testing.T) {
 			t.Errorf("%s: schema default %s, ParsePlan fills in %v", path, def, v)
 		}
 	}
-	if got := fmt.Sprint(psAt(t, doc, "$defs/step/properties/chance")["default"]); got != fmt.Sprint(*p.Steps[0].Chance) {
-		t.Errorf("chance: schema default %s, ParsePlan fills in %v", got, *p.Steps[0].Chance)
+	if got := fmt.Sprint(psAt(t, doc, "$defs/step/properties/chance")["default"]); got != fmt.Sprint(*p.Pixels[0].Chance) {
+		t.Errorf("chance: schema default %s, ParsePlan fills in %v", got, *p.Pixels[0].Chance)
 	}
 	// Per-op defaults: the field left out of an example comes back as the
 	// default (a number d is the range [d, d]; false is left out of JSON).
@@ -697,13 +797,13 @@ func TestPlanSchemaDefaultsMatchCode(t *testing.T) {
 			delete(without, k)
 			p, err := ParsePlan("d.yaml", psPlanDoc(t, without))
 			if err != nil {
-				continue // k is needed in this example (affine with shear only)
+				continue // k is needed in this example (warp with slant only)
 			}
 			var js map[string]any
 			if err := json.Unmarshal(p.JSON(), &js); err != nil {
 				t.Fatal(err)
 			}
-			step := js["steps"].([]any)[0].(map[string]any)
+			step := psStepOf(t, js)
 			filled, present := step[k]
 			want := fmt.Sprint(def)
 			switch d := def.(type) {

@@ -16,23 +16,23 @@ const (
 
 // Fill says what an image shows where the warp samples outside the source.
 type Fill struct {
-	Mode  string     // "constant" (default), "edge" (repeat the border) or "reflect" (mirror about the border)
-	Value [3]float32 // the constant, per channel
+	Mode  string     // "tone" or "" (a fixed tone, the default), "extend" (repeat the border) or "mirror" (mirror about the border)
+	Value [3]float32 // the tone, per channel
 }
 
 // index maps a tap index i into 0..n-1 under the fill mode; ok is false when
-// the constant applies.
+// the tone applies.
 func (f Fill) index(i, n int) (int, bool) {
 	if i >= 0 && i < n {
 		return i, true
 	}
 	switch f.Mode {
-	case "edge":
+	case "extend":
 		if i < 0 {
 			return 0, true
 		}
 		return n - 1, true
-	case "reflect":
+	case "mirror":
 		// Half-sample symmetric: … 1 0 | 0 1 … n-1 | n-1 n-2 …
 		p := 2 * n
 		i = ((i % p) + p) % p

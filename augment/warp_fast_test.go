@@ -83,7 +83,7 @@ func fastTestMasks(w, h int, rng *rand.Rand) (*image.Paletted, *image.Gray16) {
 
 func TestWarpFastMatchesReference(t *testing.T) {
 	rng := rand.New(rand.NewPCG(1, 2))
-	fills := []Fill{{Mode: "constant"}, {Mode: "constant", Value: [3]float32{12.5, 200, 77}}, {Mode: "edge"}, {Mode: "reflect"}}
+	fills := []Fill{{Mode: "tone"}, {Mode: "tone", Value: [3]float32{12.5, 200, 77}}, {Mode: "extend"}, {Mode: "mirror"}}
 	sizes := [][4]int{{1, 1, 3, 2}, {2, 3, 4, 4}, {7, 5, 7, 5}, {5, 7, 9, 6}, {64, 64, 64, 64}, {48, 33, 40, 52}}
 	checked, quarterSeen := 0, 0
 	for _, sz := range sizes {

@@ -1,6 +1,7 @@
 package manifest
 
 import (
+	"bytes"
 	"encoding/json"
 	"fmt"
 	"math"
@@ -52,17 +53,158 @@ type Object struct {
 	Value     *float64   `json:"value,omitempty"`
 }
 
-// Lineage records where an augmented sample came from.
+// Lineage records where an augmented sample came from and what was done to
+// it: the steps of each phase of the plan that applied, in order, with their
+// drawn parameters, and the matrix the geometry steps composed into.
 type Lineage struct {
-	Source string      `json:"source"`
-	Ops    []LineageOp `json:"ops"`
-	Affine [6]float64  `json:"affine"`
+	Source   string       `json:"source"`
+	Geometry []LineageOp  `json:"geometry"`
+	Pixels   []LineageOp  `json:"pixels"`
+	Matrix   [6]float64   `json:"matrix"`
+	Cuts     *LineageCuts `json:"cuts,omitempty"`
 }
 
-// LineageOp is one applied augmentation step with its drawn parameters.
+// LineageCuts says what the plan's cut policy did to a copy: how many times
+// it was drawn again because a crop or turn cut an object below least_shown,
+// and how many objects were dropped in the end. Absent when both are 0.
+type LineageCuts struct {
+	Redraws int `json:"redraws"`
+	Dropped int `json:"dropped"`
+}
+
+// LineageOp is one applied step, written as one JSON object: "do" (the
+// plan's name of the step), "pick" (the index of the step a pick chose, when
+// a pick chose it), then the drawn parameters in the order they were drawn,
+// each a JSON number, boolean, string, or a list or object of these.
 type LineageOp struct {
-	Op     string             `json:"op"`
-	Params map[string]float64 `json:"params,omitempty"`
+	Do     string
+	Pick   *int
+	Params []LineageParam
+}
+
+// LineageParam is one drawn parameter. Value is what encoding/json gives
+// for a JSON value: float64, bool, string, []any or map[string]any.
+type LineageParam struct {
+	Name  string
+	Value any
+}
+
+// Get returns the parameter called name.
+func (o *LineageOp) Get(name string) (any, bool) {
+	for _, p := range o.Params {
+		if p.Name == name {
+			return p.Value, true
+		}
+	}
+	return nil, false
+}
+
+// Num returns a numeric parameter, 0 when it is absent or not a number.
+func (o *LineageOp) Num(name string) float64 {
+	v, _ := o.Get(name)
+	f, _ := v.(float64)
+	return f
+}
+
+// Bool returns a boolean parameter, false when it is absent.
+func (o *LineageOp) Bool(name string) bool {
+	v, _ := o.Get(name)
+	b, _ := v.(bool)
+	return b
+}
+
+// Str returns a string parameter, "" when it is absent.
+func (o *LineageOp) Str(name string) string {
+	v, _ := o.Get(name)
+	s, _ := v.(string)
+	return s
+}
+
+// Set replaces the parameter called name, or appends it.
+func (o *LineageOp) Set(name string, v any) {
+	for i := range o.Params {
+		if o.Params[i].Name == name {
+			o.Params[i].Value = v
+			return
+		}
+	}
+	o.Params = append(o.Params, LineageParam{name, v})
+}
+
+// MarshalJSON writes {"do": ..., "pick": ..., parameters in order}.
+func (o LineageOp) MarshalJSON() ([]byte, error) {
+	b := []byte(`{"do":`)
+	s, err := json.Marshal(o.Do)
+	if err != nil {
+		return nil, err
+	}
+	b = append(b, s...)
+	if o.Pick != nil {
+		b = append(b, fmt.Sprintf(`,"pick":%d`, *o.Pick)...)
+	}
+	for _, p := range o.Params {
+		if p.Name == "do" || p.Name == "pick" {
+			return nil, fmt.Errorf("lineage step %s: parameter name %q is reserved", o.Do, p.Name)
+		}
+		k, err := json.Marshal(p.Name)
+		if err != nil {
+			return nil, err
+		}
+		v, err := json.Marshal(p.Value)
+		if err != nil {
+			return nil, fmt.Errorf("lineage step %s: parameter %s: %w", o.Do, p.Name, err)
+		}
+		b = append(append(append(append(b, ','), k...), ':'), v...)
+	}
+	return append(b, '}'), nil
+}
+
+// UnmarshalJSON reads what MarshalJSON writes, keeping the parameters'
+// order.
+func (o *LineageOp) UnmarshalJSON(b []byte) error {
+	dec := json.NewDecoder(bytes.NewReader(b))
+	if t, err := dec.Token(); err != nil || t != json.Delim('{') {
+		return fmt.Errorf("a lineage step must be a JSON object")
+	}
+	*o = LineageOp{}
+	seen := map[string]bool{}
+	for dec.More() {
+		t, err := dec.Token()
+		if err != nil {
+			return err
+		}
+		key, _ := t.(string)
+		if seen[key] {
+			return fmt.Errorf("lineage step: key %q given twice", key)
+		}
+		seen[key] = true
+		var raw json.RawMessage
+		if err := dec.Decode(&raw); err != nil {
+			return err
+		}
+		switch key {
+		case "do":
+			if err := json.Unmarshal(raw, &o.Do); err != nil {
+				return fmt.Errorf("lineage step: do: %w", err)
+			}
+		case "pick":
+			var i int
+			if err := json.Unmarshal(raw, &i); err != nil {
+				return fmt.Errorf("lineage step: pick: %w", err)
+			}
+			o.Pick = &i
+		default:
+			var v any
+			if err := json.Unmarshal(raw, &v); err != nil {
+				return fmt.Errorf("lineage step: %s: %w", key, err)
+			}
+			o.Params = append(o.Params, LineageParam{key, v})
+		}
+	}
+	if o.Do == "" {
+		return fmt.Errorf("lineage step without do")
+	}
+	return nil
 }
 
 // Value is a target value: a number or a string.

@@ -38,28 +38,30 @@ import (
 )
 
 // PlanYAML is the figure's plan for an n×n source: the steps of
-// bench/plans/kernels.yaml with the crop resized back to n×n. Cut policy
-// "keep", so Plan.Copy draws once per copy (a resample would redraw and
+// bench/plans/kernels.yaml with the crop resized back to n×n. Cuts policy
+// "keep", so Plan.Copy draws once per copy (a redraw would draw again and
 // measure the policy, not the kernels).
 func PlanYAML(n int) string {
 	return fmt.Sprintf(`name: kernels-%d
-interpolation: bilinear
-fill:
-  mode: constant
-  intensity: 0
-mask_fill: background
-cut:
-  policy: keep
-steps:
-  - op: flip
-    axis: horizontal
-  - op: rotate
-    degrees: [-15, 15]
-  - op: crop
-    area: [0.7, 1.0]
-    aspect: [0.8, 1.25]
-    output: [%d, %d]
-  - op: gaussian-noise
+geometry:
+  sampling: bilinear
+  outside:
+    image: tone
+    tone: 0
+    classes: background
+  cuts:
+    policy: keep
+  moves:
+    - do: flip
+      axis: horizontal
+    - do: rotate
+      angle: [-15, 15]
+    - do: crop
+      area: [0.7, 1.0]
+      aspect: [0.8, 1.25]
+      to: [%d, %d]
+pixels:
+  - do: gaussian-noise
     sigma: [2, 6]
 `, n, n, n)
 }
@@ -159,23 +161,34 @@ func NewCase(n int) (*Case, error) {
 		if err != nil {
 			return nil, err
 		}
-		cp := Copy{K: k, D: d, Fill: augment.Fill{Mode: "constant"}}
-		for _, op := range d.Ops {
-			switch op.Op {
-			case "flip-horizontal":
+		cp := Copy{K: k, D: d, Fill: augment.Fill{Mode: "tone"}}
+		ops := append(append([]manifest.LineageOp(nil), d.Geometry...), d.Pixels...)
+		for _, op := range ops {
+			switch op.Do {
+			case "flip":
+				if op.Str("axis") != "horizontal" {
+					return nil, fmt.Errorf("kernels: unexpected flip axis %q", op.Str("axis"))
+				}
 			case "rotate":
-				cp.Deg = op.Params["degrees"]
+				cp.Deg = op.Num("angle")
 			case "crop":
-				cp.Crop = [4]float64{op.Params["x"], op.Params["y"], op.Params["width"], op.Params["height"]}
-				cp.OW, cp.OH = int(op.Params["output_width"]), int(op.Params["output_height"])
+				cp.Crop = [4]float64{op.Num("x"), op.Num("y"), op.Num("width"), op.Num("height")}
+				to, _ := op.Get("to")
+				wh, _ := to.([]any)
+				if len(wh) != 2 {
+					return nil, fmt.Errorf("kernels: crop to %v", to)
+				}
+				ow, _ := wh[0].(float64)
+				oh, _ := wh[1].(float64)
+				cp.OW, cp.OH = int(ow), int(oh)
 			case "gaussian-noise":
-				cp.Sigma, cp.Seed = op.Params["sigma"], uint64(op.Params["seed"])
+				cp.Sigma, cp.Seed = op.Num("sigma"), uint64(op.Num("seed"))
 			default:
-				return nil, fmt.Errorf("kernels: unexpected step %q", op.Op)
+				return nil, fmt.Errorf("kernels: unexpected step %q", op.Do)
 			}
 		}
-		if len(d.Ops) != 4 {
-			return nil, fmt.Errorf("kernels: copy %d applied %d steps, want 4", k, len(d.Ops))
+		if len(ops) != 4 {
+			return nil, fmt.Errorf("kernels: copy %d applied %d steps, want 4", k, len(ops))
 		}
 		c.Copies = append(c.Copies, cp)
 	}

@@ -140,10 +140,10 @@ func TestAugmentGeneratedSet(t *testing.T) {
 		t.Errorf("dataset.json count %d, manifest has %d", d.Count, len(outRecs))
 	}
 	// Copies record what was done to them: with every-step.yaml (the
-	// one-of step has chance 1) every copy has at least one op.
+	// pick under pixels has chance 1) every copy has at least one pixel step.
 	for _, r := range outRecs {
-		if r.Lineage != nil && len(r.Lineage.Ops) == 0 {
-			t.Errorf("copy %s records no ops", r.ID)
+		if r.Lineage != nil && len(r.Lineage.Pixels) == 0 {
+			t.Errorf("copy %s records no pixel steps", r.ID)
 		}
 	}
 }
@@ -159,12 +159,13 @@ func writePlan(t *testing.T, dir, name, src string) string {
 }
 
 const flipPlan = `name: mirror
-steps:
-  - op: rotate
-    degrees: [-5, 5]
-  - op: flip
-    axis: horizontal
-    chance: 0.5
+geometry:
+  moves:
+    - do: rotate
+      angle: [-5, 5]
+    - do: flip
+      axis: horizontal
+      chance: 0.5
 `
 
 // bin-labels declares its glyph class "character" with flip false and reads
@@ -177,7 +178,7 @@ func TestAugmentRefusesFlipOnGlyphs(t *testing.T) {
 	plan := writePlan(t, root, "mirror.yaml", flipPlan)
 	out := filepath.Join(root, "out")
 	_, stderr := wantCode(t, exitUsage, "augment", "--in", in, "--out", out, "--plan", plan, "--copies", "2")
-	for _, w := range []string{`class "character"`, "steps[1]", "flip horizontal", "--allow-label-change"} {
+	for _, w := range []string{`class "character"`, "geometry.moves[1]", "flip horizontal", "--allow-label-change"} {
 		if !strings.Contains(stderr, w) {
 			t.Errorf("stderr %q lacks %q", stderr, w)
 		}
@@ -205,8 +206,8 @@ func TestAugmentUsageErrors(t *testing.T) {
 	root := t.TempDir()
 	in := filepath.Join(root, "in")
 	wantCode(t, exitOK, "generate", "--count", "10", "--quiet", "--out", in)
-	// Line 5 holds the bad field: sigma belongs to noise and blur steps.
-	bad := writePlan(t, root, "bad.yaml", "name: bad\nsteps:\n  - op: flip\n    axis: horizontal\n    sigma: 2\n")
+	// Line 6 holds the bad field: sigma belongs to noise and blur steps.
+	bad := writePlan(t, root, "bad.yaml", "name: bad\ngeometry:\n  moves:\n    - do: flip\n      axis: horizontal\n      sigma: 2\n")
 	out := filepath.Join(root, "out")
 	cases := []struct {
 		name string
@@ -217,7 +218,7 @@ func TestAugmentUsageErrors(t *testing.T) {
 		{"missing --out", []string{"--in", in, "--plan", everyStepPlan}, []string{"--out"}},
 		{"missing --plan", []string{"--in", in, "--out", out}, []string{"--plan"}},
 		{"negative copies", []string{"--in", in, "--out", out, "--plan", everyStepPlan, "--copies", "-1"}, []string{"--copies -1", "0..1000"}},
-		{"bad plan file", []string{"--in", in, "--out", out, "--plan", bad}, []string{bad + ":5:", "steps[0].sigma", "flip does not take sigma"}},
+		{"bad plan file", []string{"--in", in, "--out", out, "--plan", bad}, []string{bad + ":6:", "geometry.moves[0].sigma", "flip does not take sigma"}},
 		{"missing plan file", []string{"--in", in, "--out", out, "--plan", filepath.Join(root, "nope.yaml")}, []string{"nope.yaml"}},
 		{"unknown split", []string{"--in", in, "--out", out, "--plan", everyStepPlan, "--split", "nosuch"}, []string{"--split nosuch", "train"}},
 		{"--in not a folder", []string{"--in", filepath.Join(root, "absent"), "--out", out, "--plan", everyStepPlan}, []string{"--in", "not a folder"}},
@@ -394,17 +395,12 @@ func TestAugmentReadmeCommands(t *testing.T) {
 		t.Fatalf("the Augmentation section has %d commands", len(script))
 	}
 	work := t.TempDir()
-	for _, dir := range []string{"testdata", "schema"} {
+	for _, dir := range []string{"testdata", "schema", "examples/plans"} {
 		copyTree(t, filepath.Join("../..", dir), filepath.Join(work, dir))
 	}
-	// The section's example plan, saved as it names it.
-	if k := strings.Index(sec, "```yaml\n"); k >= 0 {
-		body := sec[k+len("```yaml\n"):]
-		body = body[:strings.Index(body, "```")]
-		if err := os.WriteFile(filepath.Join(work, "light.yaml"), []byte(body), 0o644); err != nil {
-			t.Fatal(err)
-		}
-	}
+	// The section's example plan is examples/plans/light.yaml, which its
+	// command names (augment's TestExamplePlanIsTheREADMEs checks that the
+	// two are the same bytes).
 	binDir := filepath.Dir(bin)
 	if filepath.Base(bin) != "trueset" {
 		link := filepath.Join(t.TempDir(), "trueset")

@@ -127,9 +127,9 @@ var badCases = []badCase{
 
 	// Augmentation plans and flags, through augment.
 	{file: "plans/steps-201.yaml", run: "plan", code: exitUsage, wrong: "201 steps",
-		want: []string{"{in}:404:5: steps[200]", "at most 200 steps"}},
+		want: []string{"{in}:404:5: pixels[200]", "at most 200 steps"}},
 	{file: "plans/unknown-field.yaml", run: "plan", code: exitUsage, wrong: `a step with the field "chanse"`,
-		want: []string{"{in}:6:5: steps[0].chanse", `unknown field "chanse"`}},
+		want: []string{"{in}:6:5: pixels[0].chanse", `unknown field "chanse"`, `did you mean "chance"?`}},
 	{file: "plans/malformed.yaml", run: "plan", code: exitUsage, wrong: "a flow list [horizontal that is never closed",
 		want: []string{"{in}:", "YAML syntax", "did not find expected ',' or ']'"}},
 	{file: "--copies 1001 (a flag)", run: "flag", code: exitUsage, wrong: "--copies 1001, one over the bound",
