@@ -32,6 +32,7 @@ nothing more.`,
 		Example: `  # bash, for this session
   source <(trueset completion bash)
   # bash, for every session (Linux; on macOS with Homebrew: $(brew --prefix)/etc/bash_completion.d/trueset)
+  mkdir -p ~/.local/share/bash-completion/completions
   trueset completion bash > ~/.local/share/bash-completion/completions/trueset
 
   # zsh: into a folder on $fpath, then start a new shell
@@ -39,7 +40,7 @@ nothing more.`,
   echo 'fpath=(~/.zfunc $fpath); autoload -U compinit; compinit' >> ~/.zshrc
 
   # fish
-  trueset completion fish > ~/.config/fish/completions/trueset.fish`,
+  mkdir -p ~/.config/fish/completions && trueset completion fish > ~/.config/fish/completions/trueset.fish`,
 		ValidArgs: completionShells,
 		Args: func(c *cobra.Command, args []string) error {
 			if len(args) != 1 {

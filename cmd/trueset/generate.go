@@ -238,19 +238,24 @@ func runGenerate(ctx context.Context, o *generateOptions, stdout, stderr io.Writ
 		return writeJSON(stdout, j)
 	}
 	if !o.quiet {
-		// Short lines: the summary of a 20,000-sample run fits 80 columns.
-		secs := sum.Elapsed.Seconds()
-		fmt.Fprintf(stdout, "wrote %d %s of %s to %s\n", sum.Samples, manifest.Plural(sum.Samples, "sample", "samples"), r.Name, o.out)
-		if shards > 0 {
-			fmt.Fprintf(stdout, "  shard %d of 0..%d%s\n", shard, shards-1, from)
-		}
-		if sum.Resumed > 0 {
-			fmt.Fprintf(stdout, "  %d kept from the interrupted run\n", sum.Resumed)
-		}
-		fmt.Fprintf(stdout, "  %s, %s, %s, seed %d\n", seconds(secs), rate(sum.Samples-sum.Resumed, secs, "samples"), humanBytes(sum.Bytes), o.seed)
-		printSplitTable(stdout, sum.Splits)
+		printGenerateSummary(stdout, sum, r.Name, o.out, o.seed, shard, shards, from)
 	}
 	return nil
+}
+
+// printGenerateSummary prints what a run wrote, in short lines: the summary
+// of a 20,000-sample run fits 80 columns.
+func printGenerateSummary(w io.Writer, sum gen.Summary, recipe, out string, seed uint64, shard, shards int, from string) {
+	secs := sum.Elapsed.Seconds()
+	fmt.Fprintf(w, "wrote %d %s of %s to %s\n", sum.Samples, manifest.Plural(sum.Samples, "sample", "samples"), recipe, out)
+	if shards > 0 {
+		fmt.Fprintf(w, "  shard %d of 0..%d%s\n", shard, shards-1, from)
+	}
+	if sum.Resumed > 0 {
+		fmt.Fprintf(w, "  %d kept from the interrupted run\n", sum.Resumed)
+	}
+	fmt.Fprintf(w, "  %s, %s, %s, seed %d\n", seconds(secs), rate(sum.Samples-sum.Resumed, secs, "samples"), humanBytes(sum.Bytes), seed)
+	printSplitTable(w, sum.Splits)
 }
 
 // interrupted explains a run that stopped early: the folder has no

@@ -4,6 +4,7 @@ import (
 	"bytes"
 	"encoding/json"
 	"errors"
+	"fmt"
 	"image/png"
 	"io"
 	"io/fs"
@@ -287,5 +288,79 @@ func TestVerifyJSON(t *testing.T) {
 	stdout, _ = wantCode(t, exitUsage, "verify", filepath.Join(dir, "nope"), "--json")
 	if stdout != "" {
 		t.Errorf("stdout %q on a usage error", stdout)
+	}
+}
+
+// split, merge and version print one JSON document of the shared shape, and
+// what split and merge write verifies.
+func TestSplitMergeVersionJSON(t *testing.T) {
+	root := t.TempDir()
+	dir := filepath.Join(root, "dice")
+	wantCode(t, exitOK, "generate", "--preset", "tabletop-dice", "--count", "30", "--out", dir, "--quiet")
+	stdout, _ := wantCode(t, exitOK, "split", dir, "--ratios", "train=0.5,val=0.25,test=0.25", "--stratify", "dice", "--json")
+	var sj splitJSON
+	decodeOneJSON(t, stdout, &sj)
+	if sj.Command != "split" || sj.Dir != dir || sj.Samples != 30 || sj.Splits.Spec != "train=0.5,val=0.25,test=0.25" {
+		t.Errorf("split --json: %+v", sj)
+	}
+	sameSplits(t, sj.Splits, readDataset(t, dir).Splits)
+	wantCode(t, exitOK, "verify", dir)
+
+	var parts []string
+	for i := 0; i < 3; i++ {
+		p := filepath.Join(root, fmt.Sprintf("part-%d", i))
+		wantCode(t, exitOK, "generate", "--count", "30", "--seed", "4", "--shard", fmt.Sprintf("%d/3", i), "--out", p, "--quiet")
+		parts = append(parts, p)
+	}
+	out := filepath.Join(root, "merged")
+	stdout, _ = wantCode(t, exitOK, append(append([]string{"merge"}, parts...), "--out", out, "--json")...)
+	var mj mergeJSON
+	decodeOneJSON(t, stdout, &mj)
+	d := readDataset(t, out)
+	if mj.Command != "merge" || mj.Dir != out || !slices.Equal(mj.Shards, parts) || mj.Samples != 30 || mj.Seed != 4 || mj.Bytes != folderBytes(t, out) {
+		t.Errorf("merge --json: %+v (folder %d bytes)", mj, folderBytes(t, out))
+	}
+	sameSplits(t, mj.Splits, d.Splits)
+	wantCode(t, exitOK, "verify", out)
+
+	stdout, _ = wantCode(t, exitOK, "version", "--json")
+	var vj versionJSON
+	decodeOneJSON(t, stdout, &vj)
+	if vj.Command != "version" || vj.Version != version || vj.Go == "" || vj.OS == "" || vj.Arch == "" {
+		t.Errorf("version --json: %+v", vj)
+	}
+}
+
+// Every --json document starts with "command" and names its folder "dir",
+// never "out", and counts "samples", never "records".
+func TestJSONSharedKeys(t *testing.T) {
+	root := t.TempDir()
+	dir := filepath.Join(root, "set")
+	docs := map[string]string{}
+	docs["generate"], _ = wantCode(t, exitOK, "generate", "--count", "12", "--out", dir, "--json")
+	docs["verify"], _ = wantCode(t, exitOK, "verify", dir, "--json")
+	docs["split"], _ = wantCode(t, exitOK, "split", dir, "--json")
+	docs["augment"], _ = wantCode(t, exitOK, "augment", "--in", dir, "--out", filepath.Join(root, "aug"), "--plan", "../../testdata/plans/every-step.yaml", "--json")
+	for name, doc := range docs {
+		var m map[string]any
+		if err := json.Unmarshal([]byte(doc), &m); err != nil {
+			t.Fatalf("%s: %v", name, err)
+		}
+		if m["command"] != name || m["dir"] == nil || m["samples"] == nil || m["seconds"] == nil {
+			t.Errorf("%s --json lacks command, dir, samples or seconds: %s", name, doc)
+		}
+		for _, old := range []string{"out", "records"} {
+			if _, ok := m[old]; ok {
+				t.Errorf("%s --json has %q", name, old)
+			}
+		}
+		if name != "verify" {
+			if _, ok := m["splits"].(map[string]any)["strata"].([]any); !ok {
+				t.Errorf("%s --json: splits.strata is not a list", name)
+			}
+		}
+		if !strings.HasPrefix(doc, "{\n  \"command\": ") {
+			t.Errorf("%s --json does not start with command: %.40q", name, doc)
+		}
 	}
 }

@@ -27,7 +27,7 @@ text as --help. DIR is created if it does not exist; pages already there
 are replaced. The date in the pages is the current month, or the one
 SOURCE_DATE_EPOCH gives (for reproducible packages).`,
 		Example: `  # read one without installing
-  trueset man --out /tmp/trueset-man && man -l /tmp/trueset-man/trueset-generate.1
+  trueset man --out man-pages && man -l man-pages/trueset-generate.1
 
   # install for your user (man looks in ~/.local/share/man on most systems)
   trueset man --out ~/.local/share/man/man1 && man trueset-verify`,

@@ -368,3 +368,92 @@ func TestSplitByAreaTarget(t *testing.T) {
 	wantCode(t, exitOK, "verify", dir)
 	wantCode(t, exitOK, "verify", "--regenerate", dir)
 }
+
+// --stratify is checked by one function in every command: an unknown class
+// or target is exit 2 with the same message, naming it and listing the
+// known ones, and nothing is changed.
+func TestStratifyRefusedAlike(t *testing.T) {
+	root := t.TempDir()
+	dir := filepath.Join(root, "dice")
+	wantCode(t, exitOK, "generate", "--preset", "tabletop-dice", "--count", "12", "--out", dir, "--quiet")
+	before, _ := fileBytes(t, dir)
+	for key, want := range map[string][]string{
+		"class:nosuch": {`no class "nosuch"`, "die, pip"},
+		"nosuch":       {`no target "nosuch"`, "dice, pip_total", "class:NAME"},
+	} {
+		_, gen := wantCode(t, exitUsage, "generate", "--preset", "tabletop-dice", "--count", "12", "--out", filepath.Join(root, "g-"+key), "--stratify", key)
+		_, split := wantCode(t, exitUsage, "split", dir, "--stratify", key)
+		if gen != split {
+			t.Errorf("--stratify %s: generate says %q, split says %q", key, gen, split)
+		}
+		for _, w := range want {
+			if !strings.Contains(split, w) {
+				t.Errorf("--stratify %s: %q lacks %q", key, split, w)
+			}
+		}
+	}
+	if after, _ := fileBytes(t, dir); !bytes.Equal(before, after) {
+		t.Error("a refused split changed manifest.jsonl")
+	}
+	// A trueset dataset keeps its split in augment: --stratify and --ratios
+	// are for plain folders and refused here rather than ignored.
+	wantCode(t, exitUsage, "augment", "--in", dir, "--out", filepath.Join(root, "aug"), "--plan", "../../testdata/plans/every-step.yaml", "--stratify", "dice")
+}
+
+// Ratios must add up to 1 in flags and in a recipe's split.ratios (exit 2,
+// showing the sum); an accepted spec is stored as written, and its ratios
+// without float noise.
+func TestRatiosAddUpToOne(t *testing.T) {
+	root := t.TempDir()
+	dir := filepath.Join(root, "set")
+	wantCode(t, exitOK, "generate", "--count", "16", "--out", dir, "--quiet", "--ratios", "train=0.125,val=0.375,test=0.5")
+	for _, c := range []struct {
+		args []string
+		sum  string
+	}{
+		{[]string{"generate", "--out", filepath.Join(root, "a"), "--ratios", "train=0.7,val=0.1"}, "0.8"},
+		{[]string{"generate", "--out", filepath.Join(root, "b"), "--ratios", "train=0.8,val=0.3"}, "1.1"},
+		{[]string{"split", dir, "--ratios", "train=0.7,val=0.1"}, "0.8"},
+		{[]string{"split", dir, "--ratios", "train=0.8,val=0.3"}, "1.1"},
+	} {
+		_, stderr := wantCode(t, exitUsage, c.args...)
+		if !strings.Contains(stderr, "add up to "+c.sum+", not 1") || !strings.Contains(stderr, "--ratios") {
+			t.Errorf("trueset %s: %q", strings.Join(c.args, " "), stderr)
+		}
+	}
+	d := readDataset(t, dir)
+	if d.Splits.Spec != "train=0.125,val=0.375,test=0.5" || d.Splits.Ratios["train"] != 0.125 || d.Splits.Ratios["val"] != 0.375 {
+		t.Errorf("stored spec %q ratios %v", d.Splits.Spec, d.Splits.Ratios)
+	}
+	raw, err := os.ReadFile(filepath.Join(dir, manifest.DatasetFile))
+	if err != nil {
+		t.Fatal(err)
+	}
+	if strings.Contains(string(raw), "0000000") {
+		t.Errorf("dataset.json holds float noise:\n%s", raw)
+	}
+	// As written, spaces trimmed, in split too; the result verifies.
+	wantCode(t, exitOK, "split", dir, "--ratios", "train=0.70, val=0.15, test=0.15", "--quiet")
+	if d := readDataset(t, dir); d.Splits.Spec != "train=0.70,val=0.15,test=0.15" || d.Splits.Ratios["train"] != 0.7 {
+		t.Errorf("stored spec %q ratios %v", d.Splits.Spec, d.Splits.Ratios)
+	}
+	wantCode(t, exitOK, "verify", dir)
+
+	// The recipe's split.ratios: a recipe error, exit 2.
+	src, err := os.ReadFile(walkthroughRecipe)
+	if err != nil {
+		t.Fatal(err)
+	}
+	bad := strings.Replace(string(src), "ratios: train=0.8,val=0.1,test=0.1", "ratios: train=0.8,val=0.3", 1)
+	if bad == string(src) {
+		t.Fatal("the walkthrough recipe has no split.ratios line to break")
+	}
+	recipe := filepath.Join(root, "bad.yaml")
+	if err := os.WriteFile(recipe, []byte(bad), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	_, stderr := wantCode(t, exitUsage, "generate", "--recipe", recipe, "--out", filepath.Join(root, "c"))
+	if !strings.Contains(stderr, "split.ratios") || !strings.Contains(stderr, "add up to 1.1") {
+		t.Errorf("recipe with ratios adding to 1.1: %q", stderr)
+	}
+}

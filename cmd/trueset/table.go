@@ -92,7 +92,7 @@ func rate(n int, secs float64, unit string) string {
 
 // progress draws one status line on a terminal, redrawn in place:
 //
-//	generating tabletop-dice  12000/20000  60%  elapsed 20s  left 13s  600 samples/s
+//	generating tabletop-dice 12000/20000 60% elapsed 20s, left 13s, 600 samples/s
 //
 // The rate and the time left appear only once the run has gone on for
 // progressSettle and done a few units, when they mean something; the line
@@ -163,11 +163,11 @@ func progressText(what, unit string, done, total int, elapsed time.Duration) str
 	if total > 0 {
 		pct = int(100 * int64(done) / int64(total))
 	}
-	s := fmt.Sprintf("%s  %d/%d  %d%%  elapsed %s", what, done, total, pct, clock(elapsed))
+	s := fmt.Sprintf("%s %d/%d %d%% elapsed %s", what, done, total, pct, clock(elapsed))
 	if elapsed >= progressSettle && done >= 4 {
 		per := float64(done) / elapsed.Seconds()
 		left := time.Duration(float64(total-done) / per * float64(time.Second))
-		s += fmt.Sprintf("  left %s  %.0f %s/s", clock(left), per, unit)
+		s += fmt.Sprintf(", left %s, %.0f %s/s", clock(left), per, unit)
 	}
 	return s
 }
