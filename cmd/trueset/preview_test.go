@@ -8,8 +8,11 @@ import (
 	"image/png"
 	"os"
 	"path/filepath"
+	"slices"
 	"strings"
 	"testing"
+
+	"go.yaml.in/yaml/v3"
 
 	"github.com/trueset/trueset/gen"
 )
@@ -149,6 +152,65 @@ func TestPreviewFormatByExtension(t *testing.T) {
 		}
 		if _, err := os.Stat(p); err == nil {
 			t.Errorf("--out %s was written", c.name)
+		}
+	}
+}
+
+// trubetskoy2017 is Sasha Trubetskoy's "List of 20 Simple, Distinct Colors"
+// (2017 version), from memory: red, green, yellow, blue, orange, purple,
+// cyan, magenta, lime, pink, teal, lavender, brown, beige, maroon, mint,
+// olive, apricot (coral in some copies), navy, gray (white and black end
+// the list).
+var trubetskoy2017 = [][3]int{{230, 25, 75}, {60, 180, 75}, {255, 225, 25}, {0, 130, 200}, {245, 130, 48},
+	{145, 30, 180}, {70, 240, 240}, {240, 50, 230}, {210, 245, 60}, {250, 190, 190}, {0, 128, 128},
+	{230, 190, 255}, {170, 110, 40}, {255, 250, 200}, {128, 0, 0}, {170, 255, 195}, {128, 128, 0},
+	{255, 215, 180}, {0, 0, 128}, {128, 128, 128}, {255, 255, 255}, {0, 0, 0}}
+
+// The preset class colors the sheets' legends show: a preset whose colors
+// all come from the 20-color list credits it beside them (author, title,
+// year, and that the values are from memory); one with colors of its own
+// says so.
+func TestPreviewPresetColorsCredited(t *testing.T) {
+	files, _ := filepath.Glob(filepath.Join("..", "..", "gen", "presets", "*.yaml"))
+	if len(files) == 0 {
+		t.Fatal("no preset files")
+	}
+	for _, f := range files {
+		b, err := os.ReadFile(f)
+		if err != nil {
+			t.Fatal(err)
+		}
+		var r struct {
+			Classes []struct {
+				Name  string `yaml:"name"`
+				Color [3]int `yaml:"color"`
+			} `yaml:"classes"`
+		}
+		if err := yaml.Unmarshal(b, &r); err != nil {
+			t.Fatalf("%s: %v", f, err)
+		}
+		fromList := len(r.Classes) > 0
+		for _, c := range r.Classes {
+			if !slices.Contains(trubetskoy2017, c.Color) {
+				fromList = false
+			}
+		}
+		// The comment lines right above "classes:".
+		lines := strings.Split(string(b), "\n")
+		at := slices.Index(lines, "classes:")
+		top := at
+		for top > 0 && strings.HasPrefix(lines[top-1], "#") {
+			top--
+		}
+		comment := strings.Join(lines[max(top, 0):max(at, 0)], "\n")
+		if fromList {
+			for _, want := range []string{"Sasha Trubetskoy", `"List of 20 Simple, Distinct Colors"`, "2017", "from memory"} {
+				if !strings.Contains(strings.Join(strings.Fields(comment), " "), want) {
+					t.Errorf("%s: colors from the 20-color list, but the comment before classes lacks %q", filepath.Base(f), want)
+				}
+			}
+		} else if !strings.Contains(comment, "our own") {
+			t.Errorf("%s: colors not from the list, and the comment does not say they are our own", filepath.Base(f))
 		}
 	}
 }
