@@ -34,7 +34,7 @@ func ParseSplits(s string) (Splits, error) {
 	var sp Splits
 	seen := map[string]bool{}
 	total := new(big.Rat)
-	var parts []string
+	var parts []string // as written, trimmed
 	for _, part := range strings.Split(s, ",") {
 		part = strings.TrimSpace(part)
 		name, val, ok := strings.Cut(part, "=")
@@ -60,7 +60,7 @@ func ParseSplits(s string) (Splits, error) {
 	}
 	sum, _ := total.Float64()
 	if math.Abs(sum-1) > RatioSumTolerance {
-		return sp, fmt.Errorf("split ratios %s add up to %s, not 1; give each split its share, e.g. %s", strings.Join(parts, ","), ratString(total), DefaultSplits)
+		return sp, fmt.Errorf("the ratios add up to %s, not 1; give each split its share, e.g. %s", ratString(total), DefaultSplits)
 	}
 	sp.Spec = strings.Join(parts, ",")
 	return sp, nil

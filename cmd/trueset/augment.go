@@ -78,7 +78,7 @@ A plan that would break a class's declared invariance (a flipped glyph, a
 	f.StringVar(&o.plan, "plan", "", "augmentation plan YAML (required)")
 	f.IntVarP(&o.copies, "copies", "k", 1, "augmented copies per source")
 	f.Uint64Var(&o.seed, "seed", 1, "augmentation seed")
-	f.StringVar(&o.split, "split", "train", "the splits whose sources get copies, comma-separated (e.g. train,val)")
+	f.StringVar(&o.split, "split", "train", "the splits whose sources get copies, comma-separated, e.g. train,val")
 	f.IntVarP(&o.workers, "workers", "j", runtime.NumCPU(), "parallel workers (output does not depend on it)")
 	f.BoolVar(&o.allow, "allow-label-change", false, "run a plan even where it breaks a class's declared invariance")
 	f.BoolVar(&o.force, "force", false, "write into a folder that is not empty (files trueset did not write are never deleted)")

@@ -164,7 +164,7 @@ func runGenerate(ctx context.Context, o *generateOptions, stdout, stderr io.Writ
 			return err
 		}
 		if err := r.CheckStratify(o.strat); err != nil {
-			return usagef("--stratify: %v", err)
+			return usageError{err}
 		}
 	}
 	shard, shards, from, err := shardFromFlagsOrEnv(o.shard, o.shards, os.Getenv)
@@ -388,10 +388,12 @@ func parseRatiosFlag(s string) (manifest.Splits, error) {
 // the same way in every command: an unknown class or target is exit 2,
 // naming the known ones.
 func checkStratify(key string, classes []manifest.Class, targets []string) error {
-	if err := manifest.CheckStratify(key, manifest.ClassNames(classes), targets); err != nil {
-		return usagef("--stratify: %v", err)
+	err := manifest.CheckStratify(key, manifest.ClassNames(classes), targets)
+	var se *manifest.StratifyError
+	if errors.As(err, &se) {
+		return usagef("--stratify %s: %s", se.Key, se.Msg)
 	}
-	return nil
+	return err
 }
 
 // recipeTargets lists a recipe's target names.
