@@ -52,18 +52,9 @@ if [ -d "$work/$aug" ]; then
 	dirs+=("$work/$aug-aug")
 fi
 
-# Split names and ratios are --ratios (issue 10; --split now names which
-# split a command looks at). Until that rename is in the tool, the old
-# spelling is used, and said so.
-ratios=--ratios
-if ! "$work/trueset" augment --help 2>&1 | grep -q -- '--ratios'; then
-	ratios=--split
-	echo "note: this trueset has no --ratios yet (the rename is in progress); using --split for the ratios"
-fi
-
 echo "== augment testdata/plain (a plain labeled folder; upright plan, 2 copies)"
 "$work/trueset" augment --in testdata/plain --out "$work/plain-aug" --plan testdata/plans/upright.yaml --copies 2 \
-	"$ratios" train=0.5,val=0.25,test=0.25 --quiet
+	--ratios train=0.5,val=0.25,test=0.25 --quiet
 dirs+=("$work/plain-aug")
 
 echo "== $PY examples/python/test_loader.py"
