@@ -115,7 +115,7 @@ func Run(ctx context.Context, o RunOptions) (Summary, error) {
 	}
 	for _, s := range o.Splits {
 		if !known[s] {
-			return Summary{}, fmt.Errorf("--splits %s: the input has splits %v", s, in.splits.Names)
+			return Summary{}, fmt.Errorf("--split %s: the input has splits %v", s, in.splits.Names)
 		}
 		augmented[s] = true
 	}
@@ -519,6 +519,9 @@ func readPlain(o RunOptions) (*input, error) {
 		if c.ID != 0 {
 			addDef(manifest.TargetDef{Name: "count_" + c.Name, Kind: "count", Classes: []string{c.Name}})
 		}
+	}
+	if err := manifest.CheckStratify(o.Stratify, manifest.ClassNames(classes), in.targets); err != nil {
+		return nil, err
 	}
 	keys := make([]string, len(f.Sources))
 	for i, s := range f.Sources {

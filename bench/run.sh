@@ -149,7 +149,7 @@ aug=()
 for r in $(seq 1 "$REPEATS"); do
 	settle
 	timed "$BIN/trueset" augment -q --in "$WORK/src" --out "$WORK/aug$r" --plan bench/plans/kernels.yaml \
-		--copies "$AUG_COPIES" --splits train,val,test --workers 2
+		--copies "$AUG_COPIES" --split train,val,test --workers 2
 	aug+=("$SECONDS_")
 done
 ta=$(median "${aug[@]}")
@@ -158,6 +158,6 @@ echo "figure 5: augmentation end to end ($AUG_SOURCES sources x $AUG_COPIES copi
 echo "  trueset augment    median $(calc "$ta" 1) s   runs: ${aug[*]}   $(calc "$copies/$ta" 0) copies/s ($copies copies + $AUG_SOURCES originals carried over)"
 echo "  beside figure 1    trueset generate $(calc "$COUNT/$t2" 0) samples/s; augment/generate = $(calc "($copies/$ta)/($COUNT/$t2)")"
 echo "  reproduce          trueset generate -q --count $AUG_SOURCES --out SRC"
-echo "                     trueset augment -q --in SRC --out DIR --plan bench/plans/kernels.yaml --copies $AUG_COPIES --splits train,val,test --workers 2"
+echo "                     trueset augment -q --in SRC --out DIR --plan bench/plans/kernels.yaml --copies $AUG_COPIES --split train,val,test --workers 2"
 echo
 echo "load average after: $(cut -d' ' -f1-3 /proc/loadavg)"

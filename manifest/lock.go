@@ -46,18 +46,8 @@ func LockDir(dir string) (*Lock, error) {
 		return nil, err
 	}
 	if err := flock(f); err != nil {
-		b := make([]byte, 4096)
-		n, _ := f.ReadAt(b, 0)
+		other := holder(f)
 		f.Close()
-		var who struct {
-			PID     int    `json:"pid"`
-			Started string `json:"started"`
-			Command string `json:"command"`
-		}
-		other := "its lock file says nothing more"
-		if json.Unmarshal(b[:n], &who) == nil && who.PID > 0 {
-			other = fmt.Sprintf("process %d, started %s: %s", who.PID, who.Started, who.Command)
-		}
 		return nil, &LockedError{Dir: dir, Other: other}
 	}
 	info, _ := json.Marshal(map[string]any{
@@ -71,6 +61,21 @@ func LockDir(dir string) (*Lock, error) {
 	return &Lock{f: f, path: p}, nil
 }
 
+// holder describes the run holding a lock file, from what it wrote there.
+func holder(f *os.File) string {
+	b := make([]byte, 4096)
+	n, _ := f.ReadAt(b, 0)
+	var who struct {
+		PID     int    `json:"pid"`
+		Started string `json:"started"`
+		Command string `json:"command"`
+	}
+	if json.Unmarshal(b[:n], &who) == nil && who.PID > 0 {
+		return fmt.Sprintf("process %d, started %s: %s", who.PID, who.Started, who.Command)
+	}
+	return "its lock file says nothing more"
+}
+
 // Unlock removes the lock file and releases the lock. Safe on nil.
 func (l *Lock) Unlock() {
 	if l == nil || l.f == nil {
@@ -79,4 +84,33 @@ func (l *Lock) Unlock() {
 	os.Remove(l.path)
 	l.f.Close()
 	l.f = nil
+}
+
+// CheckUnlocked reports a LockedError when another run holds dir, without
+// taking the lock or creating anything (for checks before a run starts).
+func CheckUnlocked(dir string) error {
+	f, err := os.OpenFile(filepath.Join(dir, LockFile), os.O_RDWR, 0)
+	if err != nil {
+		return nil // no lock file: nobody holds it
+	}
+	defer f.Close()
+	if flock(f) != nil {
+		return &LockedError{Dir: dir, Other: holder(f)}
+	}
+	return nil // the flock is dropped with f
+}
+
+// HasEntries reports whether dir exists and holds anything besides a lock
+// file (which a killed run may leave behind).
+func HasEntries(dir string) bool {
+	ents, err := os.ReadDir(dir)
+	if err != nil {
+		return false
+	}
+	for _, e := range ents {
+		if e.Name() != LockFile {
+			return true
+		}
+	}
+	return false
 }

@@ -74,6 +74,11 @@ func recordPath(kind, p string) error {
 	return nil
 }
 
+// OverlapError is an output folder that overlaps an input (a usage error).
+type OverlapError struct{ msg string }
+
+func (e *OverlapError) Error() string { return e.msg }
+
 // CheckDisjoint refuses an output folder that is an input, lies inside one,
 // or contains one (writing it could empty or overwrite what is being read).
 // Paths are compared after resolving symbolic links of their existing part.
@@ -89,11 +94,11 @@ func CheckDisjoint(out string, inputs ...string) error {
 		}
 		switch {
 		case o == i:
-			return fmt.Errorf("output folder %s is the input %s; write to a new folder", out, in)
+			return &OverlapError{fmt.Sprintf("output folder %s is the input %s; write to a new folder", out, in)}
 		case within(o, i):
-			return fmt.Errorf("output folder %s is inside the input %s; write to a folder outside it", out, in)
+			return &OverlapError{fmt.Sprintf("output folder %s is inside the input %s; write to a folder outside it", out, in)}
 		case within(i, o):
-			return fmt.Errorf("output folder %s contains the input %s; write to a folder that does not hold it", out, in)
+			return &OverlapError{fmt.Sprintf("output folder %s contains the input %s; write to a folder that does not hold it", out, in)}
 		}
 	}
 	return nil

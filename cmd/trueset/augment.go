@@ -138,8 +138,14 @@ func runAugment(ctx context.Context, o *augmentOptions, stdout, stderr io.Writer
 	if o.resume && o.force {
 		return usagef("give --resume or --force, not both")
 	}
+	if err := manifest.CheckDisjoint(o.out, o.in); err != nil {
+		return err
+	}
+	if err := manifest.CheckUnlocked(o.out); err != nil {
+		return err
+	}
 	if !o.force && !o.resume {
-		if ents, err := os.ReadDir(o.out); err == nil && len(ents) > 0 {
+		if manifest.HasEntries(o.out) {
 			if _, err := os.Stat(filepath.Join(o.out, manifest.RunMarkerFile)); err == nil {
 				return usagef("--out %s holds an interrupted run; add --resume to continue it, or --force to start again", o.out)
 			}
@@ -199,9 +205,8 @@ func runAugment(ctx context.Context, o *augmentOptions, stdout, stderr io.Writer
 		if errors.As(err, &pe) || strings.HasPrefix(err.Error(), "plan ") {
 			return usageError{err}
 		}
-		if msg := err.Error(); strings.HasPrefix(msg, "--splits ") {
-			// augment.Run names the flag by its old spelling.
-			return usageError{errors.New("--split " + strings.TrimPrefix(msg, "--splits "))}
+		if strings.HasPrefix(err.Error(), "--split ") {
+			return usageError{err} // a split the input does not have
 		}
 		if resumeRefused(err) {
 			return usageError{err}

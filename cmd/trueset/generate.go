@@ -176,8 +176,11 @@ func runGenerate(ctx context.Context, o *generateOptions, stdout, stderr io.Writ
 	if o.resume && o.force {
 		return usagef("give --resume or --force, not both")
 	}
+	if err := manifest.CheckUnlocked(o.out); err != nil {
+		return err
+	}
 	if !o.force && !o.resume {
-		if ents, err := os.ReadDir(o.out); err == nil && len(ents) > 0 {
+		if manifest.HasEntries(o.out) {
 			if _, err := os.Stat(filepath.Join(o.out, manifest.RunMarkerFile)); err == nil {
 				return usagef("--out %s holds an interrupted run; add --resume to continue it, or --force to start again", o.out)
 			}
@@ -279,7 +282,13 @@ func interrupted(out string, done int, err error, stderr io.Writer) error {
 		fmt.Fprintf(stderr, "trueset: interrupted after %d samples; %s has no dataset.json yet. Resume with:\n  trueset %s\n", done, out, strings.Join(args, " "))
 		return errInterrupted
 	}
-	return fmt.Errorf("%s: %w (the folder has no dataset.json, so it is visibly incomplete; after fixing the cause, resume with: trueset %s)", out, err, strings.Join(args, " "))
+	var re *gen.RecipeError
+	if errors.As(err, &re) {
+		// The recipe must change, and a changed recipe is a new run:
+		// --resume would refuse it, and the same one fails the same way.
+		return fmt.Errorf("%w\n%s has no dataset.json, so it is visibly incomplete; change the recipe, then start again with --force (or into a new folder)", err, out)
+	}
+	return fmt.Errorf("%s: %w\nthe folder has no dataset.json, so it is visibly incomplete. If the cause lay outside the inputs (a full disk, a killed run), free it and resume with: trueset %s; if you change the recipe, plan or input, start again with --force", out, err, strings.Join(args, " "))
 }
 
 // resumeRefused reports whether --resume was refused because --out holds

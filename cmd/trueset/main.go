@@ -73,7 +73,9 @@ func exitCode(err error) int {
 	var ue usageError
 	var re *gen.RecipeError // also augment.PlanError: both are yamlnode.Error
 	var se *manifest.StratifyError
-	if errors.As(err, &ue) || errors.As(err, &re) || errors.As(err, &se) {
+	var le *manifest.LockedError  // another run holds the output folder
+	var oe *manifest.OverlapError // the output folder overlaps an input
+	if errors.As(err, &ue) || errors.As(err, &re) || errors.As(err, &se) || errors.As(err, &le) || errors.As(err, &oe) {
 		return exitUsage
 	}
 	// cobra's own argument and command errors are usage errors too.

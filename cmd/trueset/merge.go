@@ -3,7 +3,6 @@ package main
 import (
 	"fmt"
 	"io"
-	"os"
 	"time"
 
 	"github.com/spf13/cobra"
@@ -62,8 +61,14 @@ func runMerge(dirs []string, o *mergeOptions, stdout io.Writer) error {
 	if o.out == "" {
 		return usagef("--out DIR is required")
 	}
+	if err := manifest.CheckDisjoint(o.out, dirs...); err != nil {
+		return err
+	}
+	if err := manifest.CheckUnlocked(o.out); err != nil {
+		return err
+	}
 	if !o.force {
-		if ents, err := os.ReadDir(o.out); err == nil && len(ents) > 0 {
+		if manifest.HasEntries(o.out) {
 			return usagef("--out %s is not empty; choose a new folder or pass --force", o.out)
 		}
 	}

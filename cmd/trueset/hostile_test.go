@@ -1,0 +1,143 @@
+package main
+
+import (
+	"bytes"
+	"fmt"
+	"os"
+	"os/exec"
+	"path/filepath"
+	"strings"
+	"sync"
+	"testing"
+
+	"github.com/trueset/trueset/manifest"
+)
+
+// Issue 11, two runs into one folder: while a run holds the output folder,
+// every writing command refuses it with exit 2, naming the holder.
+func TestLockedOutputFolderRefused(t *testing.T) {
+	dir := filepath.Join(t.TempDir(), "out")
+	lk, err := manifest.LockDir(dir)
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer lk.Unlock()
+	_, stderr := wantCode(t, exitUsage, "generate", "--count", "4", "--out", dir, "--quiet")
+	if want := fmt.Sprintf("process %d", os.Getpid()); !strings.Contains(stderr, "being written by another trueset run") || !strings.Contains(stderr, want) {
+		t.Errorf("stderr %q does not name the other run (%s)", stderr, want)
+	}
+	src := filepath.Join(t.TempDir(), "src")
+	wantCode(t, exitOK, "generate", "--count", "4", "--out", src, "--quiet")
+	_, stderr = wantCode(t, exitUsage, "augment", "--in", src, "--out", dir, "--plan", "../../examples/plans/light.yaml", "--quiet")
+	if !strings.Contains(stderr, "being written by another trueset run") {
+		t.Errorf("augment: %q", stderr)
+	}
+	if _, err := os.Stat(filepath.Join(dir, manifest.DatasetFile)); err == nil {
+		t.Error("a refused run wrote dataset.json")
+	}
+}
+
+// Two generate processes started at once into one empty folder: at most one
+// finishes (exit 0), the other is refused with exit 2 (by the lock, or by
+// the folder no longer being empty), and the folder verifies. Before the
+// lock, both could exit 0 over a folder verify found hundreds of problems in.
+func TestTwoRunsAtOnce(t *testing.T) {
+	if testing.Short() {
+		t.Skip("builds and runs the binary")
+	}
+	bin := buildBinary(t)
+	for round := 0; round < 3; round++ {
+		dir := filepath.Join(t.TempDir(), "race")
+		var wg sync.WaitGroup
+		codes := make([]int, 2)
+		outs := make([]string, 2)
+		for i := range codes {
+			wg.Add(1)
+			go func(i int) {
+				defer wg.Done()
+				var b bytes.Buffer
+				cmd := exec.Command(bin, "generate", "--count", "300", "--workers", "1", "--seed", "5", "--out", dir, "--quiet")
+				cmd.Stdout, cmd.Stderr = &b, &b
+				err := cmd.Run()
+				outs[i] = b.String()
+				if ee, ok := err.(*exec.ExitError); ok {
+					codes[i] = ee.ExitCode()
+				} else if err != nil {
+					t.Error(err)
+				}
+			}(i)
+		}
+		wg.Wait()
+		ok := 0
+		for i, c := range codes {
+			switch c {
+			case 0:
+				ok++
+			case 2:
+				if !strings.Contains(outs[i], "being written by another trueset run") && !strings.Contains(outs[i], "is not empty") {
+					t.Errorf("round %d: refused run says %q", round, outs[i])
+				}
+			default:
+				t.Errorf("round %d: exit %d: %s", round, c, outs[i])
+			}
+		}
+		if ok != 1 {
+			t.Errorf("round %d: %d runs exited 0 (%v), want exactly 1", round, ok, outs)
+		}
+		wantCode(t, exitOK, "verify", dir)
+	}
+}
+
+// Issue 11: an output folder that is, holds or lies inside an input is
+// refused with exit 2 before anything is touched, in augment and merge.
+func TestOutputOverlapsInput(t *testing.T) {
+	root := t.TempDir()
+	src := filepath.Join(root, "src")
+	wantCode(t, exitOK, "generate", "--count", "6", "--out", src, "--quiet")
+	s0, s1 := filepath.Join(root, "s0"), filepath.Join(root, "s1")
+	wantCode(t, exitOK, "generate", "--count", "6", "--shard", "0/2", "--out", s0, "--quiet")
+	wantCode(t, exitOK, "generate", "--count", "6", "--shard", "1/2", "--out", s1, "--quiet")
+	before := treeDigest(t, root)
+	plan := "../../examples/plans/light.yaml"
+	for _, args := range [][]string{
+		{"augment", "--in", src, "--out", src, "--plan", plan, "--force"},
+		{"augment", "--in", src, "--out", filepath.Join(src, "images", "aug"), "--plan", plan},
+		{"augment", "--in", src, "--out", root, "--plan", plan, "--force"},
+		{"merge", s0, s1, "--out", s0, "--force"},
+		{"merge", s0, s1, "--out", filepath.Join(s1, "m")},
+		{"merge", s0, s1, "--out", root, "--force"},
+	} {
+		_, stderr := wantCode(t, exitUsage, args...)
+		if !strings.Contains(stderr, "output folder") {
+			t.Errorf("%v: %q", args, stderr)
+		}
+		if after := treeDigest(t, root); after != before {
+			t.Fatalf("%v changed files under %s", args, root)
+		}
+	}
+}
+
+// treeDigest is every path under root with its size and SHA-256.
+func treeDigest(t *testing.T, root string) string {
+	t.Helper()
+	var b strings.Builder
+	err := filepath.Walk(root, func(p string, info os.FileInfo, err error) error {
+		if err != nil {
+			return err
+		}
+		fmt.Fprintf(&b, "%s %v %d", p, info.IsDir(), info.Size())
+		if !info.IsDir() {
+			c, err := os.ReadFile(p)
+			if err != nil {
+				return err
+			}
+			b.WriteString(" " + manifest.SHA256Hex(c))
+		}
+		b.WriteByte('\n')
+		return nil
+	})
+	if err != nil {
+		t.Fatal(err)
+	}
+	return b.String()
+}
