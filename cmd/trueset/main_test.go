@@ -228,7 +228,7 @@ func TestFlagErrorMessages(t *testing.T) {
 		{[]string{"generate", "--out", out, "--quiet=maybe"}, []string{"--quiet maybe", "true or false"}},
 		{[]string{"generate", "--out"}, []string{"--out needs a value"}},
 		{[]string{"generate", "--recipe", filepath.Join(tmp, "nosuch.yaml"), "--out", out}, []string{"--recipe " + filepath.Join(tmp, "nosuch.yaml"), "does not exist"}},
-		{[]string{"augment", "--in", tmp, "--out", out, "--plan", filepath.Join(tmp, "nosuch.yaml")}, []string{"--plan", "does not exist"}},
+		{[]string{"augment", "--in", tmp, "--out", t.TempDir(), "--plan", filepath.Join(tmp, "nosuch.yaml")}, []string{"--plan", "does not exist"}},
 		{[]string{"generate", "--out", out, "--cuont", "5"}, []string{"unknown flag --cuont", "did you mean --count?"}},
 		{[]string{"generate", "--out", out, "--stratfy", "dice"}, []string{"did you mean --stratify?"}},
 		{[]string{"generate", "--out", out, "--split", "train=1"}, []string{"unknown flag --split", "did you mean --ratios?"}},
