@@ -8,6 +8,7 @@ import (
 	"encoding/json"
 	"errors"
 	"fmt"
+	"github.com/trueset/trueset/internal/safefile"
 	"hash"
 	"image"
 	"io"
@@ -217,6 +218,11 @@ func Resume(dir string, o CreateOptions, keep func(n int) int) (*Writer, int, er
 	mp := filepath.Join(dir, RunMarkerFile)
 	for _, name := range []string{DatasetFile, ShardFile} {
 		if _, err := os.Stat(filepath.Join(dir, name)); err == nil {
+			// Its presence alone proves nothing: it must be a finished
+			// run's, agreeing with the manifest beside it.
+			if err := checkFinished(dir, name); err != nil {
+				return nil, 0, err
+			}
 			// A run killed between writing dataset.json and removing its
 			// marker is complete; the marker and temporary files are stale.
 			if _, err := os.Stat(mp); err == nil {
@@ -436,4 +442,45 @@ func (w *Writer) Finish(d *Dataset) (int64, error) {
 		return 0, err
 	}
 	return w.bytes + int64(len(b)), nil
+}
+
+// checkFinished confirms that DIR/name (dataset.json or shard.json) is what a
+// finished run writes: known format, and the checksum it records equals the
+// manifest beside it.
+func checkFinished(dir, name string) error {
+	p := filepath.Join(dir, name)
+	b, err := safefile.Read(p, name, MaxDatasetBytes)
+	if err != nil {
+		return err
+	}
+	var d Dataset
+	want := ""
+	if name == ShardFile {
+		var s Shard
+		if err := json.Unmarshal(b, &s); err != nil {
+			return fmt.Errorf("%s: %v; the folder is not a finished run: start again with --force", p, err)
+		}
+		d, want = s.Dataset, s.PartSHA256
+	} else {
+		if err := json.Unmarshal(b, &d); err != nil {
+			return fmt.Errorf("%s: %v; the folder is not a finished run: start again with --force", p, err)
+		}
+		want = d.ManifestSHA256
+	}
+	if err := CheckFormat(p, d.Format); err != nil {
+		return err
+	}
+	f, err := safefile.Open(filepath.Join(dir, ManifestFile))
+	if err != nil {
+		return fmt.Errorf("%s is there but %v; the folder is not a finished run: start again with --force", p, err)
+	}
+	defer f.Close()
+	h := sha256.New()
+	if _, err := io.Copy(h, f); err != nil {
+		return err
+	}
+	if got := hex.EncodeToString(h.Sum(nil)); got != want {
+		return fmt.Errorf("%s records manifest SHA-256 %q but manifest.jsonl has %s; the folder is not a finished run: start again with --force", p, want, got)
+	}
+	return nil
 }
