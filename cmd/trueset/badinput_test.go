@@ -7,10 +7,12 @@ import (
 	"io/fs"
 	"os"
 	"path/filepath"
+	"runtime"
 	"sort"
 	"strings"
 	"syscall"
 	"testing"
+	"time"
 )
 
 // badDir holds the corpus of bad inputs; README.md there lists every case.
@@ -189,7 +191,7 @@ func TestBadInput(t *testing.T) {
 			}
 
 			before := badSnapshot(t, tmp, out)
-			code, stdout, stderr := runCLI(t, args...)
+			code, stdout, stderr := runBounded(t, args...)
 			all := stdout + stderr
 			if code != c.code {
 				t.Errorf("exit %d, want %d", code, c.code)
@@ -429,4 +431,41 @@ func badSame(t *testing.T, before, after map[string]string) {
 	for _, d := range diffs {
 		t.Errorf("outside the output folder: %s", d)
 	}
+}
+
+// Bounds every hostile input must respect (issue 11): a refusal comes within
+// badTimeLimit (a hang detector, far above any honest run here, not a speed
+// test), allocates at most badAllocLimit in total (reading /dev/zero or a
+// decompression bomb would blow it), and never prints a Go panic or
+// goroutine stack.
+const (
+	badTimeLimit  = 60 * time.Second
+	badAllocLimit = 1 << 30
+)
+
+// runBounded runs the CLI in-process like runCLI and enforces those bounds.
+func runBounded(t *testing.T, args ...string) (code int, stdout, stderr string) {
+	t.Helper()
+	var before, after runtime.MemStats
+	runtime.ReadMemStats(&before)
+	done := make(chan struct{})
+	go func() {
+		defer close(done)
+		code, stdout, stderr = runCLI(t, args...)
+	}()
+	select {
+	case <-done:
+	case <-time.After(badTimeLimit):
+		t.Fatalf("trueset %s: no answer within %v (a hang)", strings.Join(args, " "), badTimeLimit)
+	}
+	runtime.ReadMemStats(&after)
+	if n := after.TotalAlloc - before.TotalAlloc; n > badAllocLimit {
+		t.Errorf("trueset %s allocated %d MiB, over the %d MiB bound", strings.Join(args, " "), n>>20, badAllocLimit>>20)
+	}
+	for _, s := range []string{"goroutine ", "panic:", "runtime error"} {
+		if strings.Contains(stdout+stderr, s) {
+			t.Errorf("trueset %s printed %q:\n%s%s", strings.Join(args, " "), s, stdout, stderr)
+		}
+	}
+	return code, stdout, stderr
 }
