@@ -127,6 +127,28 @@ var badCases = []badCase{
 	{file: "recipes/malformed.yaml", run: "recipe", code: exitUsage, wrong: "a flow list [16 that is never closed",
 		want: []string{"{in}:", "YAML syntax", "did not find expected ',' or ']'"}},
 
+	// Issue 11: files that are not regular files, silent acceptance, unsafe names.
+	{file: "recipe-fifo.yaml (made in the test)", run: "recipe", code: exitUsage, wrong: "the recipe is a named pipe with no writer (reading it would wait forever)",
+		want: []string{"{in}: a named pipe, not a regular file"}, prepare: badFIFORecipe},
+	{file: "recipe-dev-zero.yaml (made in the test)", run: "recipe", code: exitUsage, wrong: "the recipe is a symbolic link to /dev/zero (endless zeros; Stat says 0 bytes)",
+		want: []string{"{in}: a character device, not a regular file"}, prepare: badDevZeroRecipe},
+	{file: "font-fifo.yaml (made in the test)", run: "recipe", code: exitUsage, wrong: "a glyph font file that is a named pipe",
+		want: []string{"{in}:", "layers[0].objects[0].glyph.file", "a named pipe, not a regular file"}, prepare: badFIFOFont},
+	{file: "recipes/second-document.yaml", run: "recipe", code: exitUsage, wrong: "a second YAML document after ---",
+		want: []string{"{in}:15:1:", "a recipe is one YAML document; a second one starts here"}},
+	{file: "recipes/count-given-twice.yaml", run: "recipe", code: exitUsage, wrong: `a weighted count giving the count 1 twice ({"1": 1, "1": 5})`,
+		want: []string{"{in}:13:", "layers[0].objects[0].count", "count 1 is given twice"}},
+	{file: "recipes/class-name-200-bytes.yaml", run: "recipe", code: exitUsage, wrong: "a class name of 200 bytes, which every record would repeat",
+		want: []string{"{in}:7:", "classes[0].name", "at most 64 bytes"}},
+	{file: "datasets/id-dotdot", run: "verify", code: exitFailure, wrong: `a record's id is "../../victim" (augment would name files after it)`,
+		want: []string{"{in}/manifest.jsonl:1:", `record id "../../victim" is not a safe file name`}},
+	{file: "datasets/id-dotdot", run: "augment", code: exitFailure, wrong: `a record's id is "../../victim" (augment would name files after it)`,
+		want: []string{"{in}/manifest.jsonl:1:", `record id "../../victim" is not a safe file name`}},
+	{file: "datasets/path-dataset-json", run: "verify", code: exitFailure, wrong: `a record's image is "dataset.json"`,
+		want: []string{"{in}/manifest.jsonl:1:", `image path "dataset.json" is not a file under images/`}},
+	{file: "datasets/path-dataset-json", run: "augment", code: exitFailure, wrong: `a record's image is "dataset.json"`,
+		want: []string{"{in}/manifest.jsonl:1:", `image path "dataset.json" is not a file under images/`}},
+
 	// Augmentation plans and flags, through augment.
 	{file: "plans/steps-201.yaml", run: "plan", code: exitUsage, wrong: "201 steps",
 		want: []string{"{in}:404:5: pixels[200]", "at most 200 steps"}},
@@ -295,7 +317,7 @@ func badSymlinkDataset(t *testing.T, tmp string) string {
 		t.Fatal(err)
 	}
 	if err := os.Symlink(filepath.Join("..", "..", "sibling", "000000.png"), img); err != nil {
-		t.Skipf("no symbolic links here: %v", err)
+		t.Fatalf("symbolic link: %v", err)
 	}
 	return in
 }
@@ -468,4 +490,36 @@ func runBounded(t *testing.T, args ...string) (code int, stdout, stderr string) 
 		}
 	}
 	return code, stdout, stderr
+}
+
+// badFIFORecipe is a named pipe where the recipe should be.
+func badFIFORecipe(t *testing.T, tmp string) string {
+	p := filepath.Join(tmp, "in", "recipe-fifo.yaml")
+	badWrite(t, filepath.Join(tmp, "in", ".keep"), nil)
+	if err := syscall.Mkfifo(p, 0o644); err != nil {
+		t.Fatalf("mkfifo: %v", err)
+	}
+	return p
+}
+
+// badDevZeroRecipe is a symbolic link to /dev/zero where the recipe should be.
+func badDevZeroRecipe(t *testing.T, tmp string) string {
+	p := filepath.Join(tmp, "in", "recipe-dev-zero.yaml")
+	badWrite(t, filepath.Join(tmp, "in", ".keep"), nil)
+	if err := os.Symlink("/dev/zero", p); err != nil {
+		t.Fatalf("symlink: %v", err)
+	}
+	return p
+}
+
+// badFIFOFont is a valid recipe whose glyph font file is a named pipe.
+func badFIFOFont(t *testing.T, tmp string) string {
+	src := "name: pipe-font\ncanvas:\n  width: 32\n  height: 32\nclasses:\n  - name: digit\n    color: [200, 40, 40]\n" +
+		"layers:\n  - objects:\n      - class: digit\n        glyph:\n          file: font.ttf\n          chars: \"123\"\n        count: 1\n        size: 12\n"
+	p := filepath.Join(tmp, "in", "font-fifo.yaml")
+	badWrite(t, p, []byte(src))
+	if err := syscall.Mkfifo(filepath.Join(tmp, "in", "font.ttf"), 0o644); err != nil {
+		t.Fatalf("mkfifo: %v", err)
+	}
+	return p
 }
