@@ -191,3 +191,180 @@ func (f *flow) maxflow(s, t int) int {
 	}
 	return total
 }
+
+// CoverRound is ControlledRound with coverage first: every stratum with at
+// least as many members as there are splits of nonzero ratio ("covered") gets
+// at least 1 in every such split. A stratum with fewer members ("thin") is
+// rounded by the plain rules below and may be left out of some split; the
+// caller refuses those (see CoverageError). With x[i][j] = sizes[i]·ratios[j]
+// and C[j] = Σᵢ x[i][j], the result satisfies, in this order of priority:
+//
+//  1. every stratum's row adds up to sizes[i] exactly, and a split of ratio 0
+//     gets nothing;
+//  2. every cell of a covered stratum in a split of nonzero ratio is ≥ 1;
+//  3. a cell whose share is below 1 in a covered stratum is exactly 1 (which
+//     is ⌈x⌉, so within ±1); every other cell is ⌊x⌋ or ⌈x⌉, except in a
+//     covered stratum whose small cells need more members than rounding up
+//     leaves over (Σⱼ⌊x[i][j]⌋ + the number of cells raised to 1 > sizes[i]).
+//     There the cells that are not raised are rounded down, and the missing
+//     members are taken one at a time from the cell furthest above its share
+//     (largest cell − share; ties: the larger share, then the earlier split),
+//     never below 1. That stratum's row is then fully determined, e.g. 3
+//     members at 0.8/0.1/0.1 (shares 2.4/0.3/0.3) give 1/1/1;
+//  4. split totals: the members by which split totals fall short of ⌊C[j]⌋,
+//     added over the splits, are as few as any table meeting 1–3 allows, and
+//     then so are those by which they exceed ⌈C[j]⌉. So whenever a table
+//     meeting 1–3 has every split total within ±1 of its share, this one has.
+//
+// When no covered stratum has a share below 1 in a split of nonzero ratio,
+// rules 2–3 add nothing and the result equals ControlledRound's.
+//
+// The construction is that of ControlledRound (Cox & Ernst, "Controlled
+// rounding", INFOR 20(4), 1982, from memory: controlled rounding of a
+// two-way table as an integral network flow) with the cell bounds of rule 3:
+// each cell starts at its lower bound lo, a source sends each stratum its
+// leftover sizes[i] − Σⱼ lo units, a stratum passes one unit to split j where
+// the cell's upper bound is lo + 1, and split j passes units to the sink in
+// three phases of max flow: up to ⌊C[j]⌋ − base, then up to ⌈C[j]⌉ − base,
+// then without limit (base = Σᵢ lo in split j). Max flow in phase 1 makes the
+// total shortfall the least possible, phase 2 makes the total excess the least
+// possible, and augmenting paths never lower a flow into the sink, so each
+// phase keeps what the earlier ones reached (rule 4).
+func CoverRound(sizes []int, ratios []float64) ([][]int, error) {
+	S, K := len(sizes), len(ratios)
+	const eps = 1e-9
+	nonzero := 0
+	for _, r := range ratios {
+		if r > 0 {
+			nonzero++
+		}
+	}
+	lo := make([][]int, S)
+	up := make([][]bool, S) // cell may take lo+1
+	frac := make([][]float64, S)
+	colFloor := make([]int, K) // Σᵢ⌊x⌋, then + ⌊Σᵢ frac⌋: ⌊C[j]⌋ without summing large floats
+	colFrac := make([]float64, K)
+	base := make([]int, K)
+	left := make([]int, S)
+	for i, n := range sizes {
+		if n < 0 {
+			return nil, fmt.Errorf("stratum %d has negative size %d", i, n)
+		}
+		lo[i], up[i], frac[i] = make([]int, K), make([]bool, K), make([]float64, K)
+		x := make([]float64, K)
+		raised := make([]bool, K)
+		covered := n > 0 && n >= nonzero
+		sum := 0
+		for j, r := range ratios {
+			x[j] = float64(n) * r
+			fl := math.Floor(x[j] + eps)
+			lo[i][j] = int(fl)
+			colFloor[j] += int(fl)
+			if f := x[j] - fl; f > eps {
+				frac[i][j] = f
+				colFrac[j] += f
+				up[i][j] = true
+			}
+			if covered && r > 0 && lo[i][j] == 0 {
+				lo[i][j], up[i][j], raised[j] = 1, false, true
+			}
+			sum += lo[i][j]
+		}
+		// Rule 3: members the raised cells need beyond the row's leftover
+		// come from the cell furthest above its share, never below 1.
+		for ; sum > n; sum-- {
+			best := -1
+			for j := range ratios {
+				if raised[j] || lo[i][j] <= 1 {
+					continue
+				}
+				if best < 0 {
+					best = j
+					continue
+				}
+				d, db := float64(lo[i][j])-x[j], float64(lo[i][best])-x[best]
+				if d > db+eps || (math.Abs(d-db) <= eps && x[j] > x[best]+eps) {
+					best = j
+				}
+			}
+			if best < 0 {
+				return nil, fmt.Errorf("internal: coverage cannot be met in stratum %d of %d", i, n)
+			}
+			lo[i][best]--
+		}
+		if sum == n {
+			for j := range up[i] {
+				up[i][j] = false // the row is fully determined
+			}
+		}
+		left[i] = n - sum
+		for j := range ratios {
+			base[j] += lo[i][j]
+		}
+	}
+	g := newFlow(S + K + 2)
+	src, sink := 0, S+K+1
+	cell := make([][]int, S)
+	for i := range sizes {
+		if left[i] > 0 {
+			g.add(src, 1+i, left[i])
+		}
+		cell[i] = make([]int, K)
+		order := make([]int, 0, K)
+		for j := range ratios {
+			cell[i][j] = -1
+			if up[i][j] {
+				order = append(order, j)
+			}
+		}
+		// As in ControlledRound: edges are tried last-added first, so add
+		// them by rising fractional part (ties: the later split first).
+		sort.Slice(order, func(a, b int) bool {
+			fa, fb := frac[i][order[a]], frac[i][order[b]]
+			if fa != fb {
+				return fa < fb
+			}
+			return order[a] > order[b]
+		})
+		for _, j := range order {
+			cell[i][j] = g.add(1+i, 1+S+j, 1)
+		}
+	}
+	colCeil := make([]int, K)
+	for j := range ratios {
+		colCeil[j] = colFloor[j] + int(math.Ceil(colFrac[j]-eps))
+		colFloor[j] += int(math.Floor(colFrac[j] + eps))
+	}
+	total := 0
+	for _, l := range left {
+		total += l
+	}
+	colEdge := make([]int, K)
+	for j := range ratios {
+		colEdge[j] = g.add(1+S+j, sink, max(0, colFloor[j]-base[j]))
+	}
+	g.maxflow(src, sink)
+	for j := range ratios {
+		g.cap[colEdge[j]] = max(g.cap[colEdge[j]], colCeil[j]-base[j])
+	}
+	g.maxflow(src, sink)
+	for j := range ratios {
+		g.cap[colEdge[j]] = max(g.cap[colEdge[j]], total)
+	}
+	g.maxflow(src, sink)
+	out := make([][]int, S)
+	for i := range sizes {
+		out[i] = lo[i]
+		sum := 0
+		for j := range ratios {
+			if e := cell[i][j]; e >= 0 && g.flow[e] == 1 {
+				out[i][j]++
+			}
+			sum += out[i][j]
+		}
+		if sum != sizes[i] {
+			return nil, fmt.Errorf("internal: coverage-first rounding left stratum %d at %d of %d", i, sum, sizes[i])
+		}
+	}
+	return out, nil
+}

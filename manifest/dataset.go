@@ -67,6 +67,9 @@ type SplitTable struct {
 	Stratify string             `json:"stratify,omitempty"` // the stratification key; "" = one stratum
 	Strata   []Stratum          `json:"strata"`
 	Thin     []string           `json:"thin_strata,omitempty"` // strata with fewer groups than splits
+	// RequireCoverage: the table was rounded coverage first (Splits.Cover),
+	// so verify and split recompute it that way.
+	RequireCoverage bool `json:"require_coverage,omitempty"`
 }
 
 // Stratum is one row of the strata × splits table, counted in groups.

@@ -46,19 +46,20 @@ func Resplit(dir string, o ResplitOptions) (*SplitTable, error) {
 	if err != nil {
 		return nil, err
 	}
+	o.Splits.Cover = o.RequireCoverage
 	a, err := AllocateStrata(o.Seed, keys, o.Splits)
 	if err != nil {
 		return nil, err
 	}
 	t := &SplitTable{Names: o.Splits.Names, Spec: o.Splits.String(), Ratios: map[string]float64{}, Counts: map[string]int{},
-		Stratify: o.Stratify, Strata: a.Table, Thin: a.Thin}
+		Stratify: o.Stratify, Strata: a.Table, Thin: a.Thin, RequireCoverage: o.RequireCoverage}
 	for i, n := range o.Splits.Names {
 		t.Ratios[n] = Round(o.Splits.Ratios[i], 6)
 		t.Counts[n] = 0
 	}
 	if o.RequireCoverage {
-		if cells := a.Uncovered(o.Splits); len(cells) > 0 {
-			return t, fmt.Errorf("--require-coverage: %d strata × split cells are empty: %v; nothing was changed", len(cells), cells)
+		if err := a.CheckCoverage(o.Splits); err != nil {
+			return t, fmt.Errorf("%w; nothing was changed", err)
 		}
 	}
 	tmp, err := os.CreateTemp(dir, "."+ManifestFile+".tmp*")

@@ -19,6 +19,7 @@ type Splits struct {
 	Names  []string
 	Ratios []float64
 	Spec   string
+	Cover  bool // coverage first (--require-coverage): AllocateStrata rounds with CoverRound
 }
 
 // RatioSumTolerance is how far from 1 the written ratios may add up: they

@@ -112,9 +112,14 @@ type Allocation struct {
 
 // AllocateStrata deals units (groups) to splits. keys[u] is unit u's stratum.
 // The strata × splits table is rounded by ControlledRound, so every cell and
-// every split total is within ±1 of its exact share; which units of a stratum
-// go to which split is a seeded Fisher–Yates shuffle (stream "split" of seed).
-// Strata are ordered by key; the result depends only on seed, keys and splits.
+// every split total is within ±1 of its exact share; with sp.Cover
+// (--require-coverage) it is rounded by CoverRound instead, so every stratum
+// with at least as many groups as splits of nonzero ratio is in every such
+// split (the other bounds as CoverRound states them; thin strata are still
+// listed in Thin and their empty cells by Uncovered, for the caller to
+// refuse). Which units of a stratum go to which split is a seeded
+// Fisher–Yates shuffle (stream "split" of seed). Strata are ordered by key;
+// the result depends only on seed, keys and splits.
 func AllocateStrata(seed uint64, keys []string, sp Splits) (*Allocation, error) {
 	index := map[string]int32{}
 	var names []string
@@ -163,7 +168,11 @@ func AllocateStrataIDs(seed uint64, ids []int32, names []string, sp Splits) (*Al
 	for s := range members {
 		sizes[s] = len(members[s])
 	}
-	table, err := ControlledRound(sizes, sp.Ratios)
+	round := ControlledRound
+	if sp.Cover {
+		round = CoverRound
+	}
+	table, err := round(sizes, sp.Ratios)
 	if err != nil {
 		return nil, err
 	}
@@ -211,6 +220,42 @@ func (a *Allocation) Uncovered(sp Splits) []string {
 		}
 	}
 	return out
+}
+
+// CoverageError is --require-coverage asked of strata that have fewer groups
+// than there are splits of nonzero ratio: no allocation can put them in every
+// split. It names them.
+type CoverageError struct {
+	Strata []string // "key (n groups)"
+	Splits int      // splits of nonzero ratio
+}
+
+func (e *CoverageError) Error() string {
+	return fmt.Sprintf("--require-coverage: %s fewer groups than the %d splits, so some split must lack %s: %s",
+		Plural(len(e.Strata), "1 stratum has", fmt.Sprintf("%d strata have", len(e.Strata))), e.Splits,
+		Plural(len(e.Strata), "it", "each"), strings.Join(e.Strata, ", "))
+}
+
+// CheckCoverage returns a *CoverageError naming the strata that cannot be in
+// every split of nonzero ratio (fewer groups than those splits), or nil when
+// every stratum can be — which, allocated with sp.Cover, every stratum is.
+func (a *Allocation) CheckCoverage(sp Splits) error {
+	nonzero := 0
+	for _, r := range sp.Ratios {
+		if r > 0 {
+			nonzero++
+		}
+	}
+	var thin []string
+	for _, st := range a.Table {
+		if st.Groups < nonzero {
+			thin = append(thin, fmt.Sprintf("%s (%d %s)", st.Key, st.Groups, Plural(st.Groups, "group", "groups")))
+		}
+	}
+	if len(thin) == 0 {
+		return nil
+	}
+	return &CoverageError{Strata: thin, Splits: nonzero}
 }
 
 // NaturalLess orders strings with runs of digits compared as numbers, so
