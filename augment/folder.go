@@ -33,6 +33,7 @@ package augment
 import (
 	"bufio"
 	"bytes"
+	"crypto/sha256"
 	"encoding/csv"
 	"encoding/json"
 	"errors"
@@ -49,11 +50,14 @@ import (
 	"sort"
 	"strconv"
 	"strings"
+	"unicode"
+	"unicode/utf8"
 
 	"golang.org/x/image/bmp"
 	"golang.org/x/image/tiff"
 	_ "golang.org/x/image/webp" // registers the WebP decoder (VP8 and VP8L)
 
+	"github.com/trueset/trueset/internal/safefile"
 	"github.com/trueset/trueset/manifest"
 )
 
@@ -65,6 +69,8 @@ type Source struct {
 	Instances *image.Gray16             // instance ids (from instances/ or connected components)
 	Objects   []manifest.Object         // measured from Instances, sorted by instance id
 	Targets   map[string]manifest.Value // from labels.csv; empty (not nil) without it
+
+	sum []byte // SHA-256 of the SHA-256s of its image, mask and instance files as read
 }
 
 // Folder is a plain labeled folder read into memory, sources sorted by ID.
@@ -83,6 +89,11 @@ type Folder struct {
 	Sources     []*Source
 	TargetNames []string // labels.csv columns other than id, in file order
 	Skipped     []string // with ReadFolderSkipping: the sources left out, each with its error
+
+	names     map[int]string // class id → name
+	known     map[int]bool   // class ids
+	palette   color.Palette
+	maxPixels int
 }
 
 // Invariance says which geometric transforms keep a class's label true.
@@ -104,7 +115,82 @@ const (
 	maxFolderClassID = 254
 	// folderMaxInstanceID is the largest id a 16-bit instance mask can hold.
 	folderMaxInstanceID = 65535
+	// maxClassesBytes bounds classes.json (255 classes fit in a few KB).
+	maxClassesBytes = 1 << 20
+	// maxLabelsBytes bounds labels.csv: a million rows of an id and a few
+	// targets fit.
+	maxLabelsBytes = 64 << 20
+	// maxLabelLineBytes bounds one line of labels.csv, so a huge header or
+	// row is refused after reading this much of it.
+	maxLabelLineBytes = 64 << 10
+	// maxLabelColumns bounds the columns of labels.csv (the id and the
+	// targets).
+	maxLabelColumns = 256
+	// maxNameText bounds class and target names, as recipes do: every
+	// record repeats them.
+	maxNameText = 64
 )
+
+// checkClassName refuses a class name that cannot be used safely: it names
+// count targets, appears in every record and may become a file name in
+// reports, so it must be a safe file name of at most maxNameText bytes.
+func checkClassName(name string) error {
+	if len(name) > maxNameText {
+		return fmt.Errorf("class name %.40q… is %d bytes; at most %d", name, len(name), maxNameText)
+	}
+	return manifest.SafeName("class name", name)
+}
+
+// checkTargetName refuses a labels.csv column name longer than maxNameText
+// bytes or holding control characters or invalid UTF-8.
+func checkTargetName(name string) error {
+	switch {
+	case len(name) > maxNameText:
+		return fmt.Errorf("name %.40q… is %d bytes; a target name may have at most %d", name, len(name), maxNameText)
+	case !utf8.ValidString(name) || strings.IndexFunc(name, unicode.IsControl) >= 0:
+		return fmt.Errorf("name %q holds control characters or is not valid UTF-8", name)
+	}
+	return nil
+}
+
+// lineLimit passes bytes through and fails once a line (bytes between
+// newlines) grows over max, so a reader above it never buffers more than
+// that of one line. total counts the bytes read.
+type lineLimit struct {
+	r     io.Reader
+	max   int
+	cur   int // bytes of the current line so far
+	line  int // 1-based line number of the current line
+	total int64
+}
+
+type lineLimitError struct{ line int }
+
+func (e *lineLimitError) Error() string { return fmt.Sprintf("line %d is too long", e.line) }
+
+func (l *lineLimit) Read(b []byte) (int, error) {
+	if l.line == 0 {
+		l.line = 1
+	}
+	if len(b) > l.max+1 {
+		b = b[:l.max+1]
+	}
+	n, err := l.r.Read(b)
+	for i, c := range b[:n] {
+		if c == '\n' {
+			l.cur = 0
+			l.line++
+			continue
+		}
+		l.cur++
+		if l.cur > l.max {
+			l.total += int64(i)
+			return i, &lineLimitError{l.line}
+		}
+	}
+	l.total += int64(n)
+	return n, err
+}
 
 // File and folder names of a plain folder (images/, masks/ and instances/ are
 // manifest.ImagesDir, MasksDir and InstancesDir).
@@ -151,6 +237,21 @@ func ReadFolder(dir string, maxPixels int) (*Folder, error) {
 // listed in Folder.Skipped instead of failing the whole folder. Problems of
 // the folder itself (layout, labels.csv, classes.json) still fail.
 func ReadFolderSkipping(dir string, maxPixels int, skip bool) (*Folder, error) {
+	f, err := scanFolder(dir, maxPixels, skip, nil)
+	if err != nil {
+		return nil, err
+	}
+	for _, s := range f.Sources {
+		f.finishSource(s)
+	}
+	return f, nil
+}
+
+// scanFolder reads a plain labeled folder one source at a time. With each
+// nil every source is kept in Folder.Sources (not yet finished, see
+// finishSource); otherwise each is handed to each in stem order and not
+// kept, so only one source's pixels are in memory at a time.
+func scanFolder(dir string, maxPixels int, skip bool, each func(s *Source, files folderSourceFiles) error) (*Folder, error) {
 	if maxPixels <= 0 {
 		return nil, fmt.Errorf("read %s: the pixel budget must be positive, got %d", dir, maxPixels)
 	}
@@ -212,7 +313,7 @@ func ReadFolderSkipping(dir string, maxPixels int, skip bool) (*Folder, error) {
 	var targetNames []string
 	targets := map[string]map[string]manifest.Value{}
 	lp := filepath.Join(dir, folderLabelsFile)
-	if _, err := os.Stat(lp); err == nil {
+	if _, err := os.Lstat(lp); err == nil {
 		if targetNames, targets, err = readFolderLabels(lp, images); err != nil {
 			return nil, err
 		}
@@ -229,12 +330,13 @@ func ReadFolderSkipping(dir string, maxPixels int, skip bool) (*Folder, error) {
 	classOf := make([]int32, folderMaxInstanceID+1)
 	where := make([]int32, folderMaxInstanceID+1)
 	for _, stem := range stems {
-		s, err := readFolderSource(folderSourceFiles{
+		files := folderSourceFiles{
 			stem:      stem,
 			image:     filepath.Join(imagesDir, images[stem]),
 			mask:      filepath.Join(masksDir, masks[stem]),
 			instances: folderOptionalPath(instDir, insts[stem]),
-		}, maxPixels, classes != nil, known, &seen, classOf, where)
+		}
+		s, err := readFolderSource(files, maxPixels, classes != nil, known, &seen, classOf, where)
 		if err != nil {
 			if skip {
 				f.Skipped = append(f.Skipped, err.Error())
@@ -245,7 +347,11 @@ func ReadFolderSkipping(dir string, maxPixels int, skip bool) (*Folder, error) {
 		if t := targets[stem]; t != nil {
 			s.Targets = t
 		}
-		f.Sources = append(f.Sources, s)
+		if each == nil {
+			f.Sources = append(f.Sources, s)
+		} else if err := each(s, files); err != nil {
+			return nil, err
+		}
 	}
 
 	if classes == nil {
@@ -257,18 +363,42 @@ func ReadFolderSkipping(dir string, maxPixels int, skip bool) (*Folder, error) {
 		}
 	}
 	f.Classes = classes
-	names := map[int]string{}
+	f.names = map[int]string{}
+	f.known = map[int]bool{}
 	for _, c := range classes {
-		names[c.ID] = c.Name
+		f.names[c.ID] = c.Name
+		f.known[c.ID] = true
 	}
-	pal := manifest.Palette(classes)
-	for _, s := range f.Sources {
-		s.Mask.Palette = pal
-		for i := range s.Objects {
-			s.Objects[i].ClassName = names[s.Objects[i].Class]
-		}
-	}
+	f.palette = manifest.Palette(classes)
+	f.maxPixels = maxPixels
 	return f, nil
+}
+
+// finishSource gives a source read by scanFolder the folder's palette and
+// its objects their class names.
+func (f *Folder) finishSource(s *Source) {
+	s.Mask.Palette = f.palette
+	for i := range s.Objects {
+		s.Objects[i].ClassName = f.names[s.Objects[i].Class]
+	}
+}
+
+// reread reads a source of a scanned folder again (augment works on one
+// source at a time) and checks that its files are the bytes scanFolder read.
+func (f *Folder) reread(files folderSourceFiles, sum []byte, targets map[string]manifest.Value) (*Source, error) {
+	var seen [256]bool
+	classOf := make([]int32, folderMaxInstanceID+1)
+	where := make([]int32, folderMaxInstanceID+1)
+	s, err := readFolderSource(files, f.maxPixels, true, f.known, &seen, classOf, where)
+	if err != nil {
+		return nil, err
+	}
+	if !bytes.Equal(s.sum, sum) {
+		return nil, fmt.Errorf("%s: changed while augment was reading the folder (its files differ from the first read); run again on a folder nobody is changing", filepath.Join(f.Dir, manifest.ImagesDir, filepath.Base(files.image)))
+	}
+	f.finishSource(s)
+	s.Targets = targets
+	return s, nil
 }
 
 func folderOptionalPath(dir, name string) string {
@@ -324,6 +454,10 @@ func folderList(dir string, ok func(ext string) bool, want, pattern string) (map
 			stem := strings.TrimSuffix(name, ext)
 			if stem == "" {
 				return nil, fmt.Errorf("%s: empty file stem", p)
+			}
+			// The stem becomes the sample id and its output file names.
+			if err := manifest.SafeName("file stem", stem); err != nil {
+				return nil, fmt.Errorf("%s: %w; rename the file", p, err)
 			}
 			if prev, dup := out[stem]; dup {
 				return nil, fmt.Errorf("%s and %s: two files with the stem %q; keep one", filepath.Join(dir, prev), p, stem)
@@ -400,10 +534,10 @@ type folderClassEntry struct {
 // readFolderClasses reads classes.json; a missing file gives nil classes.
 func readFolderClasses(p string) ([]manifest.Class, map[int]Invariance, error) {
 	inv := map[int]Invariance{}
-	b, err := os.ReadFile(p)
-	if errors.Is(err, fs.ErrNotExist) {
+	if _, err := os.Lstat(p); errors.Is(err, fs.ErrNotExist) {
 		return nil, inv, nil
 	}
+	b, err := safefile.Read(p, folderClassesFile, maxClassesBytes)
 	if err != nil {
 		return nil, nil, err
 	}
@@ -453,6 +587,9 @@ func readFolderClasses(p string) ([]manifest.Class, map[int]Invariance, error) {
 			c.Name = strings.TrimSpace(*e.Name)
 			if c.Name == "" {
 				return nil, nil, fmt.Errorf("%s: empty name", at)
+			}
+			if err := checkClassName(c.Name); err != nil {
+				return nil, nil, fmt.Errorf("%s: %w", at, err)
 			}
 		}
 		if prev, dup := names[c.Name]; dup {
@@ -579,18 +716,28 @@ type folderFile struct {
 	f      *os.File
 	cfg    image.Config
 	format string
+	sum    []byte // SHA-256 of the file's bytes, once decoded
 }
 
 // openFolderFile opens p and reads only its header. It refuses an empty file,
 // an unknown format, a corrupt header and a size over maxPixels.
 func openFolderFile(p string, maxPixels int) (*folderFile, error) {
-	f, err := os.Open(p)
+	f, err := safefile.Open(p)
 	if err != nil {
 		return nil, err
 	}
-	if st, err := f.Stat(); err == nil && st.Size() == 0 {
+	st, err := f.Stat()
+	if err != nil {
+		f.Close()
+		return nil, err
+	}
+	switch {
+	case st.Size() == 0:
 		f.Close()
 		return nil, fmt.Errorf("%s: empty file", p)
+	case st.Size() > manifest.MaxSampleFileBytes:
+		f.Close()
+		return nil, fmt.Errorf("%s: %d bytes; an image, mask or instance file may hold at most %d", p, st.Size(), manifest.MaxSampleFileBytes)
 	}
 	cfg, format, err := image.DecodeConfig(bufio.NewReader(f))
 	if err == nil && !folderFormats[format] {
@@ -609,6 +756,19 @@ func openFolderFile(p string, maxPixels int) (*folderFile, error) {
 		return nil, fmt.Errorf("%s: too large: the header says %d×%d = %d pixels, over the budget of %d pixels; not decoded",
 			p, cfg.Width, cfg.Height, n, maxPixels)
 	}
+	if format == "jpeg" {
+		// Decode work grows with the scans; count them first.
+		limit := jpegScanLimit(cfg.Width, cfg.Height)
+		if _, err := f.Seek(0, io.SeekStart); err != nil {
+			f.Close()
+			return nil, err
+		}
+		if n, _ := countJPEGScans(io.LimitReader(f, manifest.MaxSampleFileBytes), limit); n > limit {
+			f.Close()
+			return nil, fmt.Errorf("%s: too much decode work: over %d scans (progressive passes) for %d×%d pixels, at most %d; not decoded (save it again as a baseline JPEG or with the standard progressive passes)",
+				p, limit, cfg.Width, cfg.Height, limit)
+		}
+	}
 	return &folderFile{path: p, f: f, cfg: cfg, format: format}, nil
 }
 
@@ -625,10 +785,17 @@ func (ff *folderFile) decode() (image.Image, error) {
 	if _, err := ff.f.Seek(0, io.SeekStart); err != nil {
 		return nil, err
 	}
-	m, _, err := image.Decode(bufio.NewReader(ff.f))
+	// The bytes the decoder reads are hashed on the way, then the rest.
+	h := sha256.New()
+	lr := &io.LimitedReader{R: ff.f, N: manifest.MaxSampleFileBytes}
+	m, _, err := image.Decode(bufio.NewReader(io.TeeReader(lr, h)))
 	if err != nil {
 		return nil, fmt.Errorf("%s: %s", ff.path, folderDecodeProblem(err))
 	}
+	if _, err := io.Copy(h, lr); err != nil {
+		return nil, fmt.Errorf("%s: %v", ff.path, err)
+	}
+	ff.sum = h.Sum(nil)
 	if b := m.Bounds(); b.Dx() != ff.cfg.Width || b.Dy() != ff.cfg.Height {
 		return nil, fmt.Errorf("%s: corrupt: the header says %s but the pixels are %d×%d", ff.path, ff.size(), b.Dx(), b.Dy())
 	}
@@ -826,7 +993,14 @@ func readFolderSource(files folderSourceFiles, maxPixels int, classesGiven bool,
 			Instance: id, Class: int(classes[id]), Box: st.BBox, Area: st.Area, Shown: 1, Shape: "labeled",
 		})
 	}
+	sum := sha256.New()
+	for _, ff := range []*folderFile{img, msk, inst} {
+		if ff != nil {
+			sum.Write(ff.sum)
+		}
+	}
 	return &Source{
+		sum:       sum.Sum(nil),
 		ID:        files.stem,
 		Image:     FromImage(im),
 		Mask:      mask,
@@ -943,19 +1117,38 @@ func folderComponents(mask *image.Paletted) (ids *image.Gray16, classes []int32,
 // readFolderLabels reads labels.csv for the given stems (stem → image file)
 // and returns the target names in column order and each stem's targets.
 func readFolderLabels(p string, stems map[string]string) ([]string, map[string]map[string]manifest.Value, error) {
-	f, err := os.Open(p)
+	f, err := safefile.Open(p)
 	if err != nil {
 		return nil, nil, err
 	}
 	defer f.Close()
-	r := csv.NewReader(bufio.NewReader(f))
+	if st, err := f.Stat(); err == nil && st.Size() > maxLabelsBytes {
+		return nil, nil, fmt.Errorf("%s: %d bytes; a labels table may hold at most %d", p, st.Size(), maxLabelsBytes)
+	}
+	lr := &lineLimit{r: io.LimitReader(f, maxLabelsBytes+1), max: maxLabelLineBytes}
+	r := csv.NewReader(bufio.NewReader(lr))
+	r.ReuseRecord = false
+	// tooLong turns a bound the reader hit into an error naming the file.
+	tooLong := func(err error) error {
+		var le *lineLimitError
+		switch {
+		case errors.As(err, &le):
+			return fmt.Errorf("%s:%d: a line longer than %d bytes; a labels table holds short rows (an id and a few targets)", p, le.line, maxLabelLineBytes)
+		case lr.total > maxLabelsBytes:
+			return fmt.Errorf("%s: over %d bytes; a labels table may hold at most %d", p, maxLabelsBytes, maxLabelsBytes)
+		}
+		return fmt.Errorf("%s: %v", p, err)
+	}
 	r.FieldsPerRecord = -1 // checked below with a clearer message
 	header, err := r.Read()
-	if err == io.EOF {
+	if err == io.EOF && lr.total <= maxLabelsBytes {
 		return nil, nil, fmt.Errorf("%s: empty: a header row with an \"id\" column is required", p)
 	}
 	if err != nil {
-		return nil, nil, fmt.Errorf("%s: %v", p, err)
+		return nil, nil, tooLong(err)
+	}
+	if len(header) > maxLabelColumns {
+		return nil, nil, fmt.Errorf("%s:1: %d columns; a labels table may have at most %d (an id and the targets)", p, len(header), maxLabelColumns)
 	}
 	header[0] = strings.TrimPrefix(header[0], "\ufeff")
 	idCol := -1
@@ -965,6 +1158,9 @@ func readFolderLabels(p string, stems map[string]string) ([]string, map[string]m
 		header[j] = name
 		if name == "" {
 			return nil, nil, fmt.Errorf("%s:1: column %d has no name", p, j+1)
+		}
+		if err := checkTargetName(name); err != nil {
+			return nil, nil, fmt.Errorf("%s:1: column %d: %w", p, j+1, err)
 		}
 		if prev, dup := cols[name]; dup {
 			return nil, nil, fmt.Errorf("%s:1: columns %d and %d are both named %q", p, prev+1, j+1, name)
@@ -986,11 +1182,11 @@ func readFolderLabels(p string, stems map[string]string) ([]string, map[string]m
 	lineOf := map[string]int{}
 	for {
 		rec, err := r.Read()
-		if err == io.EOF {
+		if err == io.EOF && lr.total <= maxLabelsBytes {
 			break
 		}
 		if err != nil {
-			return nil, nil, fmt.Errorf("%s: %v", p, err)
+			return nil, nil, tooLong(err)
 		}
 		line, _ := r.FieldPos(0)
 		for j := range rec {
@@ -1002,6 +1198,9 @@ func readFolderLabels(p string, stems map[string]string) ([]string, map[string]m
 		id := rec[idCol]
 		if id == "" {
 			return nil, nil, fmt.Errorf("%s:%d: empty id", p, line)
+		}
+		if err := manifest.SafeName("id", id); err != nil {
+			return nil, nil, fmt.Errorf("%s:%d: %w; the id column holds each image's file stem", p, line, err)
 		}
 		if _, ok := stems[id]; !ok {
 			return nil, nil, fmt.Errorf("%s:%d: id %q matches no image in %s/", p, line, id, manifest.ImagesDir)

@@ -3,13 +3,13 @@ package augment
 import (
 	"encoding/json"
 	"fmt"
-	"os"
 	"reflect"
 	"sort"
 	"strings"
 
 	"go.yaml.in/yaml/v3"
 
+	"github.com/trueset/trueset/internal/safefile"
 	"github.com/trueset/trueset/internal/yamlnode"
 )
 
@@ -39,6 +39,8 @@ type Plan struct {
 	Description string   `yaml:"description" json:"description,omitempty"`
 	Geometry    Geometry `yaml:"geometry" json:"geometry"`
 	Pixels      []Step   `yaml:"pixels" json:"pixels,omitempty"`
+
+	dec *yamlnode.Decoder // where each field was written, for errors found after parsing
 }
 
 // Geometry is the plan's first phase: how the composed matrix samples the
@@ -408,6 +410,9 @@ func ParsePlan(file string, data []byte) (*Plan, error) {
 	if err := yaml.Unmarshal(data, &root); err != nil {
 		return nil, planSyntaxError(file, err)
 	}
+	if err := yamlnode.OneDocument(file, "plan", data); err != nil {
+		return nil, err
+	}
 	if root.Kind == 0 || len(root.Content) == 0 {
 		return nil, &PlanError{File: file, Msg: "plan is empty"}
 	}
@@ -419,6 +424,7 @@ func ParsePlan(file string, data []byte) (*Plan, error) {
 	if err := p.validate(d); err != nil {
 		return nil, err
 	}
+	p.dec = d
 	return p, nil
 }
 
@@ -436,18 +442,26 @@ func planSyntaxError(file string, err error) *PlanError {
 
 // LoadPlan reads and parses a plan file.
 func LoadPlan(path string) (*Plan, error) {
-	st, err := os.Stat(path)
+	b, err := safefile.Read(path, "plan", MaxPlanBytes)
 	if err != nil {
-		return nil, &PlanError{File: path, Msg: err.Error()}
-	}
-	if st.Size() > MaxPlanBytes {
-		return nil, &PlanError{File: path, Msg: fmt.Sprintf("plan is %d bytes; at most %d allowed", st.Size(), MaxPlanBytes)}
-	}
-	b, err := os.ReadFile(path)
-	if err != nil {
-		return nil, &PlanError{File: path, Msg: err.Error()}
+		return nil, &PlanError{File: path, Msg: safefile.Msg(err)}
 	}
 	return ParsePlan(path, b)
+}
+
+// CheckCanvas refuses, before any work, a plan whose moves can make a canvas
+// side over MaxSide from a w×h source (a rotate with grow_canvas), naming the
+// plan file, the step path and its line; source names the source.
+func (p *Plan) CheckCanvas(w, h int, source string) error {
+	_, _, over, side := p.canvasBound(w, h)
+	if over == "" {
+		return nil
+	}
+	msg := fmt.Sprintf("rotate with grow_canvas can make a side of %d pixels from %s (%d×%d); at most %d a side: narrow the angle, drop grow_canvas or resize first", side, source, w, h, MaxSide)
+	if p.dec == nil {
+		return &PlanError{File: p.Name, Path: over, Msg: msg}
+	}
+	return p.dec.ErrPath(over, "", "%s", msg)
 }
 
 // JSON returns the normalized plan (defaults filled in) as compact JSON.
