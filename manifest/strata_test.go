@@ -1,6 +1,7 @@
 package manifest
 
 import (
+	"errors"
 	"fmt"
 	"math"
 	"math/rand/v2"
@@ -268,5 +269,113 @@ func TestNaturalLessLiteral(t *testing.T) {
 				t.Errorf("%q and %q are not strictly ordered", want[i], want[j])
 			}
 		}
+	}
+}
+
+// Property test of AllocateStrata with Cover (--require-coverage): the units
+// dealt match the table, every stratum with at least as many groups as splits
+// of nonzero ratio has a group in every such split, the table is CoverRound's
+// (whose rules TestCoverRoundProperty checks), CheckCoverage names exactly
+// the thin strata, and the same seed gives the same allocation.
+func TestAllocateStrataCoverProperty(t *testing.T) {
+	rng := rand.New(rand.NewPCG(3, 12))
+	refused := 0
+	for trial := 0; trial < 400; trial++ {
+		keys, _, sp := randomStrataCase(rng)
+		sp.Cover = true
+		seed := rng.Uint64()
+		a, err := AllocateStrata(seed, keys, sp)
+		if err != nil {
+			t.Fatal(err)
+		}
+		ctx := fmt.Sprintf("trial %d (%d units, splits %v)", trial, len(keys), sp)
+		nonzero := 0
+		for _, r := range sp.Ratios {
+			if r > 0 {
+				nonzero++
+			}
+		}
+		dealt := map[string][]int{}
+		for u, s := range a.Split {
+			if dealt[keys[u]] == nil {
+				dealt[keys[u]] = make([]int, len(sp.Names))
+			}
+			dealt[keys[u]][s]++
+		}
+		sizes := make([]int, len(a.Table))
+		var thin []string
+		for i, st := range a.Table {
+			sizes[i] = st.Groups
+			for j, name := range sp.Names {
+				if dealt[st.Key][j] != st.Splits[name] {
+					t.Fatalf("%s: stratum %s in %s: table %d, dealt %d", ctx, st.Key, name, st.Splits[name], dealt[st.Key][j])
+				}
+				if st.Groups >= nonzero && sp.Ratios[j] > 0 && dealt[st.Key][j] == 0 {
+					t.Fatalf("%s: stratum %s (%d groups, %d splits) has no group in %s", ctx, st.Key, st.Groups, nonzero, name)
+				}
+			}
+			if st.Groups < nonzero {
+				thin = append(thin, fmt.Sprintf("%s (%d %s)", st.Key, st.Groups, Plural(st.Groups, "group", "groups")))
+			}
+		}
+		want, err := CoverRound(sizes, sp.Ratios)
+		if err != nil {
+			t.Fatal(err)
+		}
+		for i, st := range a.Table {
+			for j, name := range sp.Names {
+				if st.Splits[name] != want[i][j] {
+					t.Fatalf("%s: stratum %s in %s: %d, CoverRound says %d", ctx, st.Key, name, st.Splits[name], want[i][j])
+				}
+			}
+		}
+		err = a.CheckCoverage(sp)
+		var ce *CoverageError
+		switch {
+		case len(thin) == 0 && err != nil:
+			t.Fatalf("%s: CheckCoverage = %v with no thin stratum", ctx, err)
+		case len(thin) > 0 && (!errors.As(err, &ce) || !reflect.DeepEqual(ce.Strata, thin) || ce.Splits != nonzero):
+			t.Fatalf("%s: CheckCoverage = %v, want the thin strata %v", ctx, err, thin)
+		case len(thin) > 0:
+			refused++
+		}
+		b, err := AllocateStrata(seed, keys, sp)
+		if err != nil {
+			t.Fatal(err)
+		}
+		if !reflect.DeepEqual(a, b) {
+			t.Fatalf("%s: two runs with seed %d differ", ctx, seed)
+		}
+	}
+	if refused < 50 || refused > 350 {
+		t.Errorf("%d of 400 cases had thin strata; the generator should give both kinds", refused)
+	}
+}
+
+// The refusal names every stratum that cannot be covered, with its groups,
+// and the number of splits it falls short of (pigeonhole: n groups cannot
+// fill more than n splits).
+func TestCheckCoverageMessage(t *testing.T) {
+	sp := Splits{Names: []string{"train", "val", "test", "spare"}, Ratios: []float64{0.7, 0.1, 0.2, 0}, Cover: true}
+	keys := []string{"n=1", "n=2", "n=2", "n=3", "n=3", "n=3"}
+	for i := 0; i < 10; i++ {
+		keys = append(keys, "n=10")
+	}
+	a, err := AllocateStrata(1, keys, sp)
+	if err != nil {
+		t.Fatal(err)
+	}
+	err = a.CheckCoverage(sp)
+	want := "--require-coverage: 2 strata have fewer groups than the 3 splits, so some split must lack each: n=1 (1 group), n=2 (2 groups)"
+	if err == nil || err.Error() != want {
+		t.Fatalf("CheckCoverage = %v, want %q", err, want)
+	}
+	if got := a.Uncovered(sp); strings.Contains(strings.Join(got, ";"), "n=3 ") || strings.Contains(strings.Join(got, ";"), "spare") {
+		t.Errorf("Uncovered = %v: n=3 has 3 groups for 3 splits and spare has ratio 0", got)
+	}
+	one := a.Table[0]
+	a.Table = a.Table[:1]
+	if err := a.CheckCoverage(sp); err == nil || !strings.Contains(err.Error(), "1 stratum has fewer groups than the 3 splits, so some split must lack it: "+one.Key) {
+		t.Errorf("one thin stratum: %v", err)
 	}
 }
