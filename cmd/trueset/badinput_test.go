@@ -79,7 +79,7 @@ var badCases = []badCase{
 	{file: "datasets/path-absolute", run: "augment", code: exitFailure, wrong: `a record's mask is "/etc/passwd"`,
 		want: []string{"{in}/manifest.jsonl:1:", `path "/etc/passwd" leaves the dataset folder`}},
 	{file: "datasets/manifest-torn-line", run: "verify", code: exitFailure, wrong: "manifest.jsonl line 2 is cut in half",
-		want: []string{"{in}/manifest.jsonl:2:", "manifest has 1 record, dataset.json says 3"}},
+		want: []string{"{in}/manifest.jsonl:2:", "manifest has 2 records, dataset.json says 3"}}, // verify reads on past a torn line
 	{file: "datasets/manifest-torn-line", run: "augment", code: exitFailure, wrong: "manifest.jsonl line 2 is cut in half",
 		want: []string{"{in}/manifest.jsonl:2:"}},
 	{file: "datasets/sha-mismatch", run: "verify", code: exitFailure, wrong: "one byte of images/000001.png changed after its record was written",

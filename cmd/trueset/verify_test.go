@@ -133,7 +133,7 @@ func TestVerifyDamage(t *testing.T) {
 				t.Fatal(err)
 			}
 		}},
-		{"mask file missing", recs[2].ID, recs[2].Mask + ": open", func(t *testing.T, dir string) {
+		{"mask file missing", recs[2].ID, recs[2].Mask + ": does not exist", func(t *testing.T, dir string) {
 			if err := os.Remove(filepath.Join(dir, recs[2].Mask)); err != nil {
 				t.Fatal(err)
 			}
