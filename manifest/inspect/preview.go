@@ -217,6 +217,7 @@ func Preview(dir string, o PreviewOptions) (*Sheet, error) {
 		drawText(sheet, face, sheetMargin, sheetMargin+fontSize+i*lineHeight, l, textColor)
 	}
 
+	b := newBudget(RunBudgetBytes)
 	s := &Sheet{Image: sheet, Of: n, Cols: cols, Rows: rows, Cell: image.Pt(cw, ch), Scale: scale,
 		Legend: image.Rect(0, legendTop, width, legendTop+legendH)}
 	for i, r := range recs {
@@ -224,7 +225,7 @@ func Preview(dir string, o PreviewOptions) (*Sheet, error) {
 		y0 := gridTop + (i/cols)*(cellH+cellGap)
 		cell := image.Rect(x0, y0, x0+cw, y0+ch)
 		fill(sheet, cell, emptyColor)
-		if err := drawCell(sheet, cell, dir, r, num, den, classColor); err != nil {
+		if err := drawCell(sheet, cell, dir, r, num, den, classColor, b); err != nil {
 			return nil, fmt.Errorf("record %s: %w", r.ID, err)
 		}
 		outline(sheet, cell.Inset(-1), frameColor)
@@ -237,12 +238,32 @@ func Preview(dir string, o PreviewOptions) (*Sheet, error) {
 }
 
 // drawCell paints one sample into cell: image, tint, hatching, boxes.
-func drawCell(dst *image.RGBA, cell image.Rectangle, dir string, r *manifest.Record, num, den int, classColor map[int]color.RGBA) error {
-	img, err := decode(dir, r.Image, r.Width, r.Height)
+func drawCell(dst *image.RGBA, cell image.Rectangle, dir string, r *manifest.Record, num, den int, classColor map[int]color.RGBA, bud *budget) error {
+	// Both files opened through safefile and their headers checked against
+	// the record before either is decoded; one cell at a time, within the
+	// run's budget.
+	imf, icfg, err := openImage(dir, r.Image, r.Width, r.Height)
 	if err != nil {
 		return err
 	}
-	mk, err := decode(dir, r.Mask, r.Width, r.Height)
+	mkf, mcfg, err := openMask(dir, r.Mask, r.Width, r.Height)
+	if err != nil {
+		imf.Close()
+		return err
+	}
+	need := manifest.DecodedBytes(icfg) + manifest.DecodedBytes(mcfg)
+	if err := bud.acquire(need); err != nil {
+		imf.Close()
+		mkf.Close()
+		return fmt.Errorf("%s: %w", r.Image, err)
+	}
+	defer bud.release(need)
+	img, err := decodeClose(imf)
+	if err != nil {
+		mkf.Close()
+		return err
+	}
+	mk, err := decodeClose(mkf)
 	if err != nil {
 		return err
 	}

@@ -1,16 +1,13 @@
 package inspect
 
 import (
-	"bytes"
 	"context"
 	"errors"
 	"fmt"
 	"image"
 	"image/color"
-	"image/png"
 	"math"
 	"math/bits"
-	"os"
 	"runtime"
 	"sort"
 	"strconv"
@@ -151,11 +148,28 @@ func (a *accumulator) confirm(dir string, i, j int) (float64, bool) {
 	if a.sizes[i] != a.sizes[j] {
 		return 0, false
 	}
-	mi, err := decode(dir, a.paths[i], a.sizes[i][0], a.sizes[i][1])
+	fi, ci, err := openImage(dir, a.paths[i], a.sizes[i][0], a.sizes[i][1])
 	if err != nil {
 		return 0, false
 	}
-	mj, err := decode(dir, a.paths[j], a.sizes[j][0], a.sizes[j][1])
+	fj, cj, err := openImage(dir, a.paths[j], a.sizes[j][0], a.sizes[j][1])
+	if err != nil {
+		fi.Close()
+		return 0, false
+	}
+	need := manifest.DecodedBytes(ci) + grayCopyBytes(ci) + manifest.DecodedBytes(cj) + grayCopyBytes(cj)
+	if err := a.budget.acquire(need); err != nil {
+		fi.Close()
+		fj.Close()
+		return 0, false
+	}
+	defer a.budget.release(need)
+	mi, err := decodeClose(fi)
+	if err != nil {
+		fj.Close()
+		return 0, false
+	}
+	mj, err := decodeClose(fj)
 	if err != nil {
 		return 0, false
 	}
@@ -417,6 +431,9 @@ func Compute(dir string, o Options) (*Stats, error) {
 		channels = 3
 	}
 	a := newAccumulator(d, o, channels)
+	// One budget of decoded pixels for the whole run, shared by the workers
+	// and the confirmation of leak candidates.
+	a.budget = newBudget(RunBudgetBytes)
 
 	ctx, cancel := context.WithCancel(context.Background())
 	defer cancel()
@@ -445,7 +462,7 @@ func Compute(dir string, o Options) (*Stats, error) {
 			defer wg.Done()
 			for s := range jobs {
 				if ctx.Err() == nil {
-					measure(dir, s, o.Split, channels)
+					measure(dir, s, o.Split, channels, a.budget)
 				}
 				results <- s
 			}
@@ -482,47 +499,53 @@ func Compute(dir string, o Options) (*Stats, error) {
 	return a.finish(dir), nil
 }
 
-// decode reads one PNG of a record, checking its size against the record
-// before decoding it in full.
-func decode(dir, rel string, w, h int) (image.Image, error) {
-	p, err := manifest.ResolveInside(dir, rel)
-	if err != nil {
-		return nil, err
-	}
-	b, err := os.ReadFile(p)
-	if err != nil {
-		return nil, err
-	}
-	cfg, err := png.DecodeConfig(bytes.NewReader(b))
-	if err != nil {
-		return nil, fmt.Errorf("%s: not a readable PNG: %w", rel, err)
-	}
-	if cfg.Width != w || cfg.Height != h {
-		return nil, fmt.Errorf("%s is %dx%d, the record says %dx%d", rel, cfg.Width, cfg.Height, w, h)
-	}
-	if int64(w)*int64(h) > MaxPixels {
-		return nil, fmt.Errorf("%s: %dx%d is over the budget of %d pixels", rel, w, h, MaxPixels)
-	}
-	m, err := png.Decode(bytes.NewReader(b))
-	if err != nil {
-		return nil, fmt.Errorf("%s: not a readable PNG: %w", rel, err)
-	}
-	return m, nil
-}
-
-func measure(dir string, s *sample, split string, channels int) {
+// measure decodes one record's image (and, in split, its semantic mask)
+// within the run's budget: both files are opened through safefile and their
+// headers checked against the record before either is decoded, and the
+// bytes they take decoded are reserved from b for as long as they live.
+func measure(dir string, s *sample, split string, channels int, b *budget) {
 	r := s.rec
-	img, err := decode(dir, r.Image, r.Width, r.Height)
+	imf, icfg, err := openImage(dir, r.Image, r.Width, r.Height)
 	if err != nil {
 		s.err = err
 		return
 	}
+	need := manifest.DecodedBytes(icfg) + grayCopyBytes(icfg)
+	var mkf *manifest.SampleFile
+	if r.Split == split {
+		var mcfg image.Config
+		mkf, mcfg, err = openMask(dir, r.Mask, r.Width, r.Height)
+		if err != nil {
+			imf.Close()
+			s.err = err
+			return
+		}
+		need += manifest.DecodedBytes(mcfg)
+	}
+	if err := b.acquire(need); err != nil {
+		imf.Close()
+		if mkf != nil {
+			mkf.Close()
+		}
+		s.err = fmt.Errorf("%s: %w", r.Image, err)
+		return
+	}
+	defer b.release(need)
+	img, err := decodeClose(imf)
+	if err != nil {
+		if mkf != nil {
+			mkf.Close()
+		}
+		s.err = err
+		return
+	}
 	s.hash = DHash(img)
-	if r.Split != split {
+	if mkf == nil {
 		return
 	}
 	s.ch = pixelMoments(img, channels)
-	mk, err := decode(dir, r.Mask, r.Width, r.Height)
+	img = nil
+	mk, err := decodeClose(mkf)
 	if err != nil {
 		s.err = err
 		return
@@ -623,6 +646,8 @@ type accumulator struct {
 	sums   []string // image SHA-256 from the records
 	paths  []string // image path and size, to confirm candidate pairs
 	sizes  [][2]int
+
+	budget *budget // decoded pixels alive at once, for the whole run
 }
 
 type targetAcc struct {
