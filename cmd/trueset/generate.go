@@ -54,6 +54,13 @@ is computed from its plan, and the strata × splits table is rounded so every
 cell and every split total is within ±1 of its exact share (controlled
 rounding). The table is printed and stored in dataset.json.
 
+--require-coverage puts coverage first: every stratum with at least as many
+groups as splits gets a group in every split, even where that takes a cell
+more than 1 from its share (3 groups at 0.8/0.1/0.1 give 1/1/1); the other
+cells stay within ±1 where their stratum allows and split totals within ±1
+where the cells allow. A stratum with fewer groups than splits cannot be
+covered: the run is refused, naming it, before anything is written.
+
 Shards: --shard I/N renders samples [⌊I·count/N⌋, ⌊(I+1)·count/N⌋) with the
 same global split; ` + "`trueset merge`" + ` joins the shard folders into the dataset a
 single run would write. Without --shard, a Kubernetes Indexed Job
@@ -91,7 +98,7 @@ The same tool version, recipe and seed give byte-identical files whatever
 	f.IntVarP(&o.workers, "workers", "j", runtime.NumCPU(), "parallel workers (output does not depend on it)")
 	f.StringVar(&o.ratios, "ratios", "", "split names and ratios adding up to 1 (default: the recipe's split.ratios, else "+manifest.DefaultSplits+")")
 	f.StringVar(&o.strat, "stratify", "", "stratify by a target name, class:NAME (its count) or classes (the set present); default: the recipe's split.stratify")
-	f.BoolVar(&o.cover, "require-coverage", false, "fail if any split lacks any stratum")
+	f.BoolVar(&o.cover, "require-coverage", false, "put every stratum with at least as many groups as splits in every split (shares then bend); refuse if one has fewer")
 	f.StringVar(&o.shard, "shard", "", "render only shard I of N, as I/N (0-based)")
 	f.IntVar(&o.shards, "shards", 0, "the shard count N when the index comes from JOB_COMPLETION_INDEX")
 	f.BoolVar(&o.force, "force", false, "write into a folder that is not empty (files trueset did not write are never deleted)")

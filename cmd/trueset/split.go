@@ -28,7 +28,8 @@ func newSplitCmd(stdout, stderr io.Writer) *cobra.Command {
 		Long: `Re-split the dataset in DIR: every group (all copies of one source stay
 together) is dealt to a split (--ratios), stratified by --stratify, with the
 strata × splits table rounded so every cell and every split total is within
-±1 of its exact share. Only manifest.jsonl and dataset.json are rewritten;
+±1 of its exact share (--require-coverage: coverage first, as generate
+--help says). Only manifest.jsonl and dataset.json are rewritten;
 dataset.json is removed first and written last, so an interrupted split
 leaves a folder that is visibly incomplete rather than a mix. The shuffle
 uses the dataset's own seed, so the same flags give the same split as
@@ -52,7 +53,7 @@ target, areas and sizes included.`,
 	f := cmd.Flags()
 	f.StringVar(&o.ratios, "ratios", "", "split names and ratios adding up to 1 (default: the dataset's current ones)")
 	f.StringVar(&o.strat, "stratify", "", "a target name, class:NAME or classes (default: the dataset's current key)")
-	f.BoolVar(&o.cover, "require-coverage", false, "fail, changing nothing, if any split would lack any stratum")
+	f.BoolVar(&o.cover, "require-coverage", false, "put every stratum with at least as many groups as splits in every split (shares then bend); refuse, changing nothing, if one has fewer")
 	f.BoolVarP(&o.quiet, "quiet", "q", false, "do not print the table")
 	f.BoolVar(&o.json, "json", false, "print the result as one JSON document on stdout instead of the table (errors still go to stderr)")
 	return cmd

@@ -127,6 +127,7 @@ func TestRequireCoverage(t *testing.T) {
 		t.Fatal(err)
 	}
 	sp, _ := manifest.ParseSplits(manifest.DefaultSplits)
+	sp.Cover = true // as --require-coverage allocates: only thin strata stay out of a split
 	_, _, alloc, err := gen.Allocate(r, 1, 100, 2, sp, "parts")
 	if err != nil {
 		t.Fatal(err)
@@ -145,6 +146,11 @@ func TestRequireCoverage(t *testing.T) {
 		for _, cell := range alloc.Uncovered(sp) {
 			if !strings.Contains(stderr, cell) {
 				t.Errorf("stderr does not name the empty cell %q:\n%s", cell, stderr)
+			}
+		}
+		for _, st := range alloc.Thin {
+			if !strings.Contains(stderr, st) {
+				t.Errorf("stderr does not name the thin stratum %s:\n%s", st, stderr)
 			}
 		}
 		if !strings.Contains(stderr, "thin strata") || !strings.Contains(stderr, "stratified by parts") {
@@ -456,4 +462,153 @@ func TestRatiosAddUpToOne(t *testing.T) {
 	if !strings.Contains(stderr, "split.ratios") || !strings.Contains(stderr, "add up to 1.1") {
 		t.Errorf("recipe with ratios adding to 1.1: %q", stderr)
 	}
+}
+
+// recordTable counts dir's records per stratum and split from manifest.jsonl
+// (every generated record is its own group).
+func recordTable(t *testing.T, dir string) map[string]map[string]int {
+	t.Helper()
+	seen := map[string]map[string]int{}
+	err := manifest.ReadManifest(dir, func(r *manifest.Record) error {
+		if seen[r.Stratum] == nil {
+			seen[r.Stratum] = map[string]int{}
+		}
+		seen[r.Stratum][r.Split]++
+		return nil
+	})
+	if err != nil {
+		t.Fatal(err)
+	}
+	return seen
+}
+
+// Issue 12's case: 5000 tabletop-dice scenes at seed 7 stratified by
+// pip_total have strata of 3 groups, whose shares at 0.8/0.1/0.1 are
+// 2.4/0.3/0.3; controlled rounding keeps each cell within ±1 of its share,
+// so it leaves them out of val and test. --require-coverage now puts every
+// stratum of at least 3 groups in every split (read back from the records
+// and from dataset.json), verify accepts the set, and split with the same
+// flags deals it identically.
+func TestRequireCoverageDice5000(t *testing.T) {
+	r, err := gen.Preset("tabletop-dice")
+	if err != nil {
+		t.Fatal(err)
+	}
+	sp, _ := manifest.ParseSplits(manifest.DefaultSplits)
+	_, _, plain, err := gen.Allocate(r, 7, 5000, 4, sp, "pip_total")
+	if err != nil {
+		t.Fatal(err)
+	}
+	premise := 0
+	for _, st := range plain.Table {
+		for _, q := range st.Splits {
+			if st.Groups >= 3 && q == 0 {
+				premise++
+			}
+		}
+	}
+	if premise == 0 {
+		t.Fatalf("the premise changed: controlled rounding covers every stratum at seed 7, count 5000 (%v)", plain.Table)
+	}
+
+	dir := filepath.Join(t.TempDir(), "dice")
+	wantCode(t, exitOK, "generate", "--preset", "tabletop-dice", "--count", "5000", "--seed", "7",
+		"--stratify", "pip_total", "--require-coverage", "--out", dir, "--quiet")
+	d := readDataset(t, dir)
+	seen := recordTable(t, dir)
+	if !d.Splits.RequireCoverage {
+		t.Error("dataset.json does not record require_coverage")
+	}
+	if len(seen) != len(d.Splits.Strata) {
+		t.Errorf("records fall in %d strata, dataset.json lists %d", len(seen), len(d.Splits.Strata))
+	}
+	total := 0
+	for _, st := range d.Splits.Strata {
+		row := 0
+		for _, name := range d.Splits.Names {
+			q := st.Splits[name]
+			row += q
+			if seen[st.Key][name] != q {
+				t.Errorf("stratum %s in %s: %d records, dataset.json says %d", st.Key, name, seen[st.Key][name], q)
+			}
+			if st.Groups >= len(d.Splits.Names) && seen[st.Key][name] == 0 {
+				t.Errorf("stratum %s has %d groups but none in %s", st.Key, st.Groups, name)
+			}
+		}
+		if row != st.Groups {
+			t.Errorf("stratum %s: row adds to %d, %d groups", st.Key, row, st.Groups)
+		}
+		total += st.Groups
+	}
+	if total != 5000 || len(d.Splits.Thin) != 0 {
+		t.Errorf("strata hold %d groups (want 5000), thin %v (want none)", total, d.Splits.Thin)
+	}
+	// Rule 4 of manifest.CoverRound: split totals stay within ±1 of their
+	// shares whenever the cells allow; here they do (5000 × 0.8/0.1/0.1).
+	for j, name := range d.Splits.Names {
+		if x := 5000 * sp.Ratios[j]; !roundsShare(d.Splits.Counts[name], x) {
+			t.Errorf("split %s: %d samples, share %.1f", name, d.Splits.Counts[name], x)
+		}
+	}
+	for _, st := range d.Splits.Strata {
+		if st.Groups <= 16 {
+			t.Logf("thin end: %s %d groups → %v", st.Key, st.Groups, st.Splits)
+		}
+	}
+	wantCode(t, exitOK, "verify", dir)
+
+	m0, d0 := fileBytes(t, dir)
+	wantCode(t, exitOK, "split", dir, "--stratify", "pip_total", "--require-coverage", "--quiet")
+	if m1, d1 := fileBytes(t, dir); !bytes.Equal(m0, m1) || !bytes.Equal(d0, d1) {
+		t.Error("split with generate's flags dealt the set differently")
+	}
+
+	// Impossible coverage: four splits, and strata of 3 groups. Refused
+	// (exit 1, as every --require-coverage failure) naming them; nothing
+	// changes.
+	_, stderr := wantCode(t, exitFailure, "split", dir, "--stratify", "pip_total", "--require-coverage",
+		"--ratios", "a=0.7,b=0.1,c=0.1,d=0.1", "--quiet")
+	for _, st := range d.Splits.Strata {
+		named := strings.Contains(stderr, st.Key+" (")
+		if thin := st.Groups < 4; thin != named {
+			t.Errorf("stratum %s (%d groups, 4 splits): named %v in the refusal:\n%s", st.Key, st.Groups, named, stderr)
+		}
+	}
+	if !strings.Contains(stderr, "nothing was changed") {
+		t.Errorf("refusal does not say nothing changed: %q", stderr)
+	}
+	if m1, d1 := fileBytes(t, dir); !bytes.Equal(m0, m1) || !bytes.Equal(d0, d1) {
+		t.Error("a refused split changed the files")
+	}
+}
+
+// Coverage first is a function of the plans, the seed and the flags only:
+// any worker count and any shard layout give the same bytes. 40 dice scenes
+// (10 per number of dice) at 0.9/0.05/0.05 have shares 9/0.5/0.5, so every
+// stratum is raised (8/1/1).
+func TestRequireCoverageWorkersShards(t *testing.T) {
+	root := t.TempDir()
+	args := []string{"generate", "--preset", "tabletop-dice", "--count", "40", "--stratify", "dice",
+		"--ratios", "train=0.9,val=0.05,test=0.05", "--require-coverage", "--quiet"}
+	one := filepath.Join(root, "one")
+	wantCode(t, exitOK, append(args, "--workers", "1", "--out", one)...)
+	d := readDataset(t, one)
+	for _, st := range d.Splits.Strata {
+		if st.Groups != 10 || st.Splits["train"] != 8 || st.Splits["val"] != 1 || st.Splits["test"] != 1 {
+			t.Errorf("stratum %s: %d groups → %v, want 10 → train 8, val 1, test 1", st.Key, st.Groups, st.Splits)
+		}
+	}
+	many := filepath.Join(root, "many")
+	wantCode(t, exitOK, append(args, "--workers", "5", "--out", many)...)
+	sameTree(t, one, many)
+	var parts []string
+	for i := 0; i < 3; i++ {
+		p := filepath.Join(root, fmt.Sprintf("part-%d", i))
+		wantCode(t, exitOK, append(args, "--shard", fmt.Sprintf("%d/3", i), "--out", p)...)
+		parts = append(parts, p)
+	}
+	merged := filepath.Join(root, "merged")
+	wantCode(t, exitOK, append(append([]string{"merge"}, parts...), "--out", merged, "--quiet")...)
+	sameTree(t, one, merged)
+	wantCode(t, exitOK, "verify", merged)
 }
