@@ -3,6 +3,7 @@ module github.com/trueset/trueset
 go 1.26.8
 
 require (
+	codeberg.org/sbinet/npyio v0.14.0
 	github.com/disintegration/imaging v1.6.2
 	github.com/klauspost/compress v1.20.4
 	github.com/santhosh-tekuri/jsonschema/v6 v6.0.3
@@ -24,6 +25,8 @@ require (
 	github.com/cpuguy83/go-md2man/v2 v2.0.6 // indirect
 	github.com/golang/freetype v0.0.0-20170609003504-e2365dfdc4a0 // indirect
 	github.com/inconshreveable/mousetrap v1.1.0 // indirect
+	github.com/nlpodyssey/gopickle v0.3.0 // indirect
 	github.com/russross/blackfriday/v2 v2.1.0 // indirect
 	golang.org/x/text v0.44.0 // indirect
+	gonum.org/v1/gonum v0.17.0 // indirect
 )

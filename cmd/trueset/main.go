@@ -62,6 +62,7 @@ anyone can regenerate byte for byte from the recipe and the seed.`,
 		newMergeCmd(stdout), newPresetsCmd(stdout), newVersionCmd(stdout), newStatsCmd(stdout), newPreviewCmd(stdout))
 	root.AddCommand(newCompletionCmd(stdout), newManCmd(stdout))
 	root.AddCommand(newReportCmd(stdout))
+	root.AddCommand(newReadbackCmd(stdout))
 	return root
 }
 

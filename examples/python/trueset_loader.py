@@ -41,7 +41,7 @@ FORMAT = "trueset-dataset/2"
 IGNORE_ID = 255
 
 __all__ = ["FORMAT", "IGNORE_ID", "TruesetDataset", "check_format", "load_splits", "iter_split",
-           "collate", "read_mask", "read_instances", "read_image", "safe_path"]
+           "collate", "read_mask", "read_instances", "read_image", "safe_path", "dump_batch"]
 
 
 def safe_path(root, rel):
@@ -273,6 +273,47 @@ def collate(samples):
     names = sorted({n for s in samples for n in s["targets"]})
     out["targets"] = {n: [s["targets"].get(n) for s in samples] for n in names}
     return out
+
+
+def dump_batch(path, ids, images, masks=None, compress=False, **targets):
+    """Save one batch exactly as the model receives it, for `trueset readback`.
+
+    ids: the samples' record ids (strings) or record indices (integers).
+    images: N x C x H x W, N x H x W x C or N x H x W, any dtype. masks:
+    N x H x W (optional). targets: one array of N values per target, named
+    as the dataset names it (dice=..., pip_total=...). Each may be a numpy
+    array, a list or a PyTorch tensor (moved to the CPU; float16 is saved
+    as float32). Writes a NumPy .npz file (np.savez, or np.savez_compressed
+    with compress=True).
+
+        dump_batch("batch.npz", batch["id"], x, y, dice=batch["targets"]["dice"])
+    """
+    def arr(x, what):
+        if hasattr(x, "detach"):  # a torch.Tensor
+            x = x.detach().cpu().numpy()
+        a = np.asarray(x)
+        if a.dtype == np.float16:
+            a = a.astype(np.float32)
+        if a.dtype == object:
+            raise ValueError("%s: object arrays cannot be read back; pass numbers or strings" % what)
+        return a
+    ids = [i.item() if hasattr(i, "item") else i for i in ids]
+    if all(isinstance(i, (int, np.integer)) and not isinstance(i, bool) for i in ids):
+        id_arr = np.asarray(ids, dtype=np.int64)
+    else:
+        id_arr = np.asarray([str(i) for i in ids], dtype=str)
+    out = {"ids": id_arr, "images": arr(images, "images")}
+    if masks is not None:
+        out["masks"] = arr(masks, "masks")
+    for name, v in targets.items():
+        if name in out:
+            raise ValueError("a target may not be named %r" % name)
+        out[name] = arr(v, name)
+    n = len(id_arr)
+    for name, a in out.items():
+        if a.ndim == 0 or a.shape[0] != n:
+            raise ValueError("%s: first axis %s, but there are %d ids" % (name, a.shape[:1], n))
+    (np.savez_compressed if compress else np.savez)(path, **out)
 
 
 if torch is not None:
