@@ -59,3 +59,12 @@ dirs+=("$work/plain-aug")
 
 echo "== $PY examples/python/test_loader.py"
 "$PY" examples/python/test_loader.py "${dirs[@]}"
+
+# trueset readback (issue 13): planted pipeline bugs over an augmented dice
+# set (its copies hold ignore pixels), each to be named on the right samples,
+# and correct pipelines that must give no error.
+echo "== readback: planted-bug corpus"
+"$work/trueset" generate --preset tabletop-dice --count 60 --seed 3 --out "$work/rb-dice" --quiet
+"$work/trueset" augment --in "$work/rb-dice" --out "$work/rb-dice-aug" --plan examples/plans/light.yaml --copies 1 --quiet
+"$PY" examples/python/readback_corpus.py "$work/rb-dice-aug" "$work/rb-corpus"
+"$PY" examples/python/test_readback.py "$work/trueset" "$work/rb-dice-aug" "$work/rb-corpus"
