@@ -27,6 +27,7 @@ const (
 type Plan struct {
 	Index      int
 	Attempt    int
+	Cue        bool // the bait cue is on (gen/instruments.go)
 	Background BackgroundPlan
 	Objects    []ObjectPlan // draw order; instance id = position + 1
 }
@@ -56,6 +57,8 @@ type ObjectPlan struct {
 	Inner, Corner, Thickness    float64
 
 	order       float64 // reading order within its layer
+	sizePiece   *piece  // held-out size and angle: the piece drawn from (gen/instruments.go)
+	anglePiece  *piece
 	LeastShown  float64
 	LeastPixels int
 }
@@ -193,6 +196,7 @@ func (r *Recipe) drawContent(seed uint64, index, draw int) []ObjectPlan {
 			}
 		}
 	}
+	r.drawPieces(seed, index, draw, objs)
 	return objs
 }
 
@@ -385,9 +389,9 @@ func (r *Recipe) placeLayer(rng *rand.Rand, li int, objs []ObjectPlan, start, en
 }
 
 func drawShape(rng *rand.Rand, o *ObjectPlan) {
-	o.Size = uni(rng, o.Spec.Size)
+	o.Size = drawIn(rng, o.Spec.Size, o.sizePiece)
 	o.Aspect = uni(rng, *o.Spec.Aspect)
-	o.Angle = uni(rng, *o.Spec.Angle)
+	o.Angle = drawIn(rng, *o.Spec.Angle, o.anglePiece)
 	if o.Kind == "circle" {
 		o.Aspect = 1
 	}
@@ -464,7 +468,7 @@ func (r *Recipe) placeRow(rng *rand.Rand, lay *Layout, objs []ObjectPlan, tops [
 		sp := o.Spec
 		o.Size = sp.Size.Min + u*(sp.Size.Max-sp.Size.Min)
 		o.Aspect = sp.Aspect.Min + u*(sp.Aspect.Max-sp.Aspect.Min)
-		o.Angle = uni(rng, *sp.Angle)
+		o.Angle = drawIn(rng, *sp.Angle, o.anglePiece)
 		g := sp.font.glyphs[o.Glyph]
 		s := o.Size / sp.font.UPEM
 		if n > 0 {

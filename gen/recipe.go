@@ -3,6 +3,7 @@ package gen
 import (
 	"github.com/trueset/trueset/internal/safefile"
 	"github.com/trueset/trueset/internal/yamlnode"
+	"github.com/trueset/trueset/manifest"
 	"slices"
 
 	"bytes"
@@ -28,7 +29,14 @@ type Recipe struct {
 	Layers      []Layer      `yaml:"layers" json:"layers"`
 	Targets     []TargetSpec `yaml:"targets" json:"targets"`
 	Split       *SplitSpec   `yaml:"split" json:"split,omitempty"`
+	// Instruments (gen/instruments.go): planted label noise, held-out
+	// combinations and shortcut bait.
+	Mislabel *MislabelSpec `yaml:"mislabel" json:"mislabel,omitempty"`
+	HoldOut  *HoldOutSpec  `yaml:"hold_out" json:"hold_out,omitempty"`
+	Bait     *BaitSpec     `yaml:"bait" json:"bait,omitempty"`
 
+	inst    *manifest.Instruments  // the instruments as manifest reads them
+	bands   map[*ObjectSpec]*bands // held-out size and angle ranges per spec
 	file    string
 	fonts   map[string]*Font // by font name or file
 	classID map[string]int

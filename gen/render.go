@@ -30,6 +30,7 @@ type Renderer struct {
 	local   Path
 	world   Path
 	alone   []int
+	splitOf func(index int) string // the split a sample was dealt to, for the instruments; nil = unknown
 }
 
 // NewRenderer returns a Renderer for a validated recipe.
@@ -91,6 +92,7 @@ func (rd *Renderer) Generate(seed uint64, index int) (*Sample, error) {
 		return nil, err
 	}
 	objs := make([]ObjectPlan, len(content))
+	cue := rd.cue(seed, index, content)
 	var last error
 	for attempt := 0; attempt < MaxAttempts; attempt++ {
 		copy(objs, content) // each attempt places the same content afresh
@@ -102,9 +104,10 @@ func (rd *Renderer) Generate(seed uint64, index int) (*Sample, error) {
 			last = err
 			continue
 		}
+		p.Cue = cue
 		s, err := rd.Render(p)
 		if err == nil {
-			return s, nil
+			return s, rd.plant(seed, index, p, content, s)
 		}
 		if _, ok := err.(*VisibilityError); !ok {
 			return nil, err
@@ -141,6 +144,9 @@ func (rd *Renderer) Render(p *Plan) (*Sample, error) {
 		pix, stride, bpp, img = m.Pix, m.Stride, 1, m
 	}
 	paintBackground(&p.Background, pix, stride, bpp, W, H)
+	if p.Cue {
+		rd.paintCue(0, pix, stride, bpp, W, H)
+	}
 	aa := *r.Canvas.Antialias
 	if cap(rd.alone) < len(p.Objects) {
 		rd.alone = make([]int, len(p.Objects))
@@ -201,6 +207,9 @@ func (rd *Renderer) Render(p *Plan) (*Sample, error) {
 			}
 		}
 		alone[i] = n
+	}
+	if p.Cue {
+		rd.paintCue(1, pix, stride, bpp, W, H)
 	}
 	if rgb {
 		m := img.(*image.RGBA)

@@ -104,7 +104,7 @@ func Allocate(r *Recipe, seed uint64, count, workers int, splits manifest.Splits
 			return nil, nil, nil, err
 		}
 	}
-	a, err = manifest.AllocateStrataIDs(seed, ids, names, splits)
+	a, err = r.allocate(seed, ids, names, splits)
 	return ids, names, a, err
 }
 
@@ -146,6 +146,10 @@ func Run(ctx context.Context, o RunOptions) (Summary, error) {
 	if err != nil {
 		return Summary{}, err
 	}
+	splits.Cover = o.RequireCoverage // coverage first (manifest.CoverRound)
+	if err := r.checkInstrumentSplits(splits); err != nil {
+		return Summary{}, err
+	}
 	lo, hi := 0, o.Count
 	if o.Shards > 0 {
 		if o.Shard < 0 || o.Shard >= o.Shards || o.Shards > o.Count {
@@ -169,7 +173,7 @@ func Run(ctx context.Context, o RunOptions) (Summary, error) {
 		defs = append(defs, t.def())
 	}
 	table := manifest.SplitTable{Names: splits.Names, Spec: splits.String(), Ratios: map[string]float64{}, Counts: map[string]int{},
-		Stratify: o.Stratify, Strata: alloc.Table, Thin: alloc.Thin}
+		Stratify: o.Stratify, Strata: alloc.Table, Thin: alloc.Thin, RequireCoverage: o.RequireCoverage}
 	for i, n := range splits.Names {
 		table.Ratios[n] = manifest.Round(splits.Ratios[i], 6)
 		table.Counts[n] = alloc.Counts[i]
@@ -195,7 +199,8 @@ func Run(ctx context.Context, o RunOptions) (Summary, error) {
 		Stratify    string `json:"stratify"`
 		Shard       int    `json:"shard"`
 		Shards      int    `json:"shards"`
-	}{"generate", o.Version, recipeHash, o.Seed, o.Count, table.Spec, o.Stratify, o.Shard, o.Shards})
+		Cover       bool   `json:"require_coverage,omitempty"` // another allocation: not the same run
+	}{"generate", o.Version, recipeHash, o.Seed, o.Count, table.Spec, o.Stratify, o.Shard, o.Shards, o.RequireCoverage})
 	// A layout no sample can meet fails here, before the folder is touched,
 	// rather than after the run has started (and invited a --resume).
 	if _, err := NewRenderer(r).Generate(o.Seed, first); err != nil {
@@ -215,6 +220,7 @@ func Run(ctx context.Context, o RunOptions) (Summary, error) {
 	lo += resumed
 	newProduce := func() manifest.Produce {
 		rd := NewRenderer(r)
+		rd.splitOf = func(i int) string { return splits.Names[alloc.Split[i]] }
 		enc := manifest.NewEncoder()
 		return func(i int) ([]*manifest.Record, int64, error) {
 			rec, n, err := rd.produce(o.Seed, i, enc, w)
@@ -228,6 +234,9 @@ func Run(ctx context.Context, o RunOptions) (Summary, error) {
 			// counts and content targets are the plan's: the same key.
 			if rec.Stratum, err = manifest.StratumOf(rec, o.Stratify); err != nil {
 				return nil, n, err
+			}
+			if rec.HeldOut != "" {
+				rec.Stratum = manifest.HeldOutPrefix + rec.HeldOut
 			}
 			return []*manifest.Record{rec}, n, nil
 		}

@@ -69,6 +69,9 @@ func (r *Recipe) Stratum(seed uint64, index int, key string) (string, error) {
 	if err != nil {
 		return "", err
 	}
+	if h := r.heldOutStratum(objs); h != "" {
+		return h, nil
+	}
 	return manifest.StratumOf(r.contentRecord(objs), key)
 }
 

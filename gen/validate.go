@@ -125,7 +125,10 @@ func (r *Recipe) validate(d *yamlnode.Decoder) error {
 	if err := r.validateTargets(d); err != nil {
 		return err
 	}
-	return r.validateSplit(d)
+	if err := r.validateSplit(d); err != nil {
+		return err
+	}
+	return r.validateInstruments(d)
 }
 
 func (r *Recipe) validateSplit(d *yamlnode.Decoder) error {

@@ -26,6 +26,12 @@ type Record struct {
 	Objects   []Object          `json:"objects"`
 	Targets   map[string]Value  `json:"targets"`
 	Lineage   *Lineage          `json:"lineage,omitempty"`
+	// Instruments (manifest/instruments.go), each absent unless the recipe
+	// plants it: the held-out combination a sample shows, the label noise
+	// planted in it (true values beside noisy ones) and its bait cue.
+	HeldOut  string    `json:"held_out,omitempty"`
+	Mislabel *Mislabel `json:"mislabel,omitempty"`
+	Bait     *BaitMark `json:"bait,omitempty"`
 }
 
 // Object is one instance in a sample. Instance, Class, Parent, Box, Area and

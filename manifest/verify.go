@@ -337,6 +337,7 @@ func decodeRecordLine(line []byte) (*Record, string, error) {
 func (v *verifier) run() (int, error) {
 	d := v.d
 	at := func(no int) string { return fmt.Sprintf("%s:%d", v.mpath, no) }
+	pl := newPlanted(d) // the instruments' checks: verify_planted.go
 	sum, err := v.eachLine(func(no int, line []byte) {
 		if line == nil {
 			v.broken = true
@@ -366,6 +367,7 @@ func (v *verifier) run() (int, error) {
 		v.record(no, r, bad)
 		if err == nil {
 			v.verifyRecord(r, bad)
+			pl.check(v.dir, r, bad)
 		}
 	})
 	if err != nil {
@@ -528,10 +530,11 @@ func (v *verifier) checkAllocation() {
 	d := v.d
 	skipped := d.Augment != nil && len(d.Augment.Skipped) > 0
 	sp, perr := ParseSplits(d.Splits.Spec)
+	sp.Cover = d.Splits.RequireCoverage
 	if perr != nil || v.broken || !v.tracking || v.records != d.Count || v.spans || skipped || v.strataFull || !slices.Equal(sp.Names, d.Splits.Names) {
 		return
 	}
-	a, err := AllocateStrataIDs(d.Seed, v.grpStratum, v.stratumNames, sp)
+	a, err := allocateVerified(d, v.grpStratum, v.stratumNames, sp) // held-out strata: verify_planted.go
 	if err != nil {
 		return
 	}
