@@ -3,18 +3,24 @@ package main
 import (
 	"bytes"
 	"context"
+	"errors"
 	"fmt"
 	"io"
 	"io/fs"
 	"os"
+	"os/signal"
 	"path/filepath"
+	"runtime"
 	"sort"
+	"strconv"
 	"strings"
+	"syscall"
 	"time"
 
 	"github.com/spf13/cobra"
 
 	"github.com/trueset/trueset/gen"
+	"github.com/trueset/trueset/internal/safefile"
 	"github.com/trueset/trueset/manifest"
 )
 
@@ -42,7 +48,12 @@ Each problem names the kind of check that failed, one of: ` + strings.Join(manif
 
 --regenerate also re-renders the dataset from the recipe and seed stored in
 dataset.json into a temporary folder and compares every byte, naming the
-first file that differs.`,
+first file that differs. The folder is trueset-regenerate-* under the
+system's temporary folder ($TMPDIR, else /tmp); it is removed when verify
+ends, fails or is interrupted (Ctrl-C, SIGTERM). A killed verify (SIGKILL,
+which no program can catch) leaves it behind; the next verify --regenerate
+removes such folders once they are an hour old and the process that made
+them (its id is in the folder's owner.pid) is gone.`,
 		Example: `  trueset verify demo
   trueset verify demo --regenerate`,
 		Args: func(c *cobra.Command, args []string) error {
@@ -57,7 +68,7 @@ first file that differs.`,
 	}
 	f := cmd.Flags()
 	f.BoolVar(&o.regenerate, "regenerate", false, "re-render from dataset.json's recipe and seed and compare every byte")
-	f.IntVarP(&o.workers, "workers", "j", 0, "workers for --regenerate (default: number of CPUs)")
+	f.IntVarP(&o.workers, "workers", "j", 0, fmt.Sprintf("workers for --regenerate, 1 to %d (default: number of CPUs)", maxVerifyWorkers))
 	f.IntVar(&o.max, "max-problems", 50, "print at most this many problems (all are counted; 0 prints none)")
 	f.BoolVar(&o.json, "json", false, "print the result as one JSON document on stdout, every problem included (exit codes as without it)")
 	return cmd
@@ -134,8 +145,8 @@ func runVerify(ctx context.Context, dir string, o *verifyOptions, stdout, stderr
 	if o.max < 0 {
 		return usagef("--max-problems %d: want a whole number ≥ 0", o.max)
 	}
-	if o.workers < 0 || o.workers > 1024 {
-		return usagef("--workers %d: want a whole number from 1 to 1024 (0: one per CPU)", o.workers)
+	if o.workers < 0 || o.workers > maxVerifyWorkers {
+		return usagef("--workers %d: want a whole number from 1 to %d (0: one per CPU)", o.workers, maxVerifyWorkers)
 	}
 	if o.json {
 		return runVerifyJSON(ctx, dir, o, stdout, stderr)
@@ -151,7 +162,7 @@ func runVerify(ctx context.Context, dir string, o *verifyOptions, stdout, stderr
 		return err
 	}
 	if problems > o.max {
-		fmt.Fprintf(stdout, "… and %d more\n", problems-o.max)
+		fmt.Fprintf(stdout, "… and %d more\n", problems-o.max) // never on a clean set: problems > max ≥ 0
 	}
 	if problems > 0 {
 		return fmt.Errorf("%s: %w in %d %s", dir, errFound{problems}, n, manifest.Plural(n, "sample", "samples"))
@@ -185,9 +196,16 @@ func regenerateAndCompare(ctx context.Context, dir string, workers int, stderr i
 	if err != nil {
 		return "", err
 	}
-	tmp, err := os.MkdirTemp("", "trueset-regenerate-")
+	if ctx == nil {
+		ctx = context.Background()
+	}
+	// Ctrl-C and SIGTERM cancel the run, so the deferred removal happens.
+	ctx, stop := signal.NotifyContext(ctx, os.Interrupt, syscall.SIGTERM)
+	defer stop()
+	removeStaleRegenerate(os.TempDir(), time.Now(), stderr)
+	tmp, err := makeRegenerateDir(os.TempDir())
 	if err != nil {
-		return "", err
+		return "", fmt.Errorf("regenerate: temporary folder: %w", err)
 	}
 	defer os.RemoveAll(tmp)
 	out := filepath.Join(tmp, "set")
@@ -197,9 +215,6 @@ func regenerateAndCompare(ctx context.Context, dir string, workers int, stderr i
 	planKey := key
 	if r.CheckStratify(key) != nil {
 		planKey = ""
-	}
-	if ctx == nil {
-		ctx = context.Background()
 	}
 	_, err = gen.Run(ctx, gen.RunOptions{Recipe: r, Out: out, Count: d.Count, Seed: d.Seed, Workers: workers,
 		Splits: d.Splits.Spec, Stratify: planKey, Version: version})
@@ -215,9 +230,88 @@ func regenerateAndCompare(ctx context.Context, dir string, workers int, stderr i
 			return "", fmt.Errorf("regenerate: %w", err)
 		}
 	}
-	return firstDifference(dir, out)
+	return firstDifferenceCtx(ctx, dir, out)
 }
 
+// maxVerifyWorkers bounds --workers: more goroutines than this only cost
+// memory (each holds a sample's buffers).
+const maxVerifyWorkers = 1024
+
+// regeneratePrefix names verify --regenerate's temporary folders;
+// regenerateOwner is the file in each that holds the owning process id.
+const (
+	regeneratePrefix = "trueset-regenerate-"
+	regenerateOwner  = "owner.pid"
+	regenerateStale  = time.Hour
+)
+
+// makeRegenerateDir makes a fresh trueset-regenerate-* folder under root
+// and writes this process's id into it.
+func makeRegenerateDir(root string) (string, error) {
+	tmp, err := os.MkdirTemp(root, regeneratePrefix)
+	if err != nil {
+		return "", err
+	}
+	if err := os.WriteFile(filepath.Join(tmp, regenerateOwner), []byte(strconv.Itoa(os.Getpid())+"\n"), 0o644); err != nil {
+		os.RemoveAll(tmp)
+		return "", err
+	}
+	return tmp, nil
+}
+
+// removeStaleRegenerate removes the trueset-regenerate-* folders under root
+// that a killed verify left: real folders (not links) whose owner.pid is
+// older than regenerateStale and names a process that no longer runs. A
+// folder without a readable owner.pid is left alone: it may be another
+// program's, or one being made right now.
+func removeStaleRegenerate(root string, now time.Time, stderr io.Writer) {
+	entries, err := os.ReadDir(root)
+	if err != nil {
+		return
+	}
+	for _, e := range entries {
+		if !e.IsDir() || !strings.HasPrefix(e.Name(), regeneratePrefix) {
+			continue
+		}
+		dir := filepath.Join(root, e.Name())
+		if st, err := os.Lstat(dir); err != nil || !st.IsDir() {
+			continue
+		}
+		owner := filepath.Join(dir, regenerateOwner)
+		st, err := os.Lstat(owner)
+		if err != nil || !st.Mode().IsRegular() || now.Sub(st.ModTime()) < regenerateStale {
+			continue
+		}
+		b, err := safefile.Read(owner, "owner.pid", 64)
+		if err != nil {
+			continue
+		}
+		pid, err := strconv.Atoi(strings.TrimSpace(string(b)))
+		if err != nil || pid <= 0 || pid == os.Getpid() || processRuns(pid) {
+			continue
+		}
+		if err := os.RemoveAll(dir); err == nil {
+			fmt.Fprintf(stderr, "note: removed %s, left by an earlier verify --regenerate (process %d) that was killed\n", dir, pid)
+		}
+	}
+}
+
+// processRuns tells whether process pid still exists. Where that cannot be
+// told, it says yes, so nothing in use is removed.
+func processRuns(pid int) bool {
+	p, err := os.FindProcess(pid)
+	if err != nil {
+		return false
+	}
+	if runtime.GOOS == "windows" {
+		return true // FindProcess found it
+	}
+	err = p.Signal(syscall.Signal(0))
+	return !(errors.Is(err, os.ErrProcessDone) || errors.Is(err, syscall.ESRCH))
+}
+
+// listFiles lists the files under root, relative and slash-separated; the
+// lock file a writing run holds is not part of a dataset.
 func listFiles(root string) (map[string]bool, error) {
 	files := map[string]bool{}
 	err := filepath.WalkDir(root, func(p string, e fs.DirEntry, err error) error {
@@ -225,15 +319,66 @@ func listFiles(root string) (map[string]bool, error) {
 			return err
 		}
 		rel, _ := filepath.Rel(root, p)
+		if rel == manifest.LockFile {
+			return nil
+		}
 		files[filepath.ToSlash(rel)] = true
 		return nil
 	})
 	return files, err
 }
 
+// sameFile compares two files chunk by chunk, both opened through safefile
+// (a pipe or device in the checked folder is refused, never read).
+func sameFile(a, b string) (bool, error) {
+	fa, err := safefile.Open(a)
+	if err != nil {
+		return false, err
+	}
+	defer fa.Close()
+	fb, err := safefile.Open(b)
+	if err != nil {
+		return false, err
+	}
+	defer fb.Close()
+	sa, err := fa.Stat()
+	if err != nil {
+		return false, err
+	}
+	sb, err := fb.Stat()
+	if err != nil {
+		return false, err
+	}
+	if sa.Size() != sb.Size() {
+		return false, nil
+	}
+	ba, bb := make([]byte, 64<<10), make([]byte, 64<<10)
+	for {
+		na, ea := io.ReadFull(fa, ba)
+		nb, eb := io.ReadFull(fb, bb)
+		if !bytes.Equal(ba[:na], bb[:nb]) {
+			return false, nil
+		}
+		if ea == io.EOF || ea == io.ErrUnexpectedEOF || eb == io.EOF || eb == io.ErrUnexpectedEOF {
+			return ea == eb || na == nb, nil
+		}
+		if ea != nil {
+			return false, ea
+		}
+		if eb != nil {
+			return false, eb
+		}
+	}
+}
+
 // firstDifference compares two folders file by file: sample files in sorted
 // path order, then manifest.jsonl, then dataset.json.
 func firstDifference(a, b string) (string, error) {
+	return firstDifferenceCtx(context.Background(), a, b)
+}
+
+// firstDifferenceCtx is firstDifference, stopping when ctx is cancelled.
+func firstDifferenceCtx(ctx context.Context, a, b string) (string, error) {
 	fa, err := listFiles(a)
 	if err != nil {
 		return "", err
@@ -271,21 +416,20 @@ func firstDifference(a, b string) (string, error) {
 		return names[i] < names[j]
 	})
 	for _, name := range names {
+		if err := ctx.Err(); err != nil {
+			return "", fmt.Errorf("regenerate: comparison interrupted: %w", err)
+		}
 		switch {
 		case !fa[name]:
 			return name + " (missing here, present when regenerated)", nil
 		case !fb[name]:
 			return name + " (extra: not produced when regenerated)", nil
 		}
-		x, err := os.ReadFile(filepath.Join(a, name))
+		same, err := sameFile(filepath.Join(a, name), filepath.Join(b, name))
 		if err != nil {
 			return "", err
 		}
-		y, err := os.ReadFile(filepath.Join(b, name))
-		if err != nil {
-			return "", err
-		}
-		if !bytes.Equal(x, y) {
+		if !same {
 			return name, nil
 		}
 	}
