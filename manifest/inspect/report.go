@@ -117,6 +117,8 @@ type reportView struct {
 	StatsSplit     string // the split of the pixel, class and target figures
 	TargetSplit    string
 	Targets        repTable
+	LossScales     repTable
+	LossScaleNote  string
 	Leakage        []repFact
 	LeakPairs      repTable
 	Spanned        []string
@@ -323,6 +325,7 @@ func buildReportView(s *Stats, d *manifest.Dataset, o ReportOptions) (*reportVie
 		}
 	}
 	v.Targets = repTargets(s)
+	v.LossScales, v.LossScaleNote = repLossScales(s), "Over the "+split+" split, the "+LossScaleMethod+"." // lossscale.go
 	repLeakage(v, s)
 
 	colors := repClassColors(d)
@@ -1096,6 +1099,9 @@ ul.ids { columns: 4 12ch; font-family: ui-monospace, "DejaVu Sans Mono", monospa
 <h2 id="targets">Targets</h2>
 {{if .TargetSplit}}<p class="note">Over the {{.TargetSplit}} split: count is the samples carrying the target; min, max, mean and std (population) are over its numeric values.</p>{{end}}
 {{template "table" .Targets}}
+<h3>Loss scales</h3>
+<p class="note">{{.LossScaleNote}}</p>
+{{template "table" .LossScales}}
 </section>
 
 <section id="leakage-section">

@@ -496,7 +496,11 @@ func Compute(dir string, o Options) (*Stats, error) {
 	if readErr != nil && !errors.Is(readErr, context.Canceled) {
 		return nil, readErr
 	}
-	return a.finish(dir), nil
+	st := a.finish(dir)
+	if st.LossScales, err = lossScales(dir, st); err != nil { // lossscale.go
+		return nil, err
+	}
+	return st, nil
 }
 
 // measure decodes one record's image (and, in split, its semantic mask)

@@ -23,6 +23,10 @@ type Stats struct {
 	Leakage  Leakage             `json:"leakage"`   // near-duplicates across splits
 	Warnings []string            `json:"warnings"`  // anything a user should look at
 
+	// LossScales is each task's loss of the best constant prediction and
+	// the weight that puts it at 1 (lossscale.go).
+	LossScales []LossScale `json:"loss_scales"`
+
 	// LabeledPixels and IgnorePixels count the mask pixels of the train
 	// split with a class id and with the ignore id 255.
 	LabeledPixels int64 `json:"labeled_pixels"`
