@@ -87,7 +87,7 @@ func TestRecipeErrorPositions(t *testing.T) {
 		mentions []string // the bad value and/or the allowed values
 	}{
 		{"unknown top-level field", "name: t\n", "name: t\ncolors: 3\n",
-			2, "colors", []string{`unknown field "colors"`, "allowed here: background, canvas, classes, description, layers, name, split, targets"}},
+			2, "colors", []string{`unknown field "colors"`, "allowed here: background, bait, canvas, classes, description, hold_out, layers, mislabel, name, split, targets"}},
 		{"unknown canvas field", "  height: 64\n", "  height: 64\n  depth: 8\n",
 			5, "canvas.depth", []string{`unknown field "depth"`, "antialias, height, mode, width"}},
 		{"unknown layout field", "      kind: scatter\n", "      kind: scatter\n      spread: 3\n",
