@@ -212,6 +212,8 @@ func printStats(w io.Writer, d *manifest.Dataset, st *inspect.Stats) {
 		tw.Flush()
 	}
 	printLossScales(w, st) // lossscale.go
+	// The instruments a recipe planted: manifest/inspect/planted.go.
+	st.Planted.WriteText(w)
 
 	l := st.Leakage
 	fmt.Fprintf(w, "\nleakage (64-bit dHash of %s, Hamming distance ≤ %d across splits, %s; %s, confirmed when %s):\n", inspect.Plural(l.Images, "image"), l.Threshold, l.Index, inspect.Plural(l.Candidates, "candidate"), l.Confirm)

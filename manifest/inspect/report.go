@@ -125,6 +125,7 @@ type reportView struct {
 	SpannedN       repCell
 	SpannedCut     int
 	Charts         map[string]repChart
+	Planted        []repTable // instruments (planted.go)
 	Recipe         string
 	RecipeNote     string
 	Plan           string
@@ -273,6 +274,7 @@ func buildReportView(s *Stats, d *manifest.Dataset, o ReportOptions) (*reportVie
 		Warnings: s.Warnings,
 		SheetCap: o.ContactSheetCaption,
 		Charts:   map[string]repChart{},
+		Planted:  repPlanted(s),
 	}
 	v.Facts = []repFact{
 		{"Folder", repText("dir", s.Dir)},
@@ -1116,6 +1118,12 @@ ul.ids { columns: 4 12ch; font-family: ui-monospace, "DejaVu Sans Mono", monospa
 <ul class="ids" id="groups-spanning">{{range .Spanned}}<li>{{.}}</li>{{end}}</ul>{{if .SpannedCut}}<p class="note">… and {{.SpannedCut}} more.</p>{{end}}{{end}}
 </section>
 
+{{if .Planted}}<section id="instruments-section">
+<h2 id="instruments">Instruments</h2>
+<p class="note">What the recipe planted, read back from the written files: label-noise rates, held-out samples and the bait cue measured in the images against its target (Pearson r), per split.</p>
+{{range .Planted}}{{template "table" .}}{{end}}
+</section>
+{{end}}
 <section id="recipe-section">
 <h2 id="recipe">Recipe</h2>
 {{if .RecipeNote}}<p class="note">{{.RecipeNote}}</p>{{end}}

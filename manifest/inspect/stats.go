@@ -500,6 +500,9 @@ func Compute(dir string, o Options) (*Stats, error) {
 	if st.LossScales, err = lossScales(dir, st); err != nil { // lossscale.go
 		return nil, err
 	}
+	if st.Planted, err = ComputePlanted(dir, d); err != nil { // planted.go
+		return nil, err
+	}
 	return st, nil
 }
 

@@ -23,6 +23,9 @@ type Stats struct {
 	Leakage  Leakage             `json:"leakage"`   // near-duplicates across splits
 	Warnings []string            `json:"warnings"`  // anything a user should look at
 
+	// The recipe's instruments as written (planted.go); absent without any.
+	Planted *Planted `json:"planted,omitempty"`
+
 	// LossScales is each task's loss of the best constant prediction and
 	// the weight that puts it at 1 (lossscale.go).
 	LossScales []LossScale `json:"loss_scales"`
