@@ -60,7 +60,7 @@ func geometryFindings(rep *Report, work []*sampleWork, lay Layout) {
 		}
 		msg := "images are their sources " + order[0]
 		if len(order) > 1 {
-			msg = fmt.Sprintf("images relate to their sources in %d ways, per sample (random augmentation): %s", len(order), strings.Join(parts, "; "))
+			msg = fmt.Sprintf("images relate to their sources in %d ways, sample by sample (a random augmentation, or a bug below): %s", len(order), strings.Join(parts, "; "))
 		} else if order[0] == DihedralNames[0] {
 			msg = "images are their sources without any geometric change"
 		}

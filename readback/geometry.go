@@ -159,6 +159,10 @@ func (t Transform) apply(src []float32, out []float32) {
 		sx, sy := dihedral(t.D, t.W0, t.H0, x, y)
 		return src[sy*t.W0+sx]
 	}
+	if !t.Resize && t.D == 0 && t.OX == 0 && t.OY == 0 && t.W == t.W0 && t.H == t.H0 {
+		copy(out, src[:t.W*t.H])
+		return
+	}
 	if !t.Resize {
 		for y := 0; y < t.H; y++ {
 			dy := y + t.OY
@@ -315,17 +319,37 @@ func imageScore(t Transform, s *source, L [][]float32, pr []int, buf []float32) 
 			t.applyAt(p, planes[k], pr)
 		}
 	}
+	n := t.W * t.H
 	for c := range L {
-		best := -1.0
-		for k := range planes {
-			var st corrStat
-			each(pr, t.W*t.H, func(i int) {
-				v := planes[k][i]
-				if v == v {
-					st.add(float64(v), float64(L[c][i]))
+		// In full, every 7th pixel ranks the source channels first; the
+		// best (and any within 0.01 of it) is then correlated over all.
+		ks := make([]int, 0, len(planes))
+		if pr == nil && len(planes) > 1 {
+			rank := make([]float64, len(planes))
+			top := -2.0
+			for k := range planes {
+				rank[k] = corrOver(planes[k], L[c], nil, 7)
+				top = max(top, rank[k])
+			}
+			for k := range planes {
+				if rank[k] >= top-0.01 {
+					ks = append(ks, k)
 				}
-			})
-			if st.n < 0.5*float64(countOf(pr, t.W*t.H)) {
+			}
+		} else {
+			for k := range planes {
+				ks = append(ks, k)
+			}
+		}
+		best := -1.0
+		for _, k := range ks {
+			var st corrStat
+			if pr == nil {
+				st = corrStatOver(planes[k], L[c], nil, 1)
+			} else {
+				st = corrStatOver(planes[k], L[c], pr, 1)
+			}
+			if st.n < 0.5*float64(countOf(pr, n)) {
 				return 0 // too little overlap to say
 			}
 			best = max(best, st.corr())
@@ -333,6 +357,31 @@ func imageScore(t Transform, s *source, L [][]float32, pr []int, buf []float32) 
 		worst = min(worst, best)
 	}
 	return worst
+}
+
+// corrStatOver accumulates (x, y) pairs over the probes pr, or over every
+// step-th pixel, skipping pixels x does not cover (NaN).
+func corrStatOver(x, y []float32, pr []int, step int) corrStat {
+	var st corrStat
+	if pr != nil {
+		for _, i := range pr {
+			if v := x[i]; v == v {
+				st.add(float64(v), float64(y[i]))
+			}
+		}
+		return st
+	}
+	for i := 0; i < len(x); i += step {
+		if v := x[i]; v == v {
+			st.add(float64(v), float64(y[i]))
+		}
+	}
+	return st
+}
+
+func corrOver(x, y []float32, pr []int, step int) float64 {
+	st := corrStatOver(x, y, pr, step)
+	return st.corr()
 }
 
 // applyAt is apply at the probe pixels only (others left as they are).

@@ -79,7 +79,7 @@ func inferLayout(file string, a *Array, n int, sizes map[[2]int]bool) (Layout, e
 	case 4:
 		chFirst := s[1] == 1 || s[1] == 3
 		chLast := s[3] == 1 || s[3] == 3
-		known := func(h, w int) bool { return sizes[[2]int{w, h}] || sizes[[2]int{h, w}] }
+		known := func(h, w int) bool { return sizes[[2]int{w, h}] }
 		if chFirst && chLast {
 			switch {
 			case known(s[2], s[3]) && !known(s[1], s[2]):

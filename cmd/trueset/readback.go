@@ -159,6 +159,9 @@ func printReadback(w io.Writer, dir string, rep *readback.Report) {
 	fs := slices.Clone(rep.Findings)
 	slices.SortStableFunc(fs, func(a, b readback.Finding) int { return severityOrder[a.Severity] - severityOrder[b.Severity] })
 	for _, f := range fs {
+		if f.Kind == readback.KindLayout {
+			continue // the first line says it
+		}
 		fmt.Fprintf(w, "\n%-7s  %s\n", f.Severity, f.Kind)
 		for _, l := range wrapText(f.Message, 78) {
 			fmt.Fprintf(w, "  %s\n", l)
