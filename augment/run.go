@@ -1,21 +1,27 @@
 package augment
 
 import (
+	"bufio"
 	"bytes"
 	"context"
 	"crypto/sha256"
 	"encoding/hex"
 	"encoding/json"
+	"errors"
 	"fmt"
 	"image"
 	"image/png"
+	"io"
 	"math"
 	"os"
 	"path/filepath"
 	"runtime"
+	"slices"
 	"sort"
+	"strings"
 	"time"
 
+	"github.com/trueset/trueset/internal/safefile"
 	"github.com/trueset/trueset/manifest"
 )
 
@@ -58,8 +64,19 @@ type Summary struct {
 // source is one input sample: its record, and how to get its pixels and
 // (for trueset input) its original file bytes.
 type source struct {
-	rec   manifest.Record
-	plain *Source
+	rec    manifest.Record
+	plain  *plainSource // a plain folder's source; nil for trueset input
+	weight int64        // pixels in work while it is produced (pixelBudget)
+	where  string       // its file or manifest line, for errors
+}
+
+// plainSource is what Run keeps of a plain folder's source between reading
+// the folder and producing the source, which reads it again.
+type plainSource struct {
+	files    folderSourceFiles
+	sum      []byte // SHA-256 over its files' SHA-256s, as first read
+	targets  map[string]manifest.Value
+	channels int
 }
 
 type input struct {
@@ -74,6 +91,8 @@ type input struct {
 	seed      uint64 // the seed the split allocation was dealt with
 	maxPixels int
 	skipped   []string // sources left out, with their errors
+	folder    *Folder  // a plain folder, to read each source again
+	budget    *pixelBudget
 }
 
 // Run augments a trueset dataset or a plain labeled folder into a new trueset
@@ -88,7 +107,10 @@ func Run(ctx context.Context, o RunOptions) (Summary, error) {
 	if o.Workers <= 0 {
 		o.Workers = runtime.NumCPU()
 	}
-	if o.MaxPixels <= 0 {
+	switch {
+	case o.MaxPixels < 0:
+		return Summary{}, inputErrorf("max-pixels %d: want a whole number ≥ 1 (0 for the default, %d)", o.MaxPixels, DefaultMaxPixels)
+	case o.MaxPixels == 0:
 		o.MaxPixels = DefaultMaxPixels
 	}
 	if len(o.Splits) == 0 {
@@ -105,9 +127,7 @@ func Run(ctx context.Context, o RunOptions) (Summary, error) {
 	if err != nil {
 		return Summary{}, err
 	}
-	if o.OnError == "skip" && in.kind == "trueset" {
-		in.dropBadSources(o.MaxPixels)
-	}
+	in.budget = newPixelBudget(RunPixels(o.MaxPixels))
 	augmented := map[string]bool{}
 	known := map[string]bool{}
 	for _, n := range in.splits.Names {
@@ -124,6 +144,11 @@ func Run(ctx context.Context, o RunOptions) (Summary, error) {
 			return Summary{}, err
 		}
 	}
+	// Names, canvas sizes and record sizes are checked before anything is
+	// written: a run that would fail on them fails at once.
+	if err := in.checkBeforeWriting(o, augmented); err != nil {
+		return Summary{}, err
+	}
 	// Record positions: each source's original, then its copies.
 	first := make([]int, len(in.srcs)+1)
 	for i, s := range in.srcs {
@@ -134,10 +159,7 @@ func Run(ctx context.Context, o RunOptions) (Summary, error) {
 		first[i+1] = first[i] + n
 	}
 	total := first[len(in.srcs)]
-	digits := len(fmt.Sprint(max(o.Copies, 1)))
-	if digits < 2 {
-		digits = 2
-	}
+	digits := copyDigits(o.Copies)
 
 	marker, err := in.marker(o)
 	if err != nil {
@@ -156,6 +178,11 @@ func Run(ctx context.Context, o RunOptions) (Summary, error) {
 		})
 	} else {
 		w, err = manifest.CreateWith(o.Out, co)
+	}
+	if errors.Is(err, manifest.ErrComplete) {
+		if cerr := in.checkComplete(o); cerr != nil {
+			return Summary{}, cerr
+		}
 	}
 	if err != nil {
 		return Summary{}, err
@@ -229,7 +256,8 @@ func (in *input) recountStrata(t manifest.SplitTable) ([]manifest.Stratum, []str
 
 // marker names the run for --resume: tool version, plan, seed, copies,
 // splits, on-error, and a checksum of every source record (for trueset input
-// those hold the files' checksums; for a plain folder the pixels are hashed).
+// those hold the files' checksums; for a plain folder its files' checksums
+// are added).
 func (in *input) marker(o RunOptions) ([]byte, error) {
 	h := sha256.New()
 	for _, s := range in.srcs {
@@ -239,11 +267,7 @@ func (in *input) marker(o RunOptions) ([]byte, error) {
 		}
 		h.Write(b)
 		if p := s.plain; p != nil {
-			for _, v := range p.Image.Pix {
-				h.Write([]byte{byte(math.Float32bits(v)), byte(math.Float32bits(v) >> 8), byte(math.Float32bits(v) >> 16), byte(math.Float32bits(v) >> 24)})
-			}
-			h.Write(p.Mask.Pix)
-			h.Write(p.Instances.Pix)
+			h.Write(p.sum)
 		}
 	}
 	plan := sha256.Sum256(o.Plan.JSON())
@@ -260,39 +284,90 @@ func (in *input) marker(o RunOptions) ([]byte, error) {
 	}{"augment", o.Version, hex.EncodeToString(plan[:]), hex.EncodeToString(h.Sum(nil)), o.Seed, o.Copies, o.Splits, o.OnError, o.AllowLabelChange})
 }
 
-// dropBadSources leaves out, and lists, the trueset sources whose files are
-// missing, altered or undecodable, so a bad source costs only itself.
-func (in *input) dropBadSources(maxPixels int) {
-	kept := in.srcs[:0]
-	for _, s := range in.srcs {
-		if err := in.checkSource(&s.rec, maxPixels); err != nil {
-			in.skipped = append(in.skipped, err.Error())
-			continue
-		}
-		kept = append(kept, s)
-	}
-	in.srcs = kept
+// RunPixels is the pixel budget of a whole run given the budget of one input
+// file: the sources being worked on at once, each counted with the largest
+// canvas the plan can make of it, hold at most this many pixels (a source
+// that alone needs more runs alone). Twice the file budget lets the largest
+// allowed source and a copy of its size be in memory together.
+func RunPixels(maxPixels int) int64 { return 2 * int64(maxPixels) }
+
+// headerRoles are a record's three files: the key of the record's sha256
+// map, what the file is, and the PNG kinds it may be.
+var headerRoles = [3]struct{ key, what string }{{"image", "image"}, {"mask", "mask"}, {"instances", "instance mask"}}
+
+func recordFiles(rec *manifest.Record) [3]string {
+	return [3]string{rec.Image, rec.Mask, rec.Instances}
 }
 
-func (in *input) checkSource(rec *manifest.Record, maxPixels int) error {
-	for _, f := range [][2]string{{"image", rec.Image}, {"mask", rec.Mask}, {"instances", rec.Instances}} {
-		p, err := in.safePath(f[1])
+// checkHeaders checks a trueset record against the headers of its three
+// files before anything is decoded: each a PNG of the record's width and
+// height within the pixel budget, the image 8-bit gray or RGB, the mask
+// 8-bit indexed, the instances 16-bit gray (DESIGN, On disk).
+func (in *input) checkHeaders(rec *manifest.Record) error {
+	if rec.Width < 1 || rec.Height < 1 {
+		return fmt.Errorf("record %s: width and height are %d×%d; want a size of at least 1×1", rec.ID, rec.Width, rec.Height)
+	}
+	for i, rel := range recordFiles(rec) {
+		p, err := in.safePath(rel)
 		if err != nil {
 			return fmt.Errorf("record %s: %w", rec.ID, err)
 		}
-		b, err := os.ReadFile(p)
+		f, err := safefile.Open(p)
 		if err != nil {
 			return fmt.Errorf("record %s: %w", rec.ID, err)
 		}
-		if got := manifest.SHA256Hex(b); got != rec.SHA256[f[0]] {
-			return fmt.Errorf("record %s: %s: SHA-256 %s, the record says %s", rec.ID, p, got, rec.SHA256[f[0]])
+		var b [pngHeaderBytes]byte
+		_, err = io.ReadFull(f, b[:])
+		f.Close()
+		if err != nil {
+			return fmt.Errorf("record %s: %s: not a PNG: shorter than a PNG header", rec.ID, p)
 		}
-		cfg, err := png.DecodeConfig(bytes.NewReader(b))
+		h, err := parsePNGHeader(b[:])
 		if err != nil {
 			return fmt.Errorf("record %s: %s: %v", rec.ID, p, err)
 		}
-		if int64(cfg.Width)*int64(cfg.Height) > int64(maxPixels) {
-			return fmt.Errorf("record %s: %s: %d×%d pixels is over the budget of %d", rec.ID, p, cfg.Width, cfg.Height, maxPixels)
+		if n := int64(h.Width) * int64(h.Height); n > int64(in.maxPixels) {
+			return fmt.Errorf("record %s: %s: %d×%d pixels is over the budget of %d pixels (--max-pixels)", rec.ID, p, h.Width, h.Height, in.maxPixels)
+		}
+		if h.Width != rec.Width || h.Height != rec.Height {
+			return fmt.Errorf("record %s: %s: the PNG header says %d×%d, the record says %d×%d", rec.ID, p, h.Width, h.Height, rec.Width, rec.Height)
+		}
+		ok := false
+		want := ""
+		switch i {
+		case 0:
+			ok, want = h.Depth == 8 && (h.ColorType == 0 || h.ColorType == 2), "an 8-bit gray or RGB PNG"
+		case 1:
+			ok, want = h.Depth == 8 && h.ColorType == 3, "an 8-bit indexed PNG"
+		case 2:
+			ok, want = h.Depth == 16 && h.ColorType == 0, "a 16-bit gray PNG"
+		}
+		if !ok {
+			return fmt.Errorf("record %s: %s: the PNG is %s; a trueset %s is %s", rec.ID, p, folderColorType(h.Depth, h.ColorType), headerRoles[i].what, want)
+		}
+	}
+	return nil
+}
+
+// checkSums checks a record's three files against its SHA-256s.
+func (in *input) checkSums(rec *manifest.Record) error {
+	for i, rel := range recordFiles(rec) {
+		p, err := in.safePath(rel)
+		if err != nil {
+			return fmt.Errorf("record %s: %w", rec.ID, err)
+		}
+		f, err := safefile.Open(p)
+		if err != nil {
+			return fmt.Errorf("record %s: %w", rec.ID, err)
+		}
+		h := sha256.New()
+		_, err = io.Copy(h, io.LimitReader(f, manifest.MaxSampleFileBytes+1))
+		f.Close()
+		if err != nil {
+			return fmt.Errorf("record %s: %s: %v", rec.ID, p, err)
+		}
+		if got, want := hex.EncodeToString(h.Sum(nil)), rec.SHA256[headerRoles[i].key]; got != want {
+			return fmt.Errorf("record %s: %s: SHA-256 %s, the record says %s", rec.ID, p, got, want)
 		}
 	}
 	return nil
@@ -330,13 +405,19 @@ func (in *input) dataset(o RunOptions, total int, counts map[string]int) *manife
 	} else if len(in.srcs) > 0 {
 		// The sources' common size and mode; 0 and "mixed" when they differ
 		// (each record carries its own size either way).
-		s := in.srcs[0].plain
-		d.Width, d.Height, d.Mode = s.Image.W, s.Image.H, modeOf(s.Image)
+		mode := func(s source) string {
+			if s.plain.channels == 3 {
+				return "rgb"
+			}
+			return "gray"
+		}
+		s := in.srcs[0]
+		d.Width, d.Height, d.Mode = s.rec.Width, s.rec.Height, mode(s)
 		for _, o := range in.srcs[1:] {
-			if o.plain.Image.W != d.Width || o.plain.Image.H != d.Height {
+			if o.rec.Width != d.Width || o.rec.Height != d.Height {
 				d.Width, d.Height = 0, 0
 			}
-			if modeOf(o.plain.Image) != d.Mode {
+			if mode(o) != d.Mode {
 				d.Mode = "mixed"
 			}
 		}
@@ -344,22 +425,28 @@ func (in *input) dataset(o RunOptions, total int, counts map[string]int) *manife
 	return d
 }
 
-// produce writes source i's original and its copies.
+// produce writes source i's original and its copies. It works within the
+// run's pixel budget, and reads every file it uses once: a trueset source's
+// files are checked against the record's SHA-256 and its labels against its
+// masks; a plain source is read again and checked against its first read.
 func (in *input) produce(i, index, copies, digits int, o RunOptions, enc *manifest.Encoder, w *manifest.Writer) ([]*manifest.Record, int64, error) {
 	s := in.srcs[i]
+	held := in.budget.take(s.weight)
+	defer in.budget.give(held)
 	orig := s.rec
 	orig.Index = index
 	var n int64
 	var src *Input
 	var err error
 	if in.kind == "trueset" {
-		n, err = in.copyOriginal(&orig, w)
-		if err == nil && copies > 0 {
-			src, err = in.loadTrueset(&s.rec)
-		}
+		src, n, err = in.carryOver(&orig, copies > 0, w)
 	} else {
-		src = &Input{Record: orig, Image: s.plain.Image, Mask: s.plain.Mask, Inst: s.plain.Instances}
-		n, err = w.WriteFiles(&orig, enc, s.plain.Image.ToImage(), s.plain.Mask, s.plain.Instances)
+		var ps *Source
+		if ps, err = in.folder.reread(s.plain.files, s.plain.sum, s.plain.targets); err != nil {
+			return nil, 0, &InputError{err}
+		}
+		src = &Input{Record: orig, Image: ps.Image, Mask: ps.Mask, Inst: ps.Instances}
+		n, err = w.WriteFiles(&orig, enc, ps.Image.ToImage(), ps.Mask, ps.Instances)
 	}
 	if err != nil {
 		return nil, n, err
@@ -371,7 +458,7 @@ func (in *input) produce(i, index, copies, digits int, o RunOptions, enc *manife
 			return nil, n, err
 		}
 		rec := &out.Record
-		rec.ID = fmt.Sprintf("%s-c%0*d", s.rec.ID, digits, k)
+		rec.ID = copyID(s.rec.ID, k, digits)
 		rec.Index = index + k
 		m, err := w.WriteFiles(rec, enc, out.Image, out.Mask, out.Inst)
 		n += m
@@ -383,70 +470,151 @@ func (in *input) produce(i, index, copies, digits int, o RunOptions, enc *manife
 	return recs, n, nil
 }
 
-// copyOriginal carries a trueset sample over byte for byte.
-func (in *input) copyOriginal(rec *manifest.Record, w *manifest.Writer) (int64, error) {
+// carryOver copies a trueset sample over byte for byte, each file read once
+// (through safefile, bounded) and checked against the record's SHA-256, into
+// the output's own names for its id (images/<id>.png, …), so no record path
+// can make it write anywhere else. It decodes the masks, and the image when
+// copies will be made, and checks the record's labels against them, so what
+// it carries over is what verify accepts. rec's paths are set to the output's.
+func (in *input) carryOver(rec *manifest.Record, decodeImage bool, w *manifest.Writer) (*Input, int64, error) {
 	var n int64
-	for _, f := range [][2]string{{"image", rec.Image}, {"mask", rec.Mask}, {"instances", rec.Instances}} {
-		p, err := in.safePath(f[1])
-		if err != nil {
-			return n, fmt.Errorf("record %s: %w", rec.ID, err)
-		}
-		b, err := os.ReadFile(p)
-		if err != nil {
-			return n, err
-		}
-		if got := manifest.SHA256Hex(b); got != rec.SHA256[f[0]] {
-			return n, fmt.Errorf("%s: SHA-256 %s, the record says %s; run trueset verify on the input", p, got, rec.SHA256[f[0]])
-		}
-		if err := w.WriteRaw(f[1], b); err != nil {
-			return n, err
-		}
-		n += int64(len(b))
-	}
-	return n, nil
-}
-
-func decodeFile(p string, maxPixels int) (image.Image, error) {
-	b, err := os.ReadFile(p)
-	if err != nil {
-		return nil, err
-	}
-	cfg, err := png.DecodeConfig(bytes.NewReader(b))
-	if err != nil {
-		return nil, fmt.Errorf("%s: %v", p, err)
-	}
-	if int64(cfg.Width)*int64(cfg.Height) > int64(maxPixels) {
-		return nil, fmt.Errorf("%s: %d×%d pixels is over the budget of %d", p, cfg.Width, cfg.Height, maxPixels)
-	}
-	m, err := png.Decode(bytes.NewReader(b))
-	if err != nil {
-		return nil, fmt.Errorf("%s: %v", p, err)
-	}
-	return m, nil
-}
-
-// loadTrueset decodes a trueset sample's three PNGs.
-func (in *input) loadTrueset(rec *manifest.Record) (*Input, error) {
-	var ims [3]image.Image
-	for i, rel := range []string{rec.Image, rec.Mask, rec.Instances} {
+	var raw [3][]byte
+	for i, rel := range recordFiles(rec) {
 		p, err := in.safePath(rel)
 		if err != nil {
-			return nil, fmt.Errorf("record %s: %w", rec.ID, err)
+			return nil, n, &InputError{fmt.Errorf("record %s: %w", rec.ID, err)}
 		}
-		if ims[i], err = decodeFile(p, in.maxPixels); err != nil {
-			return nil, err
+		b, err := safefile.Read(p, headerRoles[i].what, manifest.MaxSampleFileBytes)
+		if err != nil {
+			return nil, n, &InputError{fmt.Errorf("record %s: %w", rec.ID, err)}
 		}
+		if got := manifest.SHA256Hex(b); got != rec.SHA256[headerRoles[i].key] {
+			return nil, n, &InputError{fmt.Errorf("record %s: %s: SHA-256 %s, the record says %s; run trueset verify on the input", rec.ID, p, got, rec.SHA256[headerRoles[i].key])}
+		}
+		raw[i] = b
 	}
-	img, mk, ins := ims[0], ims[1], ims[2]
+	src := rec.ID
+	rec.Image = manifest.ImagesDir + "/" + rec.ID + ".png"
+	rec.Mask = manifest.MasksDir + "/" + rec.ID + ".png"
+	rec.Instances = manifest.InstancesDir + "/" + rec.ID + ".png"
+	for i, rel := range recordFiles(rec) {
+		if err := w.WriteRaw(rel, raw[i]); err != nil {
+			return nil, n, err
+		}
+		n += int64(len(raw[i]))
+	}
+	decode := func(i int) (image.Image, error) {
+		m, err := png.Decode(bytes.NewReader(raw[i]))
+		if err != nil {
+			return nil, &InputError{fmt.Errorf("record %s: %s: %v", src, in.dir+"/"+recordFiles(rec)[i], err)}
+		}
+		if m.Bounds() != image.Rect(0, 0, rec.Width, rec.Height) {
+			return nil, &InputError{fmt.Errorf("record %s: %s: the pixels are %d×%d, the record says %d×%d", src, recordFiles(rec)[i], m.Bounds().Dx(), m.Bounds().Dy(), rec.Width, rec.Height)}
+		}
+		return m, nil
+	}
+	mk, err := decode(1)
+	if err != nil {
+		return nil, n, err
+	}
+	ins, err := decode(2)
+	if err != nil {
+		return nil, n, err
+	}
 	mask, ok1 := mk.(*image.Paletted)
 	inst, ok2 := ins.(*image.Gray16)
 	if !ok1 || !ok2 {
-		return nil, fmt.Errorf("record %s: masks are not an indexed PNG and a 16-bit gray PNG", rec.ID)
+		return nil, n, &InputError{fmt.Errorf("record %s: the masks are not an indexed PNG and a 16-bit gray PNG", src)}
 	}
-	if mask.Rect != img.Bounds() || inst.Rect != img.Bounds() {
-		return nil, fmt.Errorf("record %s: image and masks differ in size", rec.ID)
+	if err := checkLabels(rec, mask, inst, in.classes, in.defs); err != nil {
+		return nil, n, &InputError{fmt.Errorf("record %s (%s): %w", src, in.dir, err)}
 	}
-	return &Input{Record: *rec, Image: FromImage(img), Mask: mask, Inst: inst}, nil
+	if !decodeImage {
+		return nil, n, nil
+	}
+	img, err := decode(0)
+	if err != nil {
+		return nil, n, err
+	}
+	return &Input{Record: *rec, Image: FromImage(img), Mask: mask, Inst: inst}, n, nil
+}
+
+// checkLabels checks a trueset record against its masks as verify does:
+// every object's instance is in the instance mask with the object's box and
+// area, every instance has an object, every pixel's class is its instance's
+// (background or ignore where there is none), every mask value a class of
+// the table or 255, and every count target the number of such objects.
+func checkLabels(rec *manifest.Record, mask *image.Paletted, inst *image.Gray16, classes []manifest.Class, defs []manifest.TargetDef) error {
+	known := map[int]bool{manifest.IgnoreID: true}
+	byName := map[string]int{}
+	for _, c := range classes {
+		known[c.ID] = true
+		byName[c.Name] = c.ID
+	}
+	stats := manifest.MeasureInstances(inst)
+	byID := map[int]*manifest.Object{}
+	for i := range rec.Objects {
+		o := &rec.Objects[i]
+		if byID[o.Instance] != nil {
+			return fmt.Errorf("instance %d has two objects in the record", o.Instance)
+		}
+		byID[o.Instance] = o
+		if !known[o.Class] || o.Class == manifest.IgnoreID {
+			return fmt.Errorf("object %d has class %d, which is not in dataset.json's class table", o.Instance, o.Class)
+		}
+		st := stats[o.Instance]
+		switch {
+		case st == nil:
+			return fmt.Errorf("%s: object %d is in the record but not in the instance mask", rec.Instances, o.Instance)
+		case st.BBox != o.Box:
+			return fmt.Errorf("%s: object %d: box %v in the record, %v in the instance mask", rec.Instances, o.Instance, o.Box, st.BBox)
+		case st.Area != o.Area:
+			return fmt.Errorf("%s: object %d: area %d in the record, %d in the instance mask", rec.Instances, o.Instance, o.Area, st.Area)
+		}
+	}
+	for id := range stats {
+		if byID[id] == nil {
+			return fmt.Errorf("%s: instance %d is in the instance mask but not in the record", rec.Instances, id)
+		}
+	}
+	w := rec.Width
+	for y := 0; y < rec.Height; y++ {
+		for x := 0; x < w; x++ {
+			c := int(mask.Pix[y*mask.Stride+x])
+			o := inst.Pix[y*inst.Stride+2*x:]
+			id := int(o[0])<<8 | int(o[1])
+			if !known[c] {
+				return fmt.Errorf("%s: pixel (%d, %d) has value %d, which is no class of dataset.json and not 255 (ignore)", rec.Mask, x, y, c)
+			}
+			want := 0
+			if ob := byID[id]; ob != nil {
+				want = ob.Class
+			}
+			if c != want && !(id == 0 && c == manifest.IgnoreID) {
+				return fmt.Errorf("%s: pixel (%d, %d) has class %d, its instance %d is class %d", rec.Mask, x, y, c, id, want)
+			}
+		}
+	}
+	for _, t := range defs {
+		if t.Kind != "count" {
+			continue
+		}
+		want := map[int]bool{}
+		for _, c := range t.Classes {
+			want[byName[c]] = true
+		}
+		n := 0
+		for _, o := range rec.Objects {
+			if len(t.Classes) == 0 || want[o.Class] {
+				n++
+			}
+		}
+		v, ok := rec.Targets[t.Name]
+		if !ok || v.IsStr || v.Num != float64(n) {
+			return fmt.Errorf("target %s is %v, the instance mask holds %d such objects", t.Name, v, n)
+		}
+	}
+	return nil
 }
 
 func readInput(o RunOptions) (*input, error) {
@@ -459,28 +627,296 @@ func readInput(o RunOptions) (*input, error) {
 	return nil, fmt.Errorf("%s is neither a trueset dataset (no dataset.json) nor a plain labeled folder (images/ and masks/)", o.In)
 }
 
+// readTrueset reads a trueset dataset's dataset.json and manifest and checks
+// each record as it is read: a safe id used once, a split of dataset.json's
+// split table, no lineage, and three PNG files whose headers give the
+// record's size (checkHeaders). Then the dataset as a whole: a class table
+// that fits 8-bit masks, groups within one split, the strata table and the
+// seeded allocation as the records give them. With o.OnError "skip" a record
+// whose files fail the header checks is left out and listed instead.
 func readTrueset(o RunOptions) (*input, error) {
 	d, err := manifest.ReadDataset(o.In)
 	if err != nil {
+		return nil, &InputError{err}
+	}
+	dsPath := filepath.Join(o.In, manifest.DatasetFile)
+	mPath := filepath.Join(o.In, manifest.ManifestFile)
+	in := &input{kind: "trueset", dir: o.In, base: d, classes: d.Classes, defs: d.TargetDefs, targets: d.Targets, splits: d.Splits, seed: d.Seed, maxPixels: o.MaxPixels}
+	if err := checkClassTable(dsPath, d.Classes); err != nil {
 		return nil, err
 	}
-	in := &input{kind: "trueset", dir: o.In, base: d, classes: d.Classes, defs: d.TargetDefs, targets: d.Targets, splits: d.Splits, seed: d.Seed, maxPixels: o.MaxPixels}
-	err = manifest.ReadManifest(o.In, func(r *manifest.Record) error {
+	splitOK := map[string]bool{}
+	for _, n := range d.Splits.Names {
+		splitOK[n] = true
+	}
+	first := map[string]int{} // id → record number
+	n := 0
+	mf, err := safefile.Open(mPath)
+	if err != nil {
+		return nil, &InputError{err}
+	}
+	defer mf.Close()
+	mh := sha256.New()
+	err = manifest.DecodeManifest(io.TeeReader(mf, mh), mPath, func(r *manifest.Record) error {
+		n++
+		if j, dup := first[r.ID]; dup {
+			return fmt.Errorf("record %s: the id of record %d too; ids must be unique", r.ID, j)
+		}
+		first[r.ID] = n
 		if r.Lineage != nil {
 			return fmt.Errorf("record %s is itself an augmented copy; augment the original dataset instead", r.ID)
 		}
-		in.srcs = append(in.srcs, source{rec: *r})
+		if !splitOK[r.Split] {
+			return fmt.Errorf("record %s: split %q is not in %s's split table (%s)", r.ID, r.Split, dsPath, strings.Join(d.Splits.Names, ", "))
+		}
+		err := in.checkHeaders(r)
+		if err == nil && o.OnError == "skip" {
+			err = in.checkSums(r) // so a source that would fail later is left out now
+		}
+		if err != nil {
+			if o.OnError == "skip" {
+				in.skipped = append(in.skipped, err.Error())
+				return nil
+			}
+			return err
+		}
+		in.srcs = append(in.srcs, source{rec: *r, where: fmt.Sprintf("%s: record %d", mPath, n)})
 		return nil
 	})
-	return in, err
+	if err != nil {
+		return nil, &InputError{err}
+	}
+	if got := hex.EncodeToString(mh.Sum(nil)); got != d.ManifestSHA256 {
+		return nil, inputErrorf("%s: SHA-256 %s, %s says %s; run trueset verify on the input", mPath, got, dsPath, d.ManifestSHA256)
+	}
+	if err := in.checkSplitTable(dsPath); err != nil {
+		return nil, err
+	}
+	return in, nil
 }
 
-// readPlain reads a plain labeled folder and deals its sources (each its own
-// group) to splits.
-func readPlain(o RunOptions) (*input, error) {
-	f, err := ReadFolderSkipping(o.In, o.MaxPixels, o.OnError == "skip")
+// checkClassTable refuses a class table whose ids do not fit an 8-bit mask
+// (0..254; 255 is ignore), or that names an id or a name twice.
+func checkClassTable(file string, classes []manifest.Class) error {
+	ids := map[int]bool{}
+	names := map[string]bool{}
+	for _, c := range classes {
+		switch {
+		case c.ID < 0 || c.ID > maxFolderClassID:
+			return inputErrorf("%s: class %q has id %d; class ids are 0..%d (8-bit masks; 255 = ignore)", file, c.Name, c.ID, maxFolderClassID)
+		case ids[c.ID]:
+			return inputErrorf("%s: class id %d is listed twice", file, c.ID)
+		case names[c.Name]:
+			return inputErrorf("%s: class name %q is listed twice", file, c.Name)
+		}
+		ids[c.ID], names[c.Name] = true, true
+	}
+	return nil
+}
+
+// checkSplitTable checks what the output carries over from the input's
+// split table against the records, as verify does: no group in two splits,
+// the strata table's counts, and, when the split spec parses, every group
+// in the split the seeded allocation (manifest.AllocateStrata) gives it.
+// Not when sources were skipped: the output's table is counted afresh then.
+func (in *input) checkSplitTable(file string) error {
+	if len(in.skipped) > 0 {
+		return nil
+	}
+	groupSplit := map[string]string{}
+	groupAt := map[string]int{}
+	var keys []string
+	var groupOf []int
+	count := map[string]map[string]int{}
+	for _, s := range in.srcs {
+		r := &s.rec
+		if sp, ok := groupSplit[r.Group]; ok {
+			if sp != r.Split {
+				return inputErrorf("%s: group %q is in splits %s and %s; a group must stay in one split", s.where, r.Group, sp, r.Split)
+			}
+			groupOf = append(groupOf, groupAt[r.Group])
+			continue
+		}
+		groupSplit[r.Group] = r.Split
+		groupAt[r.Group] = len(keys)
+		groupOf = append(groupOf, len(keys))
+		keys = append(keys, r.Stratum)
+		if count[r.Stratum] == nil {
+			count[r.Stratum] = map[string]int{}
+		}
+		count[r.Stratum][r.Split]++
+	}
+	declared := map[string]bool{}
+	for _, st := range in.splits.Strata {
+		declared[st.Key] = true
+		for _, n := range in.splits.Names {
+			if got := count[st.Key][n]; got != st.Splits[n] {
+				return inputErrorf("%s: the strata table says stratum %q has %d groups in split %s; the records have %d", file, st.Key, st.Splits[n], n, got)
+			}
+		}
+	}
+	for k := range count {
+		if !declared[k] {
+			return inputErrorf("%s: stratum %q of the records is not in the strata table", file, k)
+		}
+	}
+	sp, err := manifest.ParseSplits(in.splits.Spec)
+	if err != nil || !slices.Equal(sp.Names, in.splits.Names) {
+		return nil
+	}
+	sp.Cover = in.splits.RequireCoverage
+	a, err := manifest.AllocateStrata(in.seed, keys, sp)
 	if err != nil {
-		return nil, err
+		return nil
+	}
+	for i, s := range in.srcs {
+		if want := sp.Names[a.Split[groupOf[i]]]; s.rec.Split != want {
+			return inputErrorf("%s: record %q is in split %s, but seed %d's allocation (split %s) puts its group in %s; re-deal the input with trueset split",
+				s.where, s.rec.ID, s.rec.Split, in.seed, in.splits.Spec, want)
+		}
+	}
+	return nil
+}
+
+// checkBeforeWriting checks what can be checked before the first byte is
+// written: output names (no clash, copy ids short enough), the largest
+// canvas the plan can make of each source that gets copies, and the record
+// sizes; it also sets each source's pixel weight.
+func (in *input) checkBeforeWriting(o RunOptions, augmented map[string]bool) error {
+	ids := make([]string, len(in.srcs))
+	for i, s := range in.srcs {
+		ids[i] = s.rec.ID
+	}
+	gets := func(i int) bool { return o.Copies > 0 && augmented[in.srcs[i].rec.Split] }
+	if err := checkOutputNames(ids, gets, o.Copies, func(i int) string { return in.srcs[i].where }); err != nil {
+		return err
+	}
+	checked := map[[2]int]bool{}
+	for i := range in.srcs {
+		s := &in.srcs[i]
+		w, h := s.rec.Width, s.rec.Height
+		s.weight = int64(w) * int64(h)
+		if !gets(i) {
+			continue
+		}
+		bw, bh, _, _ := o.Plan.canvasBound(w, h)
+		s.weight += int64(bw) * int64(bh)
+		if !checked[[2]int{w, h}] {
+			checked[[2]int{w, h}] = true
+			if err := o.Plan.CheckCanvas(w, h, s.where); err != nil {
+				return err
+			}
+		}
+		b, err := manifest.MarshalRecord(&s.rec)
+		if err != nil {
+			return err
+		}
+		// A copy's record is its source's with the objects' shares and
+		// factors redrawn and a lineage added.
+		if n := len(b) + copyRecordSlack*len(s.rec.Objects) + lineageBytes(o.Plan); n > manifest.MaxRecordBytes {
+			return inputErrorf("%s: id %q has %d objects; a copy's record could be %d bytes, over the %d a manifest line may hold",
+				s.where, s.rec.ID, len(s.rec.Objects), n, manifest.MaxRecordBytes)
+		}
+	}
+	return nil
+}
+
+// copyRecordSlack is how many bytes an object's JSON may grow by in a copy
+// (shown share, center, size and angle written with their decimals).
+const copyRecordSlack = 96
+
+// lineageBytes bounds the JSON of one copy's lineage: every step applied,
+// each entry at most 512 bytes, a cutout's rectangles at most 160 bytes each.
+func lineageBytes(p *Plan) int {
+	n := 1024
+	var walk func(steps []Step)
+	walk = func(steps []Step) {
+		for i := range steps {
+			s := &steps[i]
+			n += 512
+			if s.Count != nil {
+				n += 160 * max(s.Count.Max, 0)
+			}
+			walk(s.From)
+		}
+	}
+	walk(p.Geometry.Moves)
+	walk(p.Pixels)
+	return n
+}
+
+// checkComplete is called when --resume finds dataset.json in the output:
+// the folder counts as this run's finished output only if dataset.json reads,
+// describes an augmentation with this plan, seed, copies, splits and input,
+// and its manifest is the one it names (SHA-256 and record count).
+// Anything else is refused rather than declared complete.
+func (in *input) checkComplete(o RunOptions) error {
+	refuse := func(why string, args ...any) error {
+		return inputErrorf("%s has %s, but %s; it is not a finished run of this augment: check it with trueset verify, or start again with --force",
+			o.Out, manifest.DatasetFile, fmt.Sprintf(why, args...))
+	}
+	d, err := manifest.ReadDataset(o.Out)
+	if err != nil {
+		return refuse("it cannot be read (%v)", err)
+	}
+	a := d.Augment
+	plan := sha256.Sum256(o.Plan.JSON())
+	switch {
+	case a == nil:
+		return refuse("it describes no augmentation")
+	case a.PlanSHA256 != hex.EncodeToString(plan[:]):
+		return refuse("it was made with another plan")
+	case a.Seed != o.Seed || a.Copies != o.Copies || !slices.Equal(a.Splits, o.Splits) || a.Source != in.kind || a.AllowedChanges != o.AllowLabelChange:
+		return refuse("it was made with other options (seed %d, copies %d, splits %v)", a.Seed, a.Copies, a.Splits)
+	case in.base != nil && a.SourceSHA256 != in.base.ManifestSHA256:
+		return refuse("it was made from another input")
+	}
+	f, err := safefile.Open(filepath.Join(o.Out, manifest.ManifestFile))
+	if err != nil {
+		return refuse("its manifest cannot be read (%v)", safefile.Msg(err))
+	}
+	defer f.Close()
+	h := sha256.New()
+	lines := 0
+	br := bufio.NewReaderSize(io.TeeReader(f, h), 1<<16)
+	for {
+		b, err := br.ReadSlice('\n')
+		if len(b) > 0 && err == nil {
+			lines++
+		}
+		if err == bufio.ErrBufferFull {
+			continue
+		}
+		if err != nil {
+			break
+		}
+	}
+	if got := hex.EncodeToString(h.Sum(nil)); got != d.ManifestSHA256 || lines != d.Count {
+		return refuse("its manifest (%d records, SHA-256 %s) is not the one it names (%d records, SHA-256 %s)", lines, got, d.Count, d.ManifestSHA256)
+	}
+	return nil
+}
+
+// readPlain reads a plain labeled folder one source at a time, keeping only
+// each source's record and file checksums (produce reads it again), and
+// deals its sources (each its own group) to splits.
+func readPlain(o RunOptions) (*input, error) {
+	type kept struct {
+		src  *Source
+		ps   *plainSource
+		w, h int
+	}
+	var srcs []kept
+	f, err := scanFolder(o.In, o.MaxPixels, o.OnError == "skip", func(s *Source, files folderSourceFiles) error {
+		ps := &plainSource{files: files, sum: s.sum, targets: s.Targets, channels: s.Image.C}
+		w, h := s.Image.W, s.Image.H
+		// Only the labels stay in memory.
+		s.Image, s.Mask, s.Instances = nil, nil, nil
+		srcs = append(srcs, kept{s, ps, w, h})
+		return nil
+	})
+	if err != nil {
+		return nil, &InputError{err}
 	}
 	spec := o.SplitSpec
 	if spec == "" {
@@ -501,7 +937,7 @@ func readPlain(o RunOptions) (*input, error) {
 			}
 		}
 	}
-	in := &input{kind: "plain", dir: o.In, classes: classes, targets: append([]string(nil), f.TargetNames...), seed: o.Seed, skipped: f.Skipped, maxPixels: o.MaxPixels}
+	in := &input{kind: "plain", dir: o.In, classes: classes, targets: append([]string(nil), f.TargetNames...), seed: o.Seed, skipped: f.Skipped, maxPixels: o.MaxPixels, folder: f}
 	taken := map[string]bool{}
 	for _, n := range f.TargetNames {
 		taken[n] = true
@@ -523,20 +959,24 @@ func readPlain(o RunOptions) (*input, error) {
 	if err := manifest.CheckStratify(o.Stratify, manifest.ClassNames(classes), in.targets); err != nil {
 		return nil, err
 	}
-	keys := make([]string, len(f.Sources))
-	for i, s := range f.Sources {
-		rec := manifest.Record{ID: s.ID, Group: s.ID, Width: s.Image.W, Height: s.Image.H, Objects: s.Objects, Targets: map[string]manifest.Value{}}
+	keys := make([]string, len(srcs))
+	for i, k := range srcs {
+		s := k.src
+		for j := range s.Objects {
+			s.Objects[j].ClassName = f.names[s.Objects[j].Class]
+		}
+		rec := manifest.Record{ID: s.ID, Group: s.ID, Width: k.w, Height: k.h, Objects: s.Objects, Targets: map[string]manifest.Value{}}
 		for k, v := range s.Targets {
 			rec.Targets[k] = v
 		}
 		rec.Targets = recompute(in.defs, rec.Objects, rec.Targets)
-		k, err := manifest.StratumOf(&rec, o.Stratify)
+		key, err := manifest.StratumOf(&rec, o.Stratify)
 		if err != nil {
 			return nil, err
 		}
-		keys[i] = k
-		rec.Stratum = k
-		in.srcs = append(in.srcs, source{rec: rec, plain: s})
+		keys[i] = key
+		rec.Stratum = key
+		in.srcs = append(in.srcs, source{rec: rec, plain: k.ps, where: k.ps.files.image})
 	}
 	a, err := manifest.AllocateStrata(o.Seed, keys, sp)
 	if err != nil {
@@ -629,10 +1069,3 @@ func CheckInvariance(p *Plan, classes []manifest.Class, defs []manifest.TargetDe
 }
 
 func fmtDeg(f float64) string { return fmt.Sprintf("%g", manifest.Round(f, 3)) }
-
-func modeOf(m *Image) string {
-	if m.C == 3 {
-		return "rgb"
-	}
-	return "gray"
-}

@@ -205,6 +205,16 @@ func runAugment(ctx context.Context, o *augmentOptions, stdout, stderr io.Writer
 		if errors.As(err, &pe) || strings.HasPrefix(err.Error(), "plan ") {
 			return usageError{err}
 		}
+		var ie *augment.InputError
+		if errors.As(err, &ie) {
+			// The input must change: resuming would fail the same way.
+			// Exit 1, as for every input file whose content is refused
+			// (testdata/bad/README.md).
+			if _, serr := os.Stat(filepath.Join(o.out, manifest.RunMarkerFile)); serr == nil {
+				return fmt.Errorf("%w\n%s has no dataset.json, so it is visibly incomplete; fix the input, then start again with --force (or into a new folder)", err, o.out)
+			}
+			return err
+		}
 		if strings.HasPrefix(err.Error(), "--split ") {
 			return usageError{err} // a split the input does not have
 		}
