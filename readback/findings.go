@@ -60,7 +60,7 @@ func geometryFindings(rep *Report, work []*sampleWork, lay Layout) {
 		}
 		msg := "images are their sources " + order[0]
 		if len(order) > 1 {
-			msg = fmt.Sprintf("images relate to their sources in %d ways, sample by sample (a random augmentation, or a bug below): %s", len(order), strings.Join(parts, "; "))
+			msg = fmt.Sprintf("images relate to their sources in %d ways, sample by sample (a random augmentation, or a bug): %s", len(order), strings.Join(parts, "; "))
 		} else if order[0] == DihedralNames[0] {
 			msg = "images are their sources without any geometric change"
 		}
@@ -362,7 +362,7 @@ func keysOf[V any](m map[string]V) string {
 // ---------------------------------------------------------------------------
 // Targets.
 
-func targetFindings(rep *Report, work []*sampleWork, arrays map[string]*Array, defs map[string]manifest.TargetDef, d *manifest.Dataset) {
+func targetFindings(rep *Report, work []*sampleWork, arrays map[string]*Array, defs map[string]manifest.TargetDef, d *manifest.Dataset, dir string) {
 	classID := map[string]int{}
 	for _, c := range d.Classes {
 		classID[c.Name] = c.ID
@@ -398,7 +398,7 @@ func targetFindings(rep *Report, work []*sampleWork, arrays map[string]*Array, d
 			}
 			// Under a crop (or any relation that loses pixels), a count
 			// may fall; it must stay within what the loader's frame shows.
-			if t, ok := frameOf(w); ok && w.src.inst != nil && !t.Identity() {
+			if t, ok := frameOf(w); ok && !t.Identity() && w.src.loadInstances(dir) == nil && w.src.inst != nil {
 				full, anyIn := visibleCounts(w, t, def, classID)
 				if full < 0 {
 					continue

@@ -178,7 +178,7 @@ func parseNPY(b []byte) (a *Array, err error) {
 	if int64(n)*int64(item) != int64(len(data)) {
 		return nil, fmt.Errorf("shape %v of %s (%d bytes each) needs %d bytes of data; the entry has %d", h.Shape, h.Type, item, int64(n)*int64(item), len(data))
 	}
-	a = &Array{Shape: append([]int(nil), h.Shape...), DType: h.Type, Kind: kind}
+	a = &Array{Shape: append([]int(nil), h.Shape...), DType: strings.Trim(strings.TrimSpace(h.Type), "'\""), Kind: kind}
 	if kind == 'U' || kind == 'S' {
 		a.Str = decodeStrings(data, kind, order, item, n)
 	} else {

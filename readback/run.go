@@ -233,10 +233,9 @@ func Run(dir, batchPath string, o Options) (*Report, error) {
 	for _, td := range d.TargetDefs {
 		defs[td.Name] = td
 	}
-	needInst := maskA != nil || len(targetArrays) > 0
 
 	// Sources, decoded once each, in parallel.
-	cache := newSourceCache(dir, needInst)
+	cache := newSourceCache(dir, false)
 	work := make([]*sampleWork, n)
 	for i := range work {
 		w := &sampleWork{pos: i, rec: batchRecs[i]}
@@ -329,7 +328,7 @@ func Run(dir, batchPath string, o Options) (*Report, error) {
 	if maskA != nil {
 		maskFindings(rep, work, lay, maskA, d.Classes)
 	}
-	targetFindings(rep, work, targetArrays, defs, d)
+	targetFindings(rep, work, targetArrays, defs, d, dir)
 	batchFindings(rep, work, o, d, recs)
 	rep.Panels = panels(rep, work, lay, vm, d.Classes, o.MaxPanels)
 	for _, f := range rep.Findings {

@@ -5,6 +5,7 @@ import (
 	"fmt"
 	"image"
 	"image/png"
+	"sync"
 
 	"github.com/trueset/trueset/internal/safefile"
 	"github.com/trueset/trueset/manifest"
@@ -25,6 +26,9 @@ type source struct {
 	mask  []uint8
 	inst  []uint16
 	nchan int // real channels: 1 or 3
+
+	instOnce sync.Once
+	instErr  error
 }
 
 // readPNG reads one record file through safefile and decodes it, checking
@@ -104,28 +108,9 @@ func loadSource(dir string, r *manifest.Record, withInst bool) (*source, error) 
 	default:
 		return nil, fmt.Errorf("%s: semantic mask is not an 8-bit indexed or gray PNG", r.Mask)
 	}
-	if withInst && r.Instances != "" {
-		im, err := readPNG(dir, r.Instances, r.Width, r.Height)
-		if err != nil {
+	if withInst {
+		if err := s.loadInstances(dir); err != nil {
 			return nil, err
-		}
-		s.inst = make([]uint16, n)
-		switch m := im.(type) {
-		case *image.Gray16:
-			for y := 0; y < s.h; y++ {
-				for x := 0; x < s.w; x++ {
-					i := y*m.Stride + 2*x
-					s.inst[y*s.w+x] = uint16(m.Pix[i])<<8 | uint16(m.Pix[i+1])
-				}
-			}
-		case *image.Gray:
-			for y := 0; y < s.h; y++ {
-				for x := 0; x < s.w; x++ {
-					s.inst[y*s.w+x] = uint16(m.Pix[y*m.Stride+x])
-				}
-			}
-		default:
-			return nil, fmt.Errorf("%s: instance mask is not a 16- or 8-bit gray PNG", r.Instances)
 		}
 	}
 	return s, nil
@@ -166,4 +151,40 @@ func channelName(s, nchan int) string {
 		return "gray"
 	}
 	return [...]string{"R", "G", "B", "luma"}[s]
+}
+
+// loadInstances decodes the record's instance mask (once; readback needs
+// it only for counts under a crop).
+func (s *source) loadInstances(dir string) error {
+	s.instOnce.Do(func() { s.instErr = s.decodeInstances(dir) })
+	return s.instErr
+}
+
+func (s *source) decodeInstances(dir string) error {
+	r, n := s.rec, s.w*s.h
+	if r.Instances != "" {
+		im, err := readPNG(dir, r.Instances, r.Width, r.Height)
+		if err != nil {
+			return err
+		}
+		s.inst = make([]uint16, n)
+		switch m := im.(type) {
+		case *image.Gray16:
+			for y := 0; y < s.h; y++ {
+				for x := 0; x < s.w; x++ {
+					i := y*m.Stride + 2*x
+					s.inst[y*s.w+x] = uint16(m.Pix[i])<<8 | uint16(m.Pix[i+1])
+				}
+			}
+		case *image.Gray:
+			for y := 0; y < s.h; y++ {
+				for x := 0; x < s.w; x++ {
+					s.inst[y*s.w+x] = uint16(m.Pix[y*m.Stride+x])
+				}
+			}
+		default:
+			return fmt.Errorf("%s: instance mask is not a 16- or 8-bit gray PNG", r.Instances)
+		}
+	}
+	return nil
 }
