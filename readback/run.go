@@ -101,6 +101,11 @@ type Report struct {
 	Records  int              `json:"-"` // records in the dataset
 }
 
+// MaxAltBatch is the largest batch whose every record is tried for an
+// image that is not its own record's; larger batches try the record's
+// neighbors in index order only (ids off by one or two).
+const MaxAltBatch = 64
+
 // GoodImage is the correlation a loader image must reach with its source
 // under a relation for the relation to count as found; GoodMask the share
 // of mask pixels that must agree. Common practice; not standard values.
@@ -276,7 +281,13 @@ func Run(dir, batchPath string, o Options) (*Report, error) {
 				alts = append(alts, r)
 			}
 		}
+		// The batch's other records too when it is small: the search is
+		// per pair, and a batch of unrecognizable images (strong
+		// photometric augmentation) must not cost n² searches.
 		for _, r := range batchRecs {
+			if n > MaxAltBatch {
+				break
+			}
 			if !seen[r.ID] {
 				seen[r.ID] = true
 				alts = append(alts, r)
