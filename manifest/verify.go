@@ -18,6 +18,7 @@ import (
 	"slices"
 	"sort"
 	"strings"
+	"sync"
 	"unicode"
 	"unicode/utf8"
 
@@ -202,6 +203,12 @@ func newVerifier(dir string, d *Dataset, report func(Problem)) *verifier {
 	}
 	v.counts = make([]int, len(d.Splits.Names))
 	v.tracking = len(d.Splits.Names) < noSplit
+	if v.tracking && d.Count > 0 {
+		// Room for every group up front (5 bytes each), so growing the
+		// slices never holds two copies; capped, since the count is input.
+		c := min(d.Count, 1<<22)
+		v.grpStratum, v.grpSplit = make([]int32, 0, c), make([]uint8, 0, c)
+	}
 	if !v.tracking {
 		report(Problem{File: DatasetFile, Check: KindSplitTable, Msg: fmt.Sprintf("%s: %d splits; verify checks at most %d", DatasetFile, len(d.Splits.Names), noSplit-1)})
 	}
@@ -643,7 +650,13 @@ type SampleFile struct {
 	f    *os.File
 	size int64
 	cfg  image.Config
+	br   *bufio.Reader // from readerPool, reused for every pass over the file
 }
+
+// readerPool holds the buffered readers sample files borrow, so that
+// reading a file three times (hash, header, pixels) across a million
+// records does not allocate a buffer each time.
+var readerPool = sync.Pool{New: func() any { return bufio.NewReaderSize(nil, 32<<10) }}
 
 // SampleError is a sample file that cannot be used, with the kind of check
 // it fails (KindPath, KindMissing, KindFormat or KindSize).
@@ -685,14 +698,25 @@ func OpenSample(dir, rel string) (*SampleFile, error) {
 }
 
 // Close closes the file.
-func (s *SampleFile) Close() { s.f.Close() }
+func (s *SampleFile) Close() {
+	s.f.Close()
+	if s.br != nil {
+		s.br.Reset(nil)
+		readerPool.Put(s.br)
+		s.br = nil
+	}
+}
 
-func (s *SampleFile) reader() (io.Reader, error) {
+func (s *SampleFile) reader() (*bufio.Reader, error) {
 	if _, err := s.f.Seek(0, io.SeekStart); err != nil {
 		return nil, &SampleError{Rel: s.Rel, Check: KindMissing, Msg: err.Error()}
 	}
+	if s.br == nil {
+		s.br = readerPool.Get().(*bufio.Reader)
+	}
 	// Never more than the size seen at open: a file that grows is not read on.
-	return bufio.NewReaderSize(io.LimitReader(s.f, s.size), 32<<10), nil
+	s.br.Reset(io.LimitReader(s.f, s.size))
+	return s.br, nil
 }
 
 // SHA256 is the hex SHA-256 of the whole file, streamed.
@@ -702,7 +726,7 @@ func (s *SampleFile) SHA256() (string, error) {
 		return "", err
 	}
 	h := sha256.New()
-	if _, err := io.Copy(h, r); err != nil {
+	if _, err := r.WriteTo(h); err != nil {
 		return "", &SampleError{Rel: s.Rel, Check: KindMissing, Msg: err.Error()}
 	}
 	return hex.EncodeToString(h.Sum(nil)), nil
