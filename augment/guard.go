@@ -27,6 +27,14 @@ type InputError struct{ Err error }
 func (e *InputError) Error() string { return e.Err.Error() }
 func (e *InputError) Unwrap() error { return e.Err }
 
+// ResumeError is --resume refused because the output folder holds a
+// finished dataset that is not this run's (another plan, seed, options or
+// input): the caller named the wrong folder or options.
+type ResumeError struct{ Err error }
+
+func (e *ResumeError) Error() string { return e.Err.Error() }
+func (e *ResumeError) Unwrap() error { return e.Err }
+
 func inputErrorf(format string, args ...any) error {
 	return &InputError{fmt.Errorf(format, args...)}
 }

@@ -852,8 +852,8 @@ func lineageBytes(p *Plan) int {
 // Anything else is refused rather than declared complete.
 func (in *input) checkComplete(o RunOptions) error {
 	refuse := func(why string, args ...any) error {
-		return inputErrorf("%s has %s, but %s; it is not a finished run of this augment: check it with trueset verify, or start again with --force",
-			o.Out, manifest.DatasetFile, fmt.Sprintf(why, args...))
+		return &ResumeError{fmt.Errorf("%s has %s, but %s; it is not a finished run of this augment: check it with trueset verify, or start again with --force",
+			o.Out, manifest.DatasetFile, fmt.Sprintf(why, args...))}
 	}
 	d, err := manifest.ReadDataset(o.Out)
 	if err != nil {

@@ -218,7 +218,8 @@ func runAugment(ctx context.Context, o *augmentOptions, stdout, stderr io.Writer
 		if strings.HasPrefix(err.Error(), "--split ") {
 			return usageError{err} // a split the input does not have
 		}
-		if resumeRefused(err) {
+		var re *augment.ResumeError
+		if resumeRefused(err) || errors.As(err, &re) {
 			return usageError{err}
 		}
 		return interrupted(o.out, sum.Records, err, stderr)
