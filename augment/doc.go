@@ -36,6 +36,19 @@
 //   - Inputs are trueset datasets or plain labeled folders (folder.go). The
 //     output is a trueset dataset; sources are carried over unchanged and
 //     copies keep their source's split, group and stratum.
+//   - No input is trusted (guard.go, run.go): every file is read through
+//     internal/safefile (regular files only, bounded bytes); names from input
+//     data pass manifest.SafeName, and clashes between sources and copies
+//     (<id>-cNN) are refused before anything is written; trueset records are
+//     checked as read (unique ids, known splits, PNG headers against their
+//     sizes, the manifest checksum, the split table) and each file against
+//     its SHA-256 and labels against its masks when used, so what augment
+//     writes verifies; originals are written under their ids, never under a
+//     record's paths. A run works on sources within RunPixels (a plain folder
+//     is read one source at a time and again when produced), counts a JPEG's
+//     scans before decoding it, and refuses a plan whose canvas can outgrow
+//     MaxSide before writing. Refusals of the input are *InputError.
 //
-// augment imports manifest (and internal/yamlnode) only, never gen.
+// augment imports manifest (and internal/yamlnode, internal/safefile) only,
+// never gen.
 package augment

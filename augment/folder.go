@@ -19,9 +19,16 @@ package augment
 //     Extensions are matched without regard to case (A.PNG is stem "A").
 //   - An image's format is taken from its content, not its extension (a PNG
 //     named .jpg reads as a PNG); masks and instances must be PNG content.
+//   - Every file is opened through internal/safefile (regular files only;
+//     images at most manifest.MaxSampleFileBytes, classes.json 1 MiB,
+//     labels.csv 64 MiB with lines of at most 64 KiB and 256 columns).
 //   - Every file's header is read with image.DecodeConfig first and a file
 //     whose width·height exceeds the pixel budget is refused before any pixel
-//     is decoded, so a decompression bomb costs a header read.
+//     is decoded, so a decompression bomb costs a header read; a JPEG's scans
+//     are counted first too (countJPEGScans), so one with thousands of
+//     progressive passes costs a read of its bytes.
+//   - Stems, labels.csv ids and class names pass manifest.SafeName; class
+//     and target names are at most 64 bytes.
 //   - Mask value 255 (manifest.IgnoreID) means "no label here": it is not a
 //     class and never belongs to an instance.
 //   - Given instance files are used as they are; every instance's pixels must
