@@ -1,14 +1,10 @@
 package manifest
 
 import (
-	"bytes"
 	"fmt"
 	"image"
-	"image/png"
 	"math"
 	"slices"
-
-	"github.com/trueset/trueset/internal/safefile"
 )
 
 // The kinds of check of the instruments (manifest/instruments.go).
@@ -116,22 +112,19 @@ func (p *planted) checkBait(dir string, r *Record, bad func(check, file, format 
 	}
 }
 
-// readPNG reads one PNG of a record for the instrument checks; nil when it
-// cannot (the file checks report why).
+// readPNG reads one PNG of a record for the instrument checks, through
+// OpenSample and its header check; nil when it cannot (the file checks
+// report why).
 func readPNG(dir, rel string, w, h int) image.Image {
-	path, err := ResolveInside(dir, rel)
+	f, err := OpenSample(dir, rel)
 	if err != nil {
 		return nil
 	}
-	b, err := safefile.Read(path, "sample file", MaxSampleFileBytes)
-	if err != nil {
+	defer f.Close()
+	if _, err := f.Header(w, h); err != nil {
 		return nil
 	}
-	cfg, err := png.DecodeConfig(bytes.NewReader(b))
-	if err != nil || cfg.Width != w || cfg.Height != h || int64(w)*int64(h) > MaxVerifyPixels {
-		return nil
-	}
-	m, err := png.Decode(bytes.NewReader(b))
+	m, err := f.Decode()
 	if err != nil {
 		return nil
 	}
