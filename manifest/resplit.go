@@ -28,6 +28,10 @@ func Resplit(dir string, o ResplitOptions) (*SplitTable, error) {
 	if err != nil {
 		return nil, err
 	}
+	inst, err := ReadInstruments(d.Recipe)
+	if err != nil {
+		return nil, err
+	}
 	mpath := filepath.Join(dir, ManifestFile)
 	groupIdx := map[string]int{}
 	var keys []string
@@ -39,6 +43,9 @@ func Resplit(dir string, o ResplitOptions) (*SplitTable, error) {
 		if err != nil {
 			return err
 		}
+		if inst.HoldOut != nil && r.HeldOut != "" {
+			k = HeldOutPrefix + r.HeldOut // held-out samples stay in the hold-out splits
+		}
 		groupIdx[r.Group] = len(keys)
 		keys = append(keys, k)
 		return nil
@@ -47,7 +54,13 @@ func Resplit(dir string, o ResplitOptions) (*SplitTable, error) {
 		return nil, err
 	}
 	o.Splits.Cover = o.RequireCoverage
-	a, err := AllocateStrata(o.Seed, keys, o.Splits)
+	var a *Allocation
+	if inst.HoldOut != nil {
+		ids, names := strataIDs(keys)
+		a, err = AllocateHeldOut(o.Seed, ids, names, o.Splits, inst.HoldOut.Splits)
+	} else {
+		a, err = AllocateStrata(o.Seed, keys, o.Splits)
+	}
 	if err != nil {
 		return nil, err
 	}

@@ -121,9 +121,14 @@ type Allocation struct {
 // Fisher–Yates shuffle (stream "split" of seed). Strata are ordered by key;
 // the result depends only on seed, keys and splits.
 func AllocateStrata(seed uint64, keys []string, sp Splits) (*Allocation, error) {
+	ids, names := strataIDs(keys)
+	return AllocateStrataIDs(seed, ids, names, sp)
+}
+
+// strataIDs numbers string strata keys in order of first appearance.
+func strataIDs(keys []string) (ids []int32, names []string) {
 	index := map[string]int32{}
-	var names []string
-	ids := make([]int32, len(keys))
+	ids = make([]int32, len(keys))
 	for u, k := range keys {
 		id, ok := index[k]
 		if !ok {
@@ -133,7 +138,7 @@ func AllocateStrata(seed uint64, keys []string, sp Splits) (*Allocation, error) 
 		}
 		ids[u] = id
 	}
-	return AllocateStrataIDs(seed, ids, names, sp)
+	return ids, names
 }
 
 // AllocateStrataIDs is AllocateStrata with the strata given as small
