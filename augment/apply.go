@@ -155,6 +155,10 @@ func (p *Plan) render(in *Input, d *Drawn, defs []manifest.TargetDef, inst *imag
 	rec.Width, rec.Height = d.W, d.H
 	rec.Objects = relabel(in.Record.Objects, inst, d.M, frac)
 	rec.Targets = recompute(defs, rec.Objects, in.Record.Targets)
+	// Planted noise, held-out marks and bait cues belong to the source's
+	// record: the copy's labels are measured from its own masks, and moves
+	// and pixel steps change a cue (manifest/verify_planted.go).
+	rec.Mislabel, rec.HeldOut, rec.Bait = nil, "", nil
 	rec.Lineage = &manifest.Lineage{Source: in.Record.ID, Geometry: d.Geometry, Pixels: d.Pixels, Matrix: d.M}
 	if rec.Lineage.Geometry == nil {
 		rec.Lineage.Geometry = []manifest.LineageOp{}

@@ -765,7 +765,8 @@ func (in *input) checkSplitTable(file string) error {
 		return nil
 	}
 	sp.Cover = in.splits.RequireCoverage
-	a, err := manifest.AllocateStrata(in.seed, keys, sp)
+	ids, names := manifest.StrataIDs(keys)
+	a, err := manifest.AllocateWritten(in.base, ids, names, sp) // as verify deals it
 	if err != nil {
 		return nil
 	}

@@ -56,7 +56,7 @@ func Resplit(dir string, o ResplitOptions) (*SplitTable, error) {
 	o.Splits.Cover = o.RequireCoverage
 	var a *Allocation
 	if inst.HoldOut != nil {
-		ids, names := strataIDs(keys)
+		ids, names := StrataIDs(keys)
 		a, err = AllocateHeldOut(o.Seed, ids, names, o.Splits, inst.HoldOut.Splits)
 	} else {
 		a, err = AllocateStrata(o.Seed, keys, o.Splits)

@@ -121,12 +121,12 @@ type Allocation struct {
 // Fisher–Yates shuffle (stream "split" of seed). Strata are ordered by key;
 // the result depends only on seed, keys and splits.
 func AllocateStrata(seed uint64, keys []string, sp Splits) (*Allocation, error) {
-	ids, names := strataIDs(keys)
+	ids, names := StrataIDs(keys)
 	return AllocateStrataIDs(seed, ids, names, sp)
 }
 
-// strataIDs numbers string strata keys in order of first appearance.
-func strataIDs(keys []string) (ids []int32, names []string) {
+// StrataIDs numbers string strata keys in order of first appearance.
+func StrataIDs(keys []string) (ids []int32, names []string) {
 	index := map[string]int32{}
 	ids = make([]int32, len(keys))
 	for u, k := range keys {

@@ -541,7 +541,7 @@ func (v *verifier) checkAllocation() {
 	if perr != nil || v.broken || !v.tracking || v.records != d.Count || v.spans || skipped || v.strataFull || !slices.Equal(sp.Names, d.Splits.Names) {
 		return
 	}
-	a, err := allocateVerified(d, v.grpStratum, v.stratumNames, sp) // held-out strata: verify_planted.go
+	a, err := AllocateWritten(d, v.grpStratum, v.stratumNames, sp) // held-out strata: verify_planted.go
 	if err != nil {
 		return
 	}

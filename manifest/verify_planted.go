@@ -40,7 +40,10 @@ func newPlanted(d *Dataset) *planted {
 
 // allocateVerified is AllocateStrataIDs, or AllocateHeldOut for a set with
 // held-out combinations, as generate dealt it.
-func allocateVerified(d *Dataset, ids []int32, names []string, sp Splits) (*Allocation, error) {
+// AllocateWritten deals strata as generate dealt dataset d: held-out strata
+// only to their hold-out splits when the recipe holds combinations out, the
+// rest by the ratios. verify and augment both check records against it.
+func AllocateWritten(d *Dataset, ids []int32, names []string, sp Splits) (*Allocation, error) {
 	in, err := ReadInstruments(d.Recipe)
 	if err != nil || in.HoldOut == nil {
 		return AllocateStrataIDs(d.Seed, ids, names, sp)
@@ -70,6 +73,14 @@ func (p *planted) checkHeldOut(r *Record, bad func(check, file, format string, a
 	if want != "" && !slices.Contains(h.Splits, r.Split) {
 		bad(KindHeldOut, ManifestFile, "is in split %s but shows held-out combination %s, which belongs only in %v", r.Split, want, h.Splits)
 	}
+	if r.Lineage != nil {
+		// An augmented copy keeps its source's split and stratum; only its
+		// source's record says what was held out.
+		if r.HeldOut != "" {
+			bad(KindHeldOut, ManifestFile, "an augmented copy carries held_out %q; only its source's record does", r.HeldOut)
+		}
+		return
+	}
 	if r.HeldOut != want {
 		bad(KindHeldOut, ManifestFile, "held_out is %q, but its objects show %q", r.HeldOut, want)
 	}
@@ -80,6 +91,13 @@ func (p *planted) checkHeldOut(r *Record, bad func(check, file, format string, a
 
 func (p *planted) checkBait(dir string, r *Record, bad func(check, file, format string, args ...any)) {
 	b := p.in.Bait
+	if r.Lineage != nil {
+		// Moves and pixel steps move or change the cue: a copy claims none.
+		if r.Bait != nil {
+			bad(KindBait, ManifestFile, "an augmented copy carries a bait cue; moves and pixel steps change it, so a copy claims none")
+		}
+		return
+	}
 	if b == nil {
 		if r.Bait != nil {
 			bad(KindBait, ManifestFile, "has a bait cue, but the recipe plants no bait")
@@ -136,6 +154,10 @@ func inRange(v float64, r [2]float64) bool { return v >= r[0] && v <= r[1] }
 func (p *planted) checkMislabel(dir string, r *Record, bad func(check, file, format string, args ...any)) {
 	m := r.Mislabel
 	if m == nil {
+		return
+	}
+	if r.Lineage != nil {
+		bad(KindMislabel, ManifestFile, "an augmented copy carries planted noise; a copy's labels are measured from its own masks")
 		return
 	}
 	spec := p.in.Mislabel

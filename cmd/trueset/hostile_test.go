@@ -141,3 +141,41 @@ func treeDigest(t *testing.T, root string) string {
 	}
 	return b.String()
 }
+
+// Augmenting a set built with instruments (planted noise, held-out
+// combinations, bait) writes what verify accepts: copies carry none of the
+// source's planted marks (their labels are measured from their own masks,
+// and moves change a cue), keep a held-out source's hold-out split, and a
+// re-split held-out set is dealt as verify deals it.
+func TestAugmentInstrumentSets(t *testing.T) {
+	plan := "../../examples/plans/light.yaml"
+	for _, name := range []string{"noisy-sorting", "unseen-paint", "bead-bait"} {
+		t.Run(name, func(t *testing.T) {
+			root := t.TempDir()
+			src, out := filepath.Join(root, "src"), filepath.Join(root, "aug")
+			wantCode(t, exitOK, "generate", "--recipe", "../../examples/instruments/"+name+".yaml", "--count", "120", "--out", src, "--quiet")
+			if name == "unseen-paint" {
+				wantCode(t, exitOK, "split", src, "--ratios", "train=0.6,val=0.2,test=0.2", "--quiet")
+			}
+			wantCode(t, exitOK, "augment", "--in", src, "--out", out, "--plan", plan, "--split", "train,test", "--quiet")
+			wantCode(t, exitOK, "verify", out)
+			copies := 0
+			err := manifest.ReadManifest(out, func(r *manifest.Record) error {
+				if r.Lineage == nil {
+					return nil
+				}
+				copies++
+				if r.Mislabel != nil || r.Bait != nil || r.HeldOut != "" {
+					t.Errorf("copy %s carries planted marks: mislabel %v, bait %v, held_out %q", r.ID, r.Mislabel, r.Bait, r.HeldOut)
+				}
+				return nil
+			})
+			if err != nil {
+				t.Fatal(err)
+			}
+			if copies == 0 {
+				t.Fatal("no copies were made")
+			}
+		})
+	}
+}
