@@ -68,3 +68,40 @@ echo "== readback: planted-bug corpus"
 "$work/trueset" augment --in "$work/rb-dice" --out "$work/rb-dice-aug" --plan examples/plans/light.yaml --copies 1 --quiet
 "$PY" examples/python/readback_corpus.py "$work/rb-dice-aug" "$work/rb-corpus"
 "$PY" examples/python/test_readback.py "$work/trueset" "$work/rb-dice-aug" "$work/rb-corpus"
+
+# The loader as an installed package (examples/python/pyproject.toml):
+# installed offline with Debian's pip and setuptools into a venv that sees the
+# system's numpy and Pillow, then the same tests run against the installed
+# module. The package folder and the tests are copied out first, so the
+# build leaves nothing in the tree and the tests cannot import the
+# trueset_loader.py beside them.
+echo "== pip install examples/python into a venv (offline)"
+# (each in its own interpreter: importing pip before setuptools trips
+# setuptools' distutils check on Debian.)
+if ! { "$PY" -c 'import setuptools' && "$PY" -c 'import pip' && "$PY" -c 'import venv, ensurepip'; } 2>/dev/null; then
+	if [ "$(id -u)" -ne 0 ]; then
+		echo "$PY lacks pip, setuptools or venv; as root run: apt-get install python3-pip python3-setuptools python3-venv" >&2
+		exit 1
+	fi
+	apt-get update
+	DEBIAN_FRONTEND=noninteractive apt-get install -y python3-pip python3-setuptools python3-venv
+fi
+"$PY" -m venv --system-site-packages "$work/venv"
+VPY="$work/venv/bin/python"
+cp -r examples/python "$work/pkg"
+rm -rf "$work/pkg/build" "$work/pkg"/*.egg-info
+"$VPY" -m pip install --quiet --no-build-isolation --no-index "$work/pkg"
+mkdir "$work/pytests"
+cp examples/python/test_loader.py examples/python/test_readback.py examples/python/readback_corpus.py "$work/pytests/"
+(cd "$work" && "$VPY" -c '
+import os, sys, trueset_loader
+where = os.path.realpath(trueset_loader.__file__)
+venv = os.path.realpath(sys.argv[1])
+assert where.startswith(venv + os.sep), "trueset_loader imported from %s, not the venv %s" % (where, venv)
+print("installed:", where)
+' "$work/venv")
+echo "== installed package: test_loader.py"
+"$VPY" "$work/pytests/test_loader.py" "${dirs[@]}"
+echo "== installed package: readback corpus"
+"$VPY" "$work/pytests/readback_corpus.py" "$work/rb-dice-aug" "$work/rb-corpus-venv"
+"$VPY" "$work/pytests/test_readback.py" "$work/trueset" "$work/rb-dice-aug" "$work/rb-corpus-venv"
