@@ -208,6 +208,7 @@ func erase(mask *image.Paletted, inst *image.Gray16, id int) {
 // is gone loses its parent reference.
 func relabel(objs []manifest.Object, inst *image.Gray16, m Mat, frac map[int]float64) []manifest.Object {
 	stats := manifest.MeasureInstances(inst)
+	moments := manifest.MeasureMoments(inst)
 	kept := map[int]bool{}
 	out := []manifest.Object{} // [] in the record, not null, when none is left
 	s := math.Sqrt(math.Abs(m.Det()))
@@ -225,16 +226,21 @@ func relabel(objs []manifest.Object, inst *image.Gray16, m Mat, frac map[int]flo
 			f = math.Min(f, float64(st.Area)/(float64(o.Area)*math.Abs(m.Det())))
 		}
 		n.Shown = manifest.Round(math.Min(1, o.Shown*f), 4)
-		// Objects read from a plain folder have no plan factors (size 0);
-		// theirs stay unset rather than be made up from (0, 0) and 0°.
-		if o.Size > 0 {
+		// The plan's factors, where a plan set them, are mapped by m;
+		// objects read from a plain folder have none and get none.
+		if o.Center != nil {
 			cx, cy := m.Apply(o.Center[0], o.Center[1])
-			n.Center = [2]float64{manifest.Round(cx, 3), manifest.Round(cy, 3)}
-			n.Size = manifest.Round(o.Size*s, 3)
-			sn, cs := math.Sincos(o.Angle * math.Pi / 180)
-			dx, dy := m[0]*cs+m[1]*sn, m[3]*cs+m[4]*sn
-			n.Angle = manifest.Round(math.Atan2(dy, dx)*180/math.Pi, 3)
+			n.Center = &[2]float64{manifest.Round(cx, 3), manifest.Round(cy, 3)}
 		}
+		if o.Size != nil {
+			n.Size = manifest.Factor(manifest.Round(*o.Size*s, 3))
+		}
+		if o.Angle != nil {
+			sn, cs := math.Sincos(*o.Angle * math.Pi / 180)
+			dx, dy := m[0]*cs+m[1]*sn, m[3]*cs+m[4]*sn
+			n.Angle = manifest.Factor(manifest.Round(math.Atan2(dy, dx)*180/math.Pi, 3))
+		}
+		n.Measured(moments[o.Instance])
 		out = append(out, n)
 	}
 	for i := range out {

@@ -171,6 +171,7 @@ func diskWriteInput(t *testing.T, dir string, n int) {
 		if len(rec.Objects) == 2 && rec.Objects[0].Instance > rec.Objects[1].Instance {
 			rec.Objects[0], rec.Objects[1] = rec.Objects[1], rec.Objects[0]
 		}
+		manifest.SetMeasured(rec.Objects, inst)
 		counts[rec.Split]++
 		if _, err := w.WriteFiles(&rec, enc, img, mask, inst); err != nil {
 			t.Fatal(err)

@@ -988,6 +988,7 @@ func readFolderSource(files folderSourceFiles, maxPixels int, classesGiven bool,
 		return nil, err
 	}
 	stats := manifest.MeasureInstances(ids)
+	moments := manifest.MeasureMoments(ids)
 	objIDs := make([]int, 0, len(stats))
 	for id := range stats {
 		objIDs = append(objIDs, id)
@@ -996,9 +997,9 @@ func readFolderSource(files folderSourceFiles, maxPixels int, classesGiven bool,
 	objects := make([]manifest.Object, 0, len(objIDs))
 	for _, id := range objIDs {
 		st := stats[id]
-		objects = append(objects, manifest.Object{
-			Instance: id, Class: int(classes[id]), Box: st.BBox, Area: st.Area, Shown: 1, Shape: "labeled",
-		})
+		o := manifest.Object{Instance: id, Class: int(classes[id]), Box: st.BBox, Area: st.Area, Shown: 1, Shape: "labeled"}
+		o.Measured(moments[id])
+		objects = append(objects, o)
 	}
 	sum := sha256.New()
 	for _, ff := range []*folderFile{img, msk, inst} {

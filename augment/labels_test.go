@@ -97,15 +97,16 @@ func labInput(id string, w, h, c int, shapes []labShape) *Input {
 			panic(fmt.Sprintf("%s: shape %d is hidden", id, i))
 		}
 		o := manifest.Object{Instance: i + 1, Box: st.BBox, Area: st.Area, Shown: manifest.Round(float64(st.Area)/float64(alone[i]), 4),
-			Center: [2]float64{s.x, s.y}, Aspect: 1}
+			Center: &[2]float64{s.x, s.y}, Aspect: manifest.Factor(1)}
 		if s.disc {
-			o.Class, o.ClassName, o.Shape, o.Size = 1, "disc", "disc", 2*s.r
+			o.Class, o.ClassName, o.Shape, o.Size = 1, "disc", "disc", manifest.Factor(2*s.r)
 			discs++
 		} else {
-			o.Class, o.ClassName, o.Shape, o.Size, o.Aspect = 2, "block", "block", 2*s.s, s.r/s.s
+			o.Class, o.ClassName, o.Shape, o.Size, o.Aspect = 2, "block", "block", manifest.Factor(2*s.s), manifest.Factor(s.r/s.s)
 		}
 		rec.Objects = append(rec.Objects, o)
 	}
+	manifest.SetMeasured(rec.Objects, inst)
 	// Counted by hand here, not by the package's own target code.
 	rec.Targets["objects"] = manifest.Number(float64(len(shapes)))
 	rec.Targets["discs"] = manifest.Number(float64(discs))

@@ -16,7 +16,7 @@ import (
 // TestDiskFull runs generate on a file system that fails every write with
 // ENOSPC after N bytes (manifest.FailAfter), for N inside the run marker,
 // inside the first image, mid-run, inside the manifest (written at the end,
-// as 40 records fit its buffer) and inside dataset.json. Each run must stop
+// as 30 records fit its buffer) and inside dataset.json. Each run must stop
 // with an error naming a path inside the output folder and "no space left on
 // device"; every whole record left in manifest.jsonl must name files that are
 // there with its SHA-256; there must be no dataset.json and no temporary
@@ -28,7 +28,7 @@ func TestDiskFull(t *testing.T) {
 		t.Fatal(err)
 	}
 	opts := func(out string) RunOptions {
-		return RunOptions{Recipe: r, Out: out, Count: 40, Seed: 3, Workers: 2, Version: "test"}
+		return RunOptions{Recipe: r, Out: out, Count: 30, Seed: 3, Workers: 2, Version: "test"} // 30: the manifest stays under one 64 KiB flush
 	}
 	tmp := t.TempDir()
 	ref := filepath.Join(tmp, "ref")

@@ -128,7 +128,7 @@ layers:
 					stats := measureGray16(s.Instances)
 					var ms []sfntMetrics
 					for _, o := range objs {
-						if o.Shape != "glyph" || o.Font != fnt.name || o.Size != float64(size) || o.Angle != 0 || o.Aspect != 1 {
+						if o.Shape != "glyph" || o.Font != fnt.name || *o.Size != float64(size) || *o.Angle != 0 || *o.Aspect != 1 {
 							t.Fatalf("sample %d: unexpected object %+v", idx, o)
 						}
 						ms = append(ms, met[[]rune(o.Glyph)[0]])

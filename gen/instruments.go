@@ -578,15 +578,15 @@ func (r *Recipe) heldOutOf(objs []ObjectPlan) string {
 			v := float64(o.Tone[0])
 			mo.Intensity = &v
 		}
-		mo.Size = manifest.Round(o.Spec.Size.Min, 3)
+		mo.Size = manifest.Factor(manifest.Round(o.Spec.Size.Min, 3))
 		if o.sizePiece != nil {
-			mo.Size = o.sizePiece.mid
+			mo.Size = manifest.Factor(o.sizePiece.mid)
 		}
 		if o.Spec.Angle != nil {
-			mo.Angle = manifest.Round(o.Spec.Angle.Min, 3)
+			mo.Angle = manifest.Factor(manifest.Round(o.Spec.Angle.Min, 3))
 		}
 		if o.anglePiece != nil {
-			mo.Angle = o.anglePiece.mid
+			mo.Angle = manifest.Factor(o.anglePiece.mid)
 		}
 		rec.Objects[i] = mo
 	}

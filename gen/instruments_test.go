@@ -415,7 +415,7 @@ hold_out:
 	for _, rec := range readRecords(t, dir) {
 		for _, o := range rec.Objects {
 			objects++
-			inBig, inSteep := o.Size >= 17.5 && o.Size <= 20, o.Angle >= 60 && o.Angle <= 70
+			inBig, inSteep := *o.Size >= 17.5 && *o.Size <= 20, *o.Angle >= 60 && *o.Angle <= 70
 			if inBig {
 				big++
 			}
@@ -423,7 +423,7 @@ hold_out:
 				steep++
 			}
 			if (inBig || inSteep) && rec.Split == "train" {
-				t.Errorf("record %s in train has an object of size %v, angle %v", rec.ID, o.Size, o.Angle)
+				t.Errorf("record %s in train has an object of size %v, angle %v", rec.ID, *o.Size, *o.Angle)
 			}
 		}
 	}

@@ -318,6 +318,7 @@ func blend(dst, src, a uint8) uint8 {
 func (rd *Renderer) label(p *Plan, s *Sample, alone []int) error {
 	r := rd.r
 	stats := manifest.MeasureInstances(s.Instances)
+	moments := manifest.MeasureMoments(s.Instances)
 	rec := &s.Record
 	rec.Index = p.Index
 	rec.ID = manifest.SampleID(p.Index)
@@ -344,9 +345,13 @@ func (rd *Renderer) label(p *Plan, s *Sample, alone []int) error {
 			Instance: id, Class: o.Class, ClassName: rd.palette[o.Class].Name, Parent: o.Parent,
 			Box: bb, Area: area, Shown: manifest.Round(vis, 4),
 			Shape:  o.Kind,
-			Center: [2]float64{manifest.Round(o.CX, 3), manifest.Round(o.CY, 3)},
-			Size:   manifest.Round(o.Size, 3), Aspect: manifest.Round(o.Aspect, 4), Angle: manifest.Round(o.Angle, 3),
+			Center: &[2]float64{manifest.Round(o.CX, 3), manifest.Round(o.CY, 3)},
+			Size:   manifest.Factor(manifest.Round(o.Size, 3)), Aspect: manifest.Factor(manifest.Round(o.Aspect, 4)),
+			Angle: manifest.Factor(manifest.Round(o.Angle, 3)),
 			Value: o.Value,
+		}
+		if m := moments[id]; m != nil {
+			ob.Measured(m)
 		}
 		if o.Kind == "glyph" {
 			ob.Glyph = string(o.Glyph)

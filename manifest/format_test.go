@@ -64,10 +64,21 @@ func TestRecordKeys(t *testing.T) {
 		t.Fatal(err)
 	}
 	o := rec.Objects[0]
-	for _, k := range []string{"box_x0y0x1y1", "shown", "shape", "center"} {
+	for _, k := range []string{"box_x0y0x1y1", "shown", "shape", "measured_center", "measured_size"} {
 		if _, ok := o[k]; !ok {
 			t.Errorf("object lacks key %q: %s", k, b)
 		}
+	}
+	// No plan set a factor here: none is written (issue 12, no zeros that
+	// stand for "unknown"); with one set, it is.
+	for _, k := range []string{"center", "size", "aspect", "angle", "intensity", "color", "value"} {
+		if _, ok := o[k]; ok {
+			t.Errorf("object without planned factors has key %q: %s", k, b)
+		}
+	}
+	b2, _ := MarshalRecord(&Record{ID: "000000", Objects: []Object{{Instance: 1, Center: &[2]float64{1, 2}, Angle: Factor(0)}}})
+	if !strings.Contains(string(b2), `"center":[1,2]`) || !strings.Contains(string(b2), `"angle":0`) {
+		t.Errorf("planned center [1, 2] and angle 0 not written: %s", b2)
 	}
 	for _, k := range []string{"bbox", "visible", "kind", "centre", "colour"} {
 		if _, ok := o[k]; ok {

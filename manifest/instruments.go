@@ -210,8 +210,12 @@ func (c *HoldOutCombo) matchObject(o *Object) bool {
 	if c.Intensity != nil && (o.Intensity == nil || !in(*o.Intensity, c.Intensity)) {
 		return false
 	}
-	return in(o.Size, c.Size) && in(o.Angle, c.Angle)
+	return inPlanned(o.Size, c.Size) && inPlanned(o.Angle, c.Angle)
 }
+
+// inPlanned is in for a planned factor: an object without one matches no
+// range.
+func inPlanned(v *float64, r *[2]float64) bool { return r == nil || v != nil && in(*v, r) }
 
 // Match returns the name of the first combination record r shows, "" for
 // none.

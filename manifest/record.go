@@ -34,8 +34,10 @@ type Record struct {
 	Bait     *BaitMark `json:"bait,omitempty"`
 }
 
-// Object is one instance in a sample. Instance, Class, Parent, Box, Area and
-// Shown are measured from the masks; the rest are the plan's factors.
+// Object is one instance in a sample. Instance, Class, Parent, Box, Area,
+// Shown, MeasuredCenter and MeasuredSize are measured from the masks; the
+// rest are the plan's factors, present only where a plan set them (objects
+// read from a plain folder have none: no zeros stand for "unknown").
 type Object struct {
 	Instance  int    `json:"instance"`
 	Class     int    `json:"class"`
@@ -47,17 +49,26 @@ type Object struct {
 	// object would cover alone.
 	Shown float64 `json:"shown"`
 
-	Shape     string     `json:"shape"`           // shape name, or "glyph"
-	Glyph     string     `json:"glyph,omitempty"` // the character, for glyphs
-	Font      string     `json:"font,omitempty"`  // font name, for glyphs
-	Center    [2]float64 `json:"center"`          // plan center in pixels
-	Size      float64    `json:"size"`            // plan size in pixels (height; em size for glyphs)
-	Aspect    float64    `json:"aspect"`          // width / height
-	Angle     float64    `json:"angle"`           // degrees, clockwise on screen
-	Intensity *float64   `json:"intensity,omitempty"`
-	Color     *[3]uint8  `json:"color,omitempty"`
-	Value     *float64   `json:"value,omitempty"`
+	Shape     string      `json:"shape"`            // shape name, or "glyph"
+	Glyph     string      `json:"glyph,omitempty"`  // the character, for glyphs
+	Font      string      `json:"font,omitempty"`   // font name, for glyphs
+	Center    *[2]float64 `json:"center,omitempty"` // plan center in pixels
+	Size      *float64    `json:"size,omitempty"`   // plan size in pixels (height; em size for glyphs)
+	Aspect    *float64    `json:"aspect,omitempty"` // width / height
+	Angle     *float64    `json:"angle,omitempty"`  // degrees, clockwise on screen
+	Intensity *float64    `json:"intensity,omitempty"`
+	Color     *[3]uint8   `json:"color,omitempty"`
+	Value     *float64    `json:"value,omitempty"`
+
+	// MeasuredCenter is the centroid of the object's mask pixels;
+	// MeasuredSize the [major, minor] axes of the ellipse with the same
+	// second moments (manifest.Moments). Both from the instance mask.
+	MeasuredCenter [2]float64 `json:"measured_center"`
+	MeasuredSize   [2]float64 `json:"measured_size"`
 }
+
+// Factor returns a pointer to f, for the planned factors.
+func Factor(f float64) *float64 { return &f }
 
 // Lineage records where an augmented sample came from and what was done to
 // it: the steps of each phase of the plan that applied, in order, with their

@@ -12,9 +12,12 @@ import (
 // Area > 0 count; the rest are gone). Counts are the objects of t's classes;
 // sum, min, max and mean run over Of (value, area, size or angle; objects
 // without a value are left out of value aggregates), and an empty selection
-// gives 0; text joins the glyphs in reading order and number reads that text
-// as an integer. order sorts the selected object indices into reading order;
-// nil means left to right by center x.
+// gives 0. Size and angle are plan factors: a selected object without a
+// planned one (an object read from a plain folder) is an error, never a 0.
+// Text joins the glyphs in reading order and number reads that text as an
+// integer. order sorts the selected object indices into reading order; nil
+// means left to right by center x (the planned center, else the measured
+// one).
 func EvalTarget(t TargetDef, objs []Object, order func(sel []int)) (Value, error) {
 	want := map[string]bool{}
 	for _, c := range t.Classes {
@@ -40,10 +43,15 @@ func EvalTarget(t TargetDef, objs []Object, order func(sel []int)) (Value, error
 				}
 			case "area":
 				vals = append(vals, float64(o.Area))
-			case "size":
-				vals = append(vals, o.Size)
-			case "angle":
-				vals = append(vals, o.Angle)
+			case "size", "angle":
+				f := o.Size
+				if t.Of == "angle" {
+					f = o.Angle
+				}
+				if f == nil {
+					return Value{}, fmt.Errorf("target %s: %s of object %d (class %s): the object has no planned %s (objects read from a plain folder have none); use of: area", t.Name, t.Of, o.Instance, o.ClassName, t.Of)
+				}
+				vals = append(vals, *f)
 			}
 		}
 		return Number(Round(Aggregate(t.Kind, vals), 6)), nil
@@ -51,7 +59,7 @@ func EvalTarget(t TargetDef, objs []Object, order func(sel []int)) (Value, error
 		if order != nil {
 			order(sel)
 		} else {
-			sort.SliceStable(sel, func(a, b int) bool { return objs[sel[a]].Center[0] < objs[sel[b]].Center[0] })
+			sort.SliceStable(sel, func(a, b int) bool { return objs[sel[a]].ReadingX() < objs[sel[b]].ReadingX() })
 		}
 		var b strings.Builder
 		for _, i := range sel {
@@ -103,4 +111,13 @@ func Aggregate(kind string, vals []float64) float64 {
 		m = math.Max(m, v)
 	}
 	return m
+}
+
+// ReadingX is the x that orders an object in a reading: its planned center,
+// or its measured center where no plan set one.
+func (o *Object) ReadingX() float64 {
+	if o.Center != nil {
+		return o.Center[0]
+	}
+	return o.MeasuredCenter[0]
 }

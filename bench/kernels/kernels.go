@@ -137,7 +137,7 @@ func NewCase(n int) (*Case, error) {
 				}
 			}
 		}
-		rec.Objects = append(rec.Objects, manifest.Object{Instance: id, Class: c, Shape: "disc", Center: [2]float64{cx, cy}, Size: 2 * r, Aspect: 1, Shown: 1})
+		rec.Objects = append(rec.Objects, manifest.Object{Instance: id, Class: c, Shape: "disc", Center: &[2]float64{cx, cy}, Size: manifest.Factor(2 * r), Aspect: manifest.Factor(1), Shown: 1})
 	}
 	stats := manifest.MeasureInstances(inst)
 	kept := rec.Objects[:0]

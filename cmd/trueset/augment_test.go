@@ -328,12 +328,12 @@ func TestAugmentPlainFolder(t *testing.T) {
 		}
 	}
 	augCheckCopies(t, originals, recs, 3)
-	// A plain folder's objects have no plan factors (size 0): copies must not
-	// make up a center or an angle for them.
+	// A plain folder's objects have no plan factors: copies must not make
+	// up a center, size, aspect or angle for them.
 	for _, r := range recs {
 		for _, o := range r.Objects {
-			if o.Size == 0 && (o.Center != [2]float64{} || o.Angle != 0) {
-				t.Errorf("record %s object %d: center %v angle %v made up for an object without factors", r.ID, o.Instance, o.Center, o.Angle)
+			if o.Center != nil || o.Size != nil || o.Aspect != nil || o.Angle != nil {
+				t.Errorf("record %s object %d: planned factors made up for an object read from a plain folder: %+v", r.ID, o.Instance, o)
 			}
 		}
 	}
