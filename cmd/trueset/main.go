@@ -63,6 +63,7 @@ anyone can regenerate byte for byte from the recipe and the seed.`,
 	root.AddCommand(newCompletionCmd(stdout), newManCmd(stdout))
 	root.AddCommand(newReportCmd(stdout))
 	root.AddCommand(newReadbackCmd(stdout))
+	root.AddCommand(newExportCmd(stdout))
 	return root
 }
 
