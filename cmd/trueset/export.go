@@ -52,7 +52,7 @@ labels/ appears only when every file is written.`,
 		Example: `  trueset generate --preset tabletop-dice --count 50 --out dice --quiet
   trueset export dice --format objects-json --out dice-objects.json
   trueset export dice --format center-boxes --split train --out dice-boxes
-  head -n 3 dice-boxes/labels/*.txt | head -n 5; cat dice-boxes/classes.txt`,
+  cat dice-boxes/classes.txt`,
 		Args: func(c *cobra.Command, args []string) error {
 			if len(args) != 1 {
 				return usagef("export takes one dataset folder")
