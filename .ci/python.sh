@@ -105,3 +105,10 @@ echo "== installed package: test_loader.py"
 echo "== installed package: readback corpus"
 "$VPY" "$work/pytests/readback_corpus.py" "$work/rb-dice-aug" "$work/rb-corpus-venv"
 "$VPY" "$work/pytests/test_readback.py" "$work/trueset" "$work/rb-dice-aug" "$work/rb-corpus-venv"
+
+# trueset export (issue 15): both interchange formats of every set above,
+# read back by test_export.py's own numpy decoders (run-length counts
+# expanded column-major and compared with the instance masks pixel for
+# pixel; center boxes back to the masks' boxes).
+echo "== $PY examples/python/test_export.py"
+"$PY" examples/python/test_export.py "$work/trueset" "${dirs[@]}"
