@@ -23,48 +23,213 @@ type Output struct {
 	Mask   *image.Paletted
 	Inst   *image.Gray16
 	Record manifest.Record
+	// NotWritten, when not "", says why no draw of the copy could be
+	// written (CopyWith); the other fields are then empty.
+	NotWritten string
+	Redraws    int  // draws thrown away before the one used
+	Lost       bool // an object of the source was lost, cut or dropped
 }
 
-// Copy makes copy k (k ≥ 1) of source number src. Every draw comes from
-// manifest.RNG(seed, src, k, try): try counts the redraws the redraw policy
-// makes when a crop or turn cuts an object below cuts.least_shown (bounded
-// by cuts.tries; after that the cut objects are dropped). Labels are then
-// measured again from the warped instance mask, and targets recomputed from
-// defs; targets without a definition are carried over unchanged.
+// Copy makes copy k (k ≥ 1) of source number src under the plan's rules
+// alone (CopyWith with no further rules).
 func (p *Plan) Copy(in *Input, seed uint64, src, k int, defs []manifest.TargetDef) (*Output, error) {
+	return p.CopyWith(in, seed, src, k, defs, CopyRules{})
+}
+
+// CopyRules are what a copy must respect beyond the plan's cuts policy.
+type CopyRules struct {
+	// Whole: no object may be lost, cut or dropped, because the sample
+	// carries targets without a definition (undeclared labels.csv columns)
+	// that such a copy could make false.
+	Whole bool
+}
+
+// Fates of an object under a copy's matrix.
+const (
+	fateWhole = iota // every pixel center maps inside the frame, and the object shows
+	fateOut          // no pixel center maps inside and nothing of it shows
+	fateCut          // neither: the frame cuts it
+	fateLost         // inside the frame, but the warp left no pixel of it
+)
+
+// CopyWith makes copy k (k ≥ 1) of source number src. Every draw comes from
+// manifest.RNG(seed, src, k, try). A draw is taken again (up to cuts.tries)
+// when the redraw policy finds an object cut below cuts.least_shown; when
+// the frame cuts an object that a text or number target reads (whatever the
+// policy: a reading is never shortened); and, with rules.Whole, when any
+// object is lost, cut or dropped. When no draw keeps the readings (and,
+// with Whole, every object) whole, the copy is not written: Output.NotWritten
+// says why. Otherwise the last draw that keeps them is used, cut objects
+// are dropped or kept by the policy, labels are measured again from the
+// warped instance mask and targets recomputed from defs; targets without a
+// definition are carried over unchanged.
+func (p *Plan) CopyWith(in *Input, seed uint64, src, k int, defs []manifest.TargetDef, rules CopyRules) (*Output, error) {
 	W, H := in.Image.W, in.Image.H
 	cuts := &p.Geometry.Cuts
-	var d *Drawn
-	var frac map[int]float64
-	var inst *image.Gray16
 	min := *cuts.LeastShown
+	read, reading := readObjects(in.Record.Objects, defs)
 	tries := 1
-	if cuts.Policy == "redraw" {
+	if cuts.Policy == "redraw" || len(read) > 0 || rules.Whole {
 		tries = cuts.Tries
 	}
-	ok := false
-	for try := 0; try < tries && !ok; try++ {
-		var err error
-		d, err = p.Draw(manifest.RNG(seed, uint64(src), uint64(k), uint64(try)), W, H)
+	type drawn struct {
+		d    *Drawn
+		inst *image.Gray16
+		frac map[int]float64
+		lost bool // some object lost, cut or dropped
+	}
+	var chosen, best *drawn
+	why := ""
+	for try := 0; try < tries; try++ {
+		d, err := p.Draw(manifest.RNG(seed, uint64(src), uint64(k), uint64(try)), W, H)
 		if err != nil {
 			return nil, fmt.Errorf("%s copy %d: %w", in.Record.ID, k, err)
 		}
 		d.Redraws = try
-		inst = WarpInstances(in.Inst, d.M, d.W, d.H)
-		frac = keptFractions(in.Record.Objects, inst, d.M)
-		ok = true
-		if cuts.Policy == "redraw" {
-			for _, f := range frac {
-				if f < min {
-					ok = false
-					break
+		inst := WarpInstances(in.Inst, d.M, d.W, d.H)
+		stats := manifest.MeasureInstances(inst)
+		frac := keptFractions(in.Record.Objects, stats, d.M)
+		fates := frameFates(in.Record.Objects, in.Inst, stats, d.M, d.W, d.H)
+		short := false // below least_shown somewhere
+		for _, f := range frac {
+			short = short || f < min
+		}
+		lost := short && cuts.Policy != "keep"
+		for _, f := range fates {
+			lost = lost || f != fateWhole
+		}
+		hard := ""
+		for id := range read {
+			if fates[id] == fateCut {
+				hard = fmt.Sprintf("every one of its %d draws cut an object that target %q reads", tries, reading)
+				break
+			}
+		}
+		if hard == "" && rules.Whole && (lost || cutoutHides(d, inst)) {
+			hard = fmt.Sprintf("every one of its %d draws lost, cut or dropped an object, and labels.csv columns without a declaration in %s would be carried", tries, folderColumnsFile)
+			lost = true
+		}
+		if hard != "" {
+			why = hard
+			continue
+		}
+		best = &drawn{d, inst, frac, lost}
+		if !(cuts.Policy == "redraw" && short) {
+			chosen = best
+			break
+		}
+	}
+	if chosen == nil {
+		chosen = best // the redraw policy ran out of tries: cut objects are dropped
+	}
+	if chosen == nil {
+		return &Output{NotWritten: why, Redraws: tries - 1}, nil
+	}
+	// The chosen draw's warped instance mask and kept fractions are what
+	// render would compute again from the same matrix; it takes them over.
+	out, err := p.render(in, chosen.d, defs, chosen.inst, chosen.frac)
+	if err != nil {
+		return nil, err
+	}
+	out.Lost = chosen.lost || len(out.Record.Objects) < len(in.Record.Objects)
+	out.Redraws = chosen.d.Redraws
+	return out, nil
+}
+
+// readObjects returns the instances that a text or number target of defs
+// reads (glyphs of its classes) and the name of one such target.
+func readObjects(objs []manifest.Object, defs []manifest.TargetDef) (map[int]bool, string) {
+	out := map[int]bool{}
+	name := ""
+	for _, t := range defs {
+		if t.Kind != "text" && t.Kind != "number" {
+			continue
+		}
+		want := map[string]bool{}
+		for _, c := range t.Classes {
+			want[c] = true
+		}
+		for _, o := range objs {
+			if o.Area > 0 && o.Glyph != "" && (len(t.Classes) == 0 || want[o.ClassName]) {
+				out[o.Instance] = true
+				if name == "" {
+					name = t.Name
 				}
 			}
 		}
 	}
-	// The last try's warped instance mask and kept fractions are what render
-	// would compute again from the same matrix; it takes them over.
-	return p.render(in, d, defs, inst, frac)
+	return out, name
+}
+
+// frameFates says, for each object of the source, what the copy's matrix
+// does to it: whole when the centers of all its pixels map inside the w×h
+// frame ("fully inside": all of the object's pixels) and some of it shows,
+// lost when they do but the warp shows none of it, out when none maps inside
+// and none shows, cut otherwise. stats are the warped instance mask's.
+func frameFates(objs []manifest.Object, src *image.Gray16, stats map[int]*manifest.InstanceStats, m Mat, w, h int) map[int]int {
+	inside, total := map[int]int{}, map[int]int{}
+	b := src.Bounds()
+	fw, fh := float64(w), float64(h)
+	for y := b.Min.Y; y < b.Max.Y; y++ {
+		row := src.Pix[(y-b.Min.Y)*src.Stride:]
+		for x := b.Min.X; x < b.Max.X; x++ {
+			i := 2 * (x - b.Min.X)
+			id := int(row[i])<<8 | int(row[i+1])
+			if id == 0 {
+				continue
+			}
+			total[id]++
+			X, Y := m.Apply(float64(x)+0.5, float64(y)+0.5)
+			if X >= 0 && X < fw && Y >= 0 && Y < fh {
+				inside[id]++
+			}
+		}
+	}
+	out := make(map[int]int, len(objs))
+	for _, o := range objs {
+		if o.Area == 0 {
+			continue
+		}
+		shows := stats[o.Instance] != nil
+		switch n := inside[o.Instance]; {
+		case n == total[o.Instance] && shows:
+			out[o.Instance] = fateWhole
+		case n == total[o.Instance]:
+			out[o.Instance] = fateLost
+		case n == 0 && !shows:
+			out[o.Instance] = fateOut
+		default:
+			out[o.Instance] = fateCut
+		}
+	}
+	return out
+}
+
+// cutoutHides reports whether a cutout step of d that marks its pixels
+// "ignore" would hide pixels of an object in the warped instance mask.
+func cutoutHides(d *Drawn, inst *image.Gray16) bool {
+	for i := range d.Pixels {
+		op := &d.Pixels[i]
+		if op.Do != "cutout" || op.Str("classes") != "ignore" {
+			continue
+		}
+		rects, err := CutoutRects(op)
+		if err != nil {
+			return true
+		}
+		for _, r := range rects {
+			x0, y0, x1, y1 := cutoutBounds(r, d.W, d.H)
+			for y := y0; y < y1; y++ {
+				for x := x0; x < x1; x++ {
+					o := y*inst.Stride + 2*x
+					if inst.Pix[o] != 0 || inst.Pix[o+1] != 0 {
+						return true
+					}
+				}
+			}
+		}
+	}
+	return false
 }
 
 // Rebuild makes a copy again from its lineage alone (the composed matrix and
@@ -100,7 +265,7 @@ func cloneOps(ops []manifest.LineageOp) []manifest.LineageOp {
 func (p *Plan) render(in *Input, d *Drawn, defs []manifest.TargetDef, inst *image.Gray16, frac map[int]float64) (*Output, error) {
 	if inst == nil {
 		inst = WarpInstances(in.Inst, d.M, d.W, d.H)
-		frac = keptFractions(in.Record.Objects, inst, d.M)
+		frac = keptFractions(in.Record.Objects, manifest.MeasureInstances(inst), d.M)
 	}
 	g := &p.Geometry
 	min := *g.Cuts.LeastShown
@@ -173,9 +338,9 @@ func (p *Plan) render(in *Input, d *Drawn, defs []manifest.TargetDef, inst *imag
 }
 
 // keptFractions returns, for each object of the source, the share of its
-// pixels that survive the warp: warped area / (source area · |det M|).
-func keptFractions(objs []manifest.Object, inst *image.Gray16, m Mat) map[int]float64 {
-	stats := manifest.MeasureInstances(inst)
+// pixels that survive the warp: warped area / (source area · |det M|);
+// stats are the warped instance mask's.
+func keptFractions(objs []manifest.Object, stats map[int]*manifest.InstanceStats, m Mat) map[int]float64 {
 	scale := math.Abs(m.Det())
 	out := make(map[int]float64, len(objs))
 	for _, o := range objs {
@@ -319,12 +484,7 @@ func CutoutRects(op *manifest.LineageOp) ([]Rect, error) {
 // mask pixels become the ignore id and lose their instance.
 func cutout(img *Image, mask *image.Paletted, inst *image.Gray16, v float32, ignore bool, rects []Rect) {
 	for _, r := range rects {
-		w, h := r.W, r.H
-		cx, cy := r.U*float64(img.W), r.V*float64(img.H)
-		x0, y0 := int(math.Round(cx-w/2)), int(math.Round(cy-h/2))
-		x1, y1 := int(math.Round(cx+w/2)), int(math.Round(cy+h/2))
-		x0, y0 = max(x0, 0), max(y0, 0)
-		x1, y1 = min(x1, img.W), min(y1, img.H)
+		x0, y0, x1, y1 := cutoutBounds(r, img.W, img.H)
 		for y := y0; y < y1; y++ {
 			for x := x0; x < x1; x++ {
 				for c := 0; c < img.C; c++ {
@@ -338,4 +498,13 @@ func cutout(img *Image, mask *image.Paletted, inst *image.Gray16, v float32, ign
 			}
 		}
 	}
+}
+
+// cutoutBounds is the pixel rectangle [x0, x1) × [y0, y1) a cutout
+// rectangle covers on a W×H canvas.
+func cutoutBounds(r Rect, W, H int) (x0, y0, x1, y1 int) {
+	cx, cy := r.U*float64(W), r.V*float64(H)
+	x0, y0 = int(math.Round(cx-r.W/2)), int(math.Round(cy-r.H/2))
+	x1, y1 = int(math.Round(cx+r.W/2)), int(math.Round(cy+r.H/2))
+	return max(x0, 0), max(y0, 0), min(x1, W), min(y1, H)
 }

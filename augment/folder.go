@@ -95,7 +95,10 @@ type Folder struct {
 	Invariance  map[int]Invariance
 	Sources     []*Source
 	TargetNames []string // labels.csv columns other than id, in file order
-	Skipped     []string // with ReadFolderSkipping: the sources left out, each with its error
+	// Columns is columns.json: what each labels.csv column means (nil
+	// without it: every column undeclared).
+	Columns *Columns
+	Skipped []string // with ReadFolderSkipping: the sources left out, each with its error
 
 	names     map[int]string // class id → name
 	known     map[int]bool   // class ids
@@ -317,22 +320,48 @@ func scanFolder(dir string, maxPixels int, skip bool, each func(s *Source, files
 	if err != nil {
 		return nil, err
 	}
+	cols, err := readFolderColumns(filepath.Join(dir, folderColumnsFile), classes)
+	if err != nil {
+		return nil, err
+	}
 	var targetNames []string
 	targets := map[string]map[string]manifest.Value{}
+	var lines map[string]int
 	lp := filepath.Join(dir, folderLabelsFile)
 	if _, err := os.Lstat(lp); err == nil {
-		if targetNames, targets, err = readFolderLabels(lp, images); err != nil {
+		if targetNames, targets, lines, err = readFolderLabels(lp, images, cols); err != nil {
 			return nil, err
 		}
 	} else if !errors.Is(err, fs.ErrNotExist) {
 		return nil, err
+	}
+	if cols != nil {
+		inCSV := map[string]bool{}
+		for _, n := range targetNames {
+			inCSV[n] = true
+		}
+		for _, n := range sortedKeys(cols.Columns) {
+			if cols.Columns[n].Kind == "image" && !inCSV[n] {
+				return nil, fmt.Errorf("%s: columns.%s is an image column, but %s has no column %q; an image column is carried from labels.csv", filepath.Join(dir, folderColumnsFile), n, folderLabelsFile, n)
+			}
+		}
+	}
+	// The class names and glyphs of objects, before the class table is
+	// complete (without classes.json it is class-<id>).
+	nameOf := func(id int) string { return fmt.Sprintf("class-%d", id) }
+	if classes != nil {
+		byID := map[int]string{}
+		for _, c := range classes {
+			byID[c.ID] = c.Name
+		}
+		nameOf = func(id int) string { return byID[id] }
 	}
 	known := map[int]bool{}
 	for _, c := range classes {
 		known[c.ID] = true
 	}
 
-	f := &Folder{Dir: dir, Invariance: inv, TargetNames: targetNames}
+	f := &Folder{Dir: dir, Invariance: inv, TargetNames: targetNames, Columns: cols}
 	var seen [256]bool // class ids found in the masks
 	classOf := make([]int32, folderMaxInstanceID+1)
 	where := make([]int32, folderMaxInstanceID+1)
@@ -353,6 +382,11 @@ func scanFolder(dir string, maxPixels int, skip bool, each func(s *Source, files
 		}
 		if t := targets[stem]; t != nil {
 			s.Targets = t
+		}
+		if cols != nil {
+			if err := cols.checkSource(s, nameOf, filepath.Join(dir, folderLabelsFile), lines[stem]); err != nil {
+				return nil, err
+			}
 		}
 		if each == nil {
 			f.Sources = append(f.Sources, s)
@@ -382,11 +416,12 @@ func scanFolder(dir string, maxPixels int, skip bool, each func(s *Source, files
 }
 
 // finishSource gives a source read by scanFolder the folder's palette and
-// its objects their class names.
+// its objects their class names and declared glyphs.
 func (f *Folder) finishSource(s *Source) {
 	s.Mask.Palette = f.palette
 	for i := range s.Objects {
 		s.Objects[i].ClassName = f.names[s.Objects[i].Class]
+		s.Objects[i].Glyph = f.Columns.glyph(s.Objects[i].ClassName)
 	}
 }
 
@@ -1123,15 +1158,20 @@ func folderComponents(mask *image.Paletted) (ids *image.Gray16, classes []int32,
 }
 
 // readFolderLabels reads labels.csv for the given stems (stem → image file)
-// and returns the target names in column order and each stem's targets.
-func readFolderLabels(p string, stems map[string]string) ([]string, map[string]map[string]manifest.Value, error) {
+// and returns the target names in column order, each stem's targets and
+// each stem's line. A column columns.json declares numeric (a derived
+// column other than text, an image column of type number) must hold numbers
+// and one declared text stays text; an undeclared column is numeric when
+// every cell is a number, text when most are not, and refused when most
+// cells are numbers but some are not (a typo in a numeric column).
+func readFolderLabels(p string, stems map[string]string, cols *Columns) ([]string, map[string]map[string]manifest.Value, map[string]int, error) {
 	f, err := safefile.Open(p)
 	if err != nil {
-		return nil, nil, err
+		return nil, nil, nil, err
 	}
 	defer f.Close()
 	if st, err := f.Stat(); err == nil && st.Size() > maxLabelsBytes {
-		return nil, nil, fmt.Errorf("%s: %d bytes; a labels table may hold at most %d", p, st.Size(), maxLabelsBytes)
+		return nil, nil, nil, fmt.Errorf("%s: %d bytes; a labels table may hold at most %d", p, st.Size(), maxLabelsBytes)
 	}
 	lr := &lineLimit{r: io.LimitReader(f, maxLabelsBytes+1), max: maxLabelLineBytes}
 	r := csv.NewReader(bufio.NewReader(lr))
@@ -1150,36 +1190,36 @@ func readFolderLabels(p string, stems map[string]string) ([]string, map[string]m
 	r.FieldsPerRecord = -1 // checked below with a clearer message
 	header, err := r.Read()
 	if err == io.EOF && lr.total <= maxLabelsBytes {
-		return nil, nil, fmt.Errorf("%s: empty: a header row with an \"id\" column is required", p)
+		return nil, nil, nil, fmt.Errorf("%s: empty: a header row with an \"id\" column is required", p)
 	}
 	if err != nil {
-		return nil, nil, tooLong(err)
+		return nil, nil, nil, tooLong(err)
 	}
 	if len(header) > maxLabelColumns {
-		return nil, nil, fmt.Errorf("%s:1: %d columns; a labels table may have at most %d (an id and the targets)", p, len(header), maxLabelColumns)
+		return nil, nil, nil, fmt.Errorf("%s:1: %d columns; a labels table may have at most %d (an id and the targets)", p, len(header), maxLabelColumns)
 	}
 	header[0] = strings.TrimPrefix(header[0], "\ufeff")
 	idCol := -1
-	cols := map[string]int{}
+	colAt := map[string]int{}
 	for j, name := range header {
 		name = strings.TrimSpace(name)
 		header[j] = name
 		if name == "" {
-			return nil, nil, fmt.Errorf("%s:1: column %d has no name", p, j+1)
+			return nil, nil, nil, fmt.Errorf("%s:1: column %d has no name", p, j+1)
 		}
 		if err := checkTargetName(name); err != nil {
-			return nil, nil, fmt.Errorf("%s:1: column %d: %w", p, j+1, err)
+			return nil, nil, nil, fmt.Errorf("%s:1: column %d: %w", p, j+1, err)
 		}
-		if prev, dup := cols[name]; dup {
-			return nil, nil, fmt.Errorf("%s:1: columns %d and %d are both named %q", p, prev+1, j+1, name)
+		if prev, dup := colAt[name]; dup {
+			return nil, nil, nil, fmt.Errorf("%s:1: columns %d and %d are both named %q", p, prev+1, j+1, name)
 		}
-		cols[name] = j
+		colAt[name] = j
 		if name == "id" {
 			idCol = j
 		}
 	}
 	if idCol < 0 {
-		return nil, nil, fmt.Errorf("%s:1: no \"id\" column in the header (%s); the id column holds each image's file stem", p, strings.Join(header, ","))
+		return nil, nil, nil, fmt.Errorf("%s:1: no \"id\" column in the header (%s); the id column holds each image's file stem", p, strings.Join(header, ","))
 	}
 	type row struct {
 		line  int
@@ -1194,32 +1234,32 @@ func readFolderLabels(p string, stems map[string]string) ([]string, map[string]m
 			break
 		}
 		if err != nil {
-			return nil, nil, tooLong(err)
+			return nil, nil, nil, tooLong(err)
 		}
 		line, _ := r.FieldPos(0)
 		for j := range rec {
 			rec[j] = strings.TrimSpace(rec[j])
 		}
 		if len(rec) != len(header) {
-			return nil, nil, fmt.Errorf("%s:%d: row has %d fields but the header has %d columns", p, line, len(rec), len(header))
+			return nil, nil, nil, fmt.Errorf("%s:%d: row has %d fields but the header has %d columns", p, line, len(rec), len(header))
 		}
 		id := rec[idCol]
 		if id == "" {
-			return nil, nil, fmt.Errorf("%s:%d: empty id", p, line)
+			return nil, nil, nil, fmt.Errorf("%s:%d: empty id", p, line)
 		}
 		if err := manifest.SafeName("id", id); err != nil {
-			return nil, nil, fmt.Errorf("%s:%d: %w; the id column holds each image's file stem", p, line, err)
+			return nil, nil, nil, fmt.Errorf("%s:%d: %w; the id column holds each image's file stem", p, line, err)
 		}
 		if _, ok := stems[id]; !ok {
-			return nil, nil, fmt.Errorf("%s:%d: id %q matches no image in %s/", p, line, id, manifest.ImagesDir)
+			return nil, nil, nil, fmt.Errorf("%s:%d: id %q matches no image in %s/", p, line, id, manifest.ImagesDir)
 		}
 		if prev, dup := lineOf[id]; dup {
-			return nil, nil, fmt.Errorf("%s:%d: id %q already has a row on line %d", p, line, id, prev)
+			return nil, nil, nil, fmt.Errorf("%s:%d: id %q already has a row on line %d", p, line, id, prev)
 		}
 		lineOf[id] = line
 		for j, cell := range rec {
 			if cell == "" {
-				return nil, nil, fmt.Errorf("%s:%d: column %q is empty for id %q; every cell needs a value", p, line, header[j], id)
+				return nil, nil, nil, fmt.Errorf("%s:%d: column %q is empty for id %q; every cell needs a value", p, line, header[j], id)
 			}
 		}
 		rows = append(rows, row{line, id, rec})
@@ -1237,7 +1277,7 @@ func readFolderLabels(p string, stems map[string]string) ([]string, map[string]m
 			more = fmt.Sprintf(" and %d more", len(missing)-3)
 			missing = missing[:3]
 		}
-		return nil, nil, fmt.Errorf("%s: no row for %s%s; every image needs a row", p, folderQuoted(missing), more)
+		return nil, nil, nil, fmt.Errorf("%s: no row for %s%s; every image needs a row", p, folderQuoted(missing), more)
 	}
 
 	targets := make(map[string]map[string]manifest.Value, len(rows))
@@ -1250,18 +1290,33 @@ func readFolderLabels(p string, stems map[string]string) ([]string, map[string]m
 			continue
 		}
 		names = append(names, name)
-		numeric := true
+		want := cols.columnType(name)
 		nums := make([]float64, len(rows))
+		bad := -1 // the first row whose cell is not a number
+		numbers := 0
 		for i, rw := range rows {
 			v, err := strconv.ParseFloat(rw.cells[j], 64)
 			// An overflowing number (1e999) stays a number and is refused
 			// below as not finite, like inf, rather than turning the column
 			// into text.
 			if err != nil && !(errors.Is(err, strconv.ErrRange) && math.IsInf(v, 0)) {
-				numeric = false
-				break
+				if bad < 0 {
+					bad = i
+				}
+				continue
 			}
+			numbers++
 			nums[i] = v
+		}
+		numeric := bad < 0
+		switch {
+		case want == "text":
+			numeric = false
+		case want == "number" && bad >= 0:
+			return nil, nil, nil, fmt.Errorf("%s:%d: column %q: %q is not a number; %s declares the column numeric", p, rows[bad].line, name, rows[bad].cells[j], folderColumnsFile)
+		case want == "" && bad >= 0 && 2*numbers > len(rows):
+			return nil, nil, nil, fmt.Errorf(`%s:%d: column %q: %q is not a number, but %d of the column's %d cells are; fix the cell, or declare the column text in %s ({"columns": {%q: {"kind": "image", "type": "text"}}})`,
+				p, rows[bad].line, name, rows[bad].cells[j], numbers, len(rows), folderColumnsFile, name)
 		}
 		for i, rw := range rows {
 			if !numeric {
@@ -1269,10 +1324,10 @@ func readFolderLabels(p string, stems map[string]string) ([]string, map[string]m
 				continue
 			}
 			if math.IsNaN(nums[i]) || math.IsInf(nums[i], 0) {
-				return nil, nil, fmt.Errorf("%s:%d: column %q: %q is not a finite number", p, rw.line, name, rw.cells[j])
+				return nil, nil, nil, fmt.Errorf("%s:%d: column %q: %q is not a finite number", p, rw.line, name, rw.cells[j])
 			}
 			targets[rw.id][name] = manifest.Number(nums[i])
 		}
 	}
-	return names, targets, nil
+	return names, targets, lineOf, nil
 }

@@ -35,14 +35,19 @@ type RunOptions struct {
 	Workers          int      // default runtime.NumCPU()
 	AllowLabelChange bool     // run plans that break a class's declared invariance
 	Force            bool
-	MaxPixels        int         // pixel budget per input image; default DefaultMaxPixels
-	SplitSpec        string      // plain folders only: how sources are dealt to splits
-	Stratify         string      // plain folders only: stratification key
-	OnError          string      // "fail" (default): a bad source stops the run; "skip": it is left out and listed
-	Resume           bool        // continue an interrupted run of the same input, plan, seed and options in Out
-	FS               manifest.FS // nil = the real file system
-	Version          string
-	Progress         func(done, total int)
+	MaxPixels        int    // pixel budget per input image; default DefaultMaxPixels
+	SplitSpec        string // plain folders only: how sources are dealt to splits
+	Stratify         string // plain folders only: stratification key
+	OnError          string // "fail" (default): a bad source stops the run; "skip": it is left out and listed
+	Resume           bool   // continue an interrupted run of the same input, plan, seed and options in Out
+	// AcceptStale writes copies that lost, cut or dropped objects although
+	// the sources carry labels.csv columns columns.json does not declare;
+	// such records name those columns in stale_targets. Without it such
+	// copies are drawn again (within cuts.tries) and otherwise not written.
+	AcceptStale bool
+	FS          manifest.FS // nil = the real file system
+	Version     string
+	Progress    func(done, total int)
 }
 
 // DefaultMaxPixels bounds one input image (width × height).
@@ -59,6 +64,24 @@ type Summary struct {
 	Elapsed                  time.Duration
 	Bytes                    int64
 	Splits                   manifest.SplitTable
+	// Fallbacks counts, per source split that got copies, what the cuts
+	// policy and the label rules did (as dataset.json's augment.fallbacks).
+	Fallbacks map[string]*manifest.Fallbacks
+	// NotWritten lists copies that were not written, each with why (this
+	// run's only; at most maxNotWrittenNotes), and Undeclared the labels.csv
+	// columns columns.json does not declare.
+	NotWritten []string
+	Undeclared []string
+}
+
+// maxNotWrittenNotes bounds Summary.NotWritten.
+const maxNotWrittenNotes = 20
+
+// jobStats is what producing one source did to its copies.
+type jobStats struct {
+	records int // written, the original included
+	fb      manifest.Fallbacks
+	notes   []string
 }
 
 // source is one input sample: its record, and how to get its pixels and
@@ -93,6 +116,9 @@ type input struct {
 	skipped   []string // sources left out, with their errors
 	folder    *Folder  // a plain folder, to read each source again
 	budget    *pixelBudget
+	// A plain folder's labels.csv columns that columns.json declares image
+	// properties (carried as is), and those it does not declare at all.
+	imageCols, undeclared []string
 }
 
 // Run augments a trueset dataset or a plain labeled folder into a new trueset
@@ -144,6 +170,9 @@ func Run(ctx context.Context, o RunOptions) (Summary, error) {
 			return Summary{}, err
 		}
 	}
+	if err := CheckReadingCuts(o.Plan, in.defs); err != nil {
+		return Summary{}, err
+	}
 	// Names, canvas sizes and record sizes are checked before anything is
 	// written: a run that would fail on them fails at once.
 	if err := in.checkBeforeWriting(o, augmented); err != nil {
@@ -171,10 +200,11 @@ func Run(ctx context.Context, o RunOptions) (Summary, error) {
 	if o.Resume {
 		w, resumed, err = manifest.Resume(o.Out, co, func(n int) int {
 			// Keep whole sources only: the last job may be half appended.
-			for startJob < len(in.srcs) && first[startJob+1] <= n {
-				startJob++
-			}
-			return first[startJob]
+			// Copies that were not written leave gaps, so the sources are
+			// found by their records' ids.
+			var keep int
+			startJob, keep = keptSources(o.Out, in, n)
+			return keep
 		})
 	} else {
 		w, err = manifest.CreateWith(o.Out, co)
@@ -187,25 +217,52 @@ func Run(ctx context.Context, o RunOptions) (Summary, error) {
 	if err != nil {
 		return Summary{}, err
 	}
-	counts := map[string]int{}
-	for i, s := range in.srcs {
-		counts[s.rec.Split] += first[i+1] - first[i]
+	stats := make([]jobStats, len(in.srcs))
+	if startJob > 0 {
+		kept, err := keptStats(o.Out, in, startJob, first)
+		if err != nil {
+			w.Abort()
+			return Summary{}, err
+		}
+		copy(stats, kept)
 	}
+	rules := CopyRules{Whole: len(in.undeclared) > 0 && !o.AcceptStale}
 	newProduce := func() manifest.Produce {
 		enc := manifest.NewEncoder()
 		return func(i int) ([]*manifest.Record, int64, error) {
-			return in.produce(i, first[i], first[i+1]-first[i]-1, digits, o, enc, w)
+			return in.produce(i, first[i], first[i+1]-first[i]-1, digits, o, rules, &stats[i], enc, w)
 		}
 	}
 	done, bytesOut, err := manifest.RunOrdered(ctx, startJob, len(in.srcs), o.Workers, newProduce, w, o.Progress)
 	done += startJob
-	sum := Summary{Sources: done, Records: first[done], Copies: first[done] - done, Bytes: bytesOut, Resumed: resumed, Skipped: in.skipped}
+	sum := Summary{Sources: done, Bytes: bytesOut, Resumed: resumed, Skipped: in.skipped, Undeclared: in.undeclared, Fallbacks: map[string]*manifest.Fallbacks{}}
+	counts := map[string]int{}
+	for i := 0; i < done; i++ {
+		st := &stats[i]
+		sp := in.srcs[i].rec.Split
+		sum.Records += st.records
+		counts[sp] += st.records
+		if augmented[sp] && o.Copies > 0 {
+			if sum.Fallbacks[sp] == nil {
+				sum.Fallbacks[sp] = &manifest.Fallbacks{}
+			}
+			sum.Fallbacks[sp].Add(st.fb)
+		}
+		for _, n := range st.notes {
+			if len(sum.NotWritten) < maxNotWrittenNotes {
+				sum.NotWritten = append(sum.NotWritten, n)
+			}
+		}
+	}
+	sum.Copies = sum.Records - done
 	if err != nil {
 		w.Abort()
 		sum.Elapsed = time.Since(start)
 		return sum, err
 	}
-	d := in.dataset(o, total, counts)
+	_ = total
+	d := in.dataset(o, sum.Records, counts)
+	d.Augment.Fallbacks = sum.Fallbacks
 	n, err := w.Finish(d)
 	sum.Bytes += n
 	sum.Splits = d.Splits
@@ -281,7 +338,8 @@ func (in *input) marker(o RunOptions) ([]byte, error) {
 		Splits      []string `json:"splits"`
 		OnError     string   `json:"on_error"`
 		Allow       bool     `json:"allow_label_change"`
-	}{"augment", o.Version, hex.EncodeToString(plan[:]), hex.EncodeToString(h.Sum(nil)), o.Seed, o.Copies, o.Splits, o.OnError, o.AllowLabelChange})
+		AcceptStale bool     `json:"accept_stale_columns,omitempty"`
+	}{"augment", o.Version, hex.EncodeToString(plan[:]), hex.EncodeToString(h.Sum(nil)), o.Seed, o.Copies, o.Splits, o.OnError, o.AllowLabelChange, o.AcceptStale})
 }
 
 // RunPixels is the pixel budget of a whole run given the budget of one input
@@ -385,7 +443,8 @@ func (in *input) dataset(o RunOptions, total int, counts map[string]int) *manife
 	info := &manifest.AugmentInfo{
 		Plan: o.Plan.JSON(), PlanSHA256: hex.EncodeToString(sum[:]), Seed: o.Seed, Copies: o.Copies,
 		Splits: o.Splits, Source: in.kind, SourceSamples: len(in.srcs), AllowedChanges: o.AllowLabelChange,
-		Skipped: in.skipped,
+		Skipped: in.skipped, ImageColumns: in.imageCols, UndeclaredColumns: in.undeclared,
+		AcceptStale: o.AcceptStale && len(in.undeclared) > 0,
 	}
 	t := in.splits
 	t.Counts = map[string]int{}
@@ -429,7 +488,7 @@ func (in *input) dataset(o RunOptions, total int, counts map[string]int) *manife
 // run's pixel budget, and reads every file it uses once: a trueset source's
 // files are checked against the record's SHA-256 and its labels against its
 // masks; a plain source is read again and checked against its first read.
-func (in *input) produce(i, index, copies, digits int, o RunOptions, enc *manifest.Encoder, w *manifest.Writer) ([]*manifest.Record, int64, error) {
+func (in *input) produce(i, index, copies, digits int, o RunOptions, rules CopyRules, st *jobStats, enc *manifest.Encoder, w *manifest.Writer) ([]*manifest.Record, int64, error) {
 	s := in.srcs[i]
 	held := in.budget.take(s.weight)
 	defer in.budget.give(held)
@@ -452,14 +511,37 @@ func (in *input) produce(i, index, copies, digits int, o RunOptions, enc *manife
 		return nil, n, err
 	}
 	recs := []*manifest.Record{&orig}
+	*st = jobStats{records: 1}
+	st.fb.Planned = copies
 	for k := 1; k <= copies; k++ {
-		out, err := o.Plan.Copy(src, o.Seed, i, k, in.defs)
+		out, err := o.Plan.CopyWith(src, o.Seed, i, k, in.defs, rules)
 		if err != nil {
 			return nil, n, err
 		}
+		id := copyID(s.rec.ID, k, digits)
+		if out.NotWritten != "" {
+			st.fb.NotWritten++
+			st.notes = append(st.notes, fmt.Sprintf("%s: not written: %s", id, out.NotWritten))
+			continue
+		}
 		rec := &out.Record
-		rec.ID = copyID(s.rec.ID, k, digits)
+		rec.ID = id
+		// The index is the copy's place in the plan: a copy that was not
+		// written leaves its index and id unused.
 		rec.Index = index + k
+		if out.Lost && len(in.undeclared) > 0 {
+			rec.StaleTargets = append([]string(nil), in.undeclared...)
+			st.fb.Stale++
+		}
+		st.fb.Written++
+		if out.Redraws > 0 {
+			st.fb.Redrawn++
+		}
+		if c := rec.Lineage.Cuts; c != nil && c.Dropped > 0 {
+			st.fb.Dropped++
+			st.fb.DroppedObjects += c.Dropped
+		}
+		st.records++
 		m, err := w.WriteFiles(rec, enc, out.Image, out.Mask, out.Inst)
 		n += m
 		if err != nil {
@@ -871,7 +953,8 @@ func (in *input) checkComplete(o RunOptions) error {
 		return refuse("it describes no augmentation")
 	case a.PlanSHA256 != hex.EncodeToString(plan[:]):
 		return refuse("it was made with another plan")
-	case a.Seed != o.Seed || a.Copies != o.Copies || !slices.Equal(a.Splits, o.Splits) || a.Source != in.kind || a.AllowedChanges != o.AllowLabelChange:
+	case a.Seed != o.Seed || a.Copies != o.Copies || !slices.Equal(a.Splits, o.Splits) || a.Source != in.kind || a.AllowedChanges != o.AllowLabelChange ||
+		a.AcceptStale != (o.AcceptStale && len(in.undeclared) > 0):
 		return refuse("it was made with other options (seed %d, copies %d, splits %v)", a.Seed, a.Copies, a.Splits)
 	case in.base != nil && a.SourceSHA256 != in.base.ManifestSHA256:
 		return refuse("it was made from another input")
@@ -944,8 +1027,30 @@ func readPlain(o RunOptions) (*input, error) {
 	}
 	in := &input{kind: "plain", dir: o.In, classes: classes, targets: append([]string(nil), f.TargetNames...), seed: o.Seed, skipped: f.Skipped, maxPixels: o.MaxPixels, folder: f}
 	taken := map[string]bool{}
+	// Declared derived columns are targets computed from the masks; image
+	// columns are carried as is; the rest are undeclared.
+	cols := f.Columns
 	for _, n := range f.TargetNames {
-		taken[n] = true
+		switch {
+		case cols != nil && cols.Columns[n].Derived():
+			taken[n] = true
+			in.defs = append(in.defs, cols.def(n))
+		case cols != nil && cols.Columns[n].Kind == "image":
+			taken[n] = true
+			in.imageCols = append(in.imageCols, n)
+		default:
+			taken[n] = true
+			in.undeclared = append(in.undeclared, n)
+		}
+	}
+	if cols != nil {
+		for _, n := range sortedKeys(cols.Columns) {
+			if cols.Columns[n].Derived() && !taken[n] {
+				taken[n] = true
+				in.defs = append(in.defs, cols.def(n))
+				in.targets = append(in.targets, n)
+			}
+		}
 	}
 	// Counts computed from the masks, so copies that lose objects stay true.
 	addDef := func(d manifest.TargetDef) {
@@ -969,6 +1074,7 @@ func readPlain(o RunOptions) (*input, error) {
 		s := k.src
 		for j := range s.Objects {
 			s.Objects[j].ClassName = f.names[s.Objects[j].Class]
+			s.Objects[j].Glyph = cols.glyph(s.Objects[j].ClassName)
 		}
 		rec := manifest.Record{ID: s.ID, Group: s.ID, Width: k.w, Height: k.h, Objects: s.Objects, Targets: map[string]manifest.Value{}}
 		for k, v := range s.Targets {

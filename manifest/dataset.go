@@ -55,6 +55,44 @@ type AugmentInfo struct {
 	SourceSamples  int             `json:"source_samples"`
 	AllowedChanges bool            `json:"allow_label_change,omitempty"`
 	Skipped        []string        `json:"skipped,omitempty"`
+	// A plain folder's labels.csv columns by what columns.json says of
+	// them: image properties carried as is, and columns it does not
+	// declare; AcceptStale says copies may carry those stale (marked in
+	// their records' stale_targets).
+	ImageColumns      []string `json:"image_columns,omitempty"`
+	UndeclaredColumns []string `json:"undeclared_columns,omitempty"`
+	AcceptStale       bool     `json:"accept_stale_columns,omitempty"`
+	// Fallbacks counts, per source split, what the cuts policy and the
+	// label rules did to the copies (issue 12).
+	Fallbacks map[string]*Fallbacks `json:"fallbacks,omitempty"`
+}
+
+// Fallbacks counts what happened to the copies of one split's sources:
+// Planned copies (sources × --copies), Written, Redrawn (written copies
+// drawn again at least once), Dropped (written copies that dropped objects
+// cut below least_shown) and DroppedObjects, NotWritten (no draw within
+// cuts.tries kept every reading whole, or every object where undeclared
+// columns are carried) and Stale (written copies carrying undeclared
+// columns marked stale).
+type Fallbacks struct {
+	Planned        int `json:"planned"`
+	Written        int `json:"written"`
+	Redrawn        int `json:"redrawn"`
+	Dropped        int `json:"dropped"`
+	DroppedObjects int `json:"dropped_objects"`
+	NotWritten     int `json:"not_written"`
+	Stale          int `json:"stale"`
+}
+
+// Add adds b's counts to f.
+func (f *Fallbacks) Add(b Fallbacks) {
+	f.Planned += b.Planned
+	f.Written += b.Written
+	f.Redrawn += b.Redrawn
+	f.Dropped += b.Dropped
+	f.DroppedObjects += b.DroppedObjects
+	f.NotWritten += b.NotWritten
+	f.Stale += b.Stale
 }
 
 // SplitTable holds the split ratios, the resulting sample counts, and the

@@ -32,6 +32,11 @@ type Record struct {
 	HeldOut  string    `json:"held_out,omitempty"`
 	Mislabel *Mislabel `json:"mislabel,omitempty"`
 	Bait     *BaitMark `json:"bait,omitempty"`
+	// StaleTargets names the targets an augmented copy carries over
+	// unchanged although it lost, cut or dropped objects, so they may be
+	// false (undeclared labels.csv columns, accepted with
+	// --accept-stale-columns). Absent otherwise.
+	StaleTargets []string `json:"stale_targets,omitempty"`
 }
 
 // Object is one instance in a sample. Instance, Class, Parent, Box, Area,

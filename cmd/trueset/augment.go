@@ -10,6 +10,7 @@ import (
 	"os/signal"
 	"path/filepath"
 	"runtime"
+	"sort"
 	"strings"
 	"syscall"
 
@@ -35,6 +36,7 @@ type augmentOptions struct {
 	onError       string
 	resume        bool
 	json          bool
+	acceptStale   bool
 }
 
 func newAugmentCmd(stdout, stderr io.Writer) *cobra.Command {
@@ -88,6 +90,7 @@ A plan that would break a class's declared invariance (a flipped glyph, a
 	f.IntVar(&o.maxPixels, "max-pixels", augment.DefaultMaxPixels, "refuse input images with more pixels than this")
 	f.StringVar(&o.ratios, "ratios", "", "plain folders: split names and ratios adding up to 1 (default "+manifest.DefaultSplits+")")
 	f.StringVar(&o.strat, "stratify", "", "plain folders: stratify by a labels.csv column, count_<class>, class:NAME or classes")
+	f.BoolVar(&o.acceptStale, "accept-stale-columns", false, "plain folders: write copies that lost, cut or dropped objects even though labels.csv has columns columns.json does not declare; their records list those columns in stale_targets (default: such copies are drawn again within cuts.tries, else not written)")
 	f.BoolVar(&o.json, "json", false, "print the summary as one JSON document on stdout instead of text (errors still go to stderr)")
 	return cmd
 }
@@ -110,6 +113,13 @@ type augmentJSON struct {
 	Seconds float64             `json:"seconds"`
 	Bytes   int64               `json:"bytes"`
 	Splits  manifest.SplitTable `json:"splits"`
+	// Fallbacks: per source split that got copies, what the cuts policy and
+	// the label rules did (as dataset.json's augment.fallbacks);
+	// NotWritten: the copies not written, with why (at most 20);
+	// Undeclared: labels.csv columns columns.json does not declare.
+	Fallbacks  map[string]*manifest.Fallbacks `json:"fallbacks"`
+	NotWritten []string                       `json:"not_written"`
+	Undeclared []string                       `json:"undeclared_columns"`
 }
 
 func runAugment(ctx context.Context, o *augmentOptions, stdout, stderr io.Writer) error {
@@ -182,7 +192,7 @@ func runAugment(ctx context.Context, o *augmentOptions, stdout, stderr io.Writer
 	opts := augment.RunOptions{
 		In: o.in, Out: o.out, Plan: plan, Copies: o.copies, Seed: o.seed, Splits: splits,
 		Workers: o.workers, AllowLabelChange: o.allow, Force: o.force, MaxPixels: o.maxPixels,
-		SplitSpec: o.ratios, Stratify: o.strat, OnError: o.onError, Resume: o.resume, Version: version,
+		SplitSpec: o.ratios, Stratify: o.strat, OnError: o.onError, Resume: o.resume, Version: version, AcceptStale: o.acceptStale,
 		Progress: func(done, total int) {
 			if bar == nil && !o.quiet && isTerminal(stderr) {
 				bar = newProgress(stderr, "augmenting", "samples", total, terminalWidth(stderr))
@@ -229,9 +239,16 @@ func runAugment(ctx context.Context, o *augmentOptions, stdout, stderr io.Writer
 	}
 	if o.json {
 		j := augmentJSON{Command: "augment", Dir: o.out, Input: o.in, Plan: plan.Name, Seed: o.seed, Sources: sum.Sources, Copies: sum.Copies,
-			Samples: sum.Records, Resumed: sum.Resumed, Skipped: sum.Skipped, Seconds: manifest.Round(sum.Elapsed.Seconds(), 3), Bytes: sum.Bytes, Splits: sum.Splits}
+			Samples: sum.Records, Resumed: sum.Resumed, Skipped: sum.Skipped, Seconds: manifest.Round(sum.Elapsed.Seconds(), 3), Bytes: sum.Bytes, Splits: sum.Splits,
+			Fallbacks: sum.Fallbacks, NotWritten: sum.NotWritten, Undeclared: sum.Undeclared}
 		if j.Skipped == nil {
 			j.Skipped = []string{}
+		}
+		if j.NotWritten == nil {
+			j.NotWritten = []string{}
+		}
+		if j.Undeclared == nil {
+			j.Undeclared = []string{}
 		}
 		return writeJSON(stdout, j)
 	}
@@ -246,6 +263,7 @@ func runAugment(ctx context.Context, o *augmentOptions, stdout, stderr io.Writer
 			fmt.Fprintf(stdout, "  %d %s skipped\n", len(sum.Skipped), manifest.Plural(len(sum.Skipped), "source", "sources"))
 		}
 		fmt.Fprintf(stdout, "  %s, %s, %s, plan %s, seed %d\n", seconds(secs), rate(sum.Copies, secs, "copies"), humanBytes(sum.Bytes), plan.Name, o.seed)
+		printFallbacks(stdout, sum, o.acceptStale)
 		printSplitTable(stdout, sum.Splits)
 	}
 	return nil
@@ -282,5 +300,44 @@ func writeAugmentDone(stdout io.Writer, o *augmentOptions) error {
 	if d.Augment != nil && d.Augment.Skipped != nil {
 		j.Skipped = d.Augment.Skipped
 	}
+	j.NotWritten, j.Undeclared = []string{}, []string{}
+	if d.Augment != nil {
+		j.Fallbacks = d.Augment.Fallbacks
+		if d.Augment.UndeclaredColumns != nil {
+			j.Undeclared = d.Augment.UndeclaredColumns
+		}
+	}
 	return writeJSON(stdout, j)
+}
+
+// printFallbacks says, per source split, what the cuts policy and the label
+// rules did to the copies: redrawn, with dropped objects, not written (with
+// the first reasons) and carrying stale columns.
+func printFallbacks(w io.Writer, sum augment.Summary, acceptStale bool) {
+	if len(sum.Undeclared) > 0 {
+		if acceptStale {
+			fmt.Fprintf(w, "  labels.csv columns without a declaration in columns.json: %s; --accept-stale-columns: copies that lost, cut or dropped objects carry them, listed in stale_targets\n", strings.Join(sum.Undeclared, ", "))
+		} else {
+			fmt.Fprintf(w, "  labels.csv columns without a declaration in columns.json: %s; copies that would lose, cut or drop an object are drawn again, else not written (declare the columns, or pass --accept-stale-columns)\n", strings.Join(sum.Undeclared, ", "))
+		}
+	}
+	var names []string
+	for n := range sum.Fallbacks {
+		names = append(names, n)
+	}
+	sort.Strings(names)
+	for _, n := range names {
+		f := sum.Fallbacks[n]
+		if f.Redrawn+f.Dropped+f.NotWritten+f.Stale == 0 {
+			continue
+		}
+		line := fmt.Sprintf("  %s: %d of %d copies written; %d redrawn, %d with dropped objects (%d objects), %d not written", n, f.Written, f.Planned, f.Redrawn, f.Dropped, f.DroppedObjects, f.NotWritten)
+		if f.Stale > 0 || acceptStale {
+			line += fmt.Sprintf(", %d with stale columns", f.Stale)
+		}
+		fmt.Fprintln(w, line)
+	}
+	for _, note := range sum.NotWritten {
+		fmt.Fprintf(w, "    %s\n", note)
+	}
 }
