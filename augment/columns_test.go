@@ -182,3 +182,39 @@ func TestDropRefusedForReadings(t *testing.T) {
 		}
 	}
 }
+
+// TestColumnsREADMEExample: the columns.json the README shows is valid for
+// the schema and for trueset, given the classes its scenario names.
+func TestColumnsREADMEExample(t *testing.T) {
+	b, err := os.ReadFile("../README.md")
+	if err != nil {
+		t.Fatal(err)
+	}
+	s := string(b)
+	i := strings.Index(s, "and its `columns.json`:\n\n```json\n")
+	if i < 0 {
+		t.Fatal("README.md has no columns.json example")
+	}
+	s = s[i+len("and its `columns.json`:\n\n```json\n"):]
+	doc := s[:strings.Index(s, "```")]
+	classes := []manifest.Class{{ID: 0, Name: "background"}, {ID: 1, Name: "washer"}}
+	for k := 0; k <= 9; k++ {
+		classes = append(classes, manifest.Class{ID: 2 + k, Name: "digit-" + string(rune('0'+k))})
+	}
+	p := filepath.Join(t.TempDir(), "columns.json")
+	writeFile(t, p, []byte(doc))
+	c, err := readFolderColumns(p, classes)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(c.Columns) != 5 || c.Columns["bin_code"].Kind != "text" {
+		t.Errorf("README example read as %+v", c)
+	}
+	inst, err := jsonschema.UnmarshalJSON(strings.NewReader(doc))
+	if err != nil {
+		t.Fatal(err)
+	}
+	if err := colCompile(t).Validate(inst); err != nil {
+		t.Errorf("the schema refuses the README example: %v", err)
+	}
+}

@@ -25,6 +25,17 @@
 //     (targets.go). Objects a crop or turn cuts below cuts.least_shown are
 //     avoided by drawing the copy again (redraw), or dropped — their pixels
 //     become "ignore" and the counts fall — never kept silently.
+//   - A copy never shortens a reading: a draw whose frame cuts an object a
+//     text or number target reads is drawn again under every policy, and a
+//     copy no draw keeps whole is not written; the drop policy is refused
+//     for plans that could cut such objects (CheckReadingCuts).
+//   - A plain folder's columns.json (columns.go) declares labels.csv
+//     columns derived (recomputed from the masks, checked against every
+//     source) or image properties (carried); undeclared columns are carried
+//     only into copies that lost, cut or dropped no object, unless
+//     RunOptions.AcceptStale (then the record lists them in stale_targets).
+//     Every fallback is counted per source split (Summary.Fallbacks,
+//     dataset.json augment.fallbacks).
 //   - A class may declare which transforms keep its label (manifest.Class
 //     Flip, MaxRotate); CheckInvariance refuses a plan that breaks one before
 //     any work.

@@ -8,6 +8,7 @@ package augment
 //	FOLDER/labels.csv            optional: header row with an "id" column (the stem) and targets
 //	FOLDER/classes.json          optional: [{"id": 1, "name": "leaf", "color": [r,g,b],
 //	                                         "flip": false, "max_rotate": 15}, ...]
+//	FOLDER/columns.json          optional: what each labels.csv column means (columns.go)
 //
 // Everything is checked before anything is returned: a folder either reads
 // completely or gives one error that names the file (and, where it helps, the

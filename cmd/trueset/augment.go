@@ -328,7 +328,7 @@ func printFallbacks(w io.Writer, sum augment.Summary, acceptStale bool) {
 	sort.Strings(names)
 	for _, n := range names {
 		f := sum.Fallbacks[n]
-		if f.Redrawn+f.Dropped+f.NotWritten+f.Stale == 0 {
+		if f.Planned == 0 {
 			continue
 		}
 		line := fmt.Sprintf("  %s: %d of %d copies written; %d redrawn, %d with dropped objects (%d objects), %d not written", n, f.Written, f.Planned, f.Redrawn, f.Dropped, f.DroppedObjects, f.NotWritten)

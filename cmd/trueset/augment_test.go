@@ -419,7 +419,18 @@ func TestAugmentReadmeCommands(t *testing.T) {
 		}
 	}
 	// The quoted lineage is the first copy's, shortened at "…".
-	k := strings.Index(sec, "```json\n")
+	k := -1 // the json block that starts with "lineage"
+	for off := 0; ; {
+		i := strings.Index(sec[off:], "```json\n")
+		if i < 0 {
+			break
+		}
+		off += i + len("```json\n")
+		if strings.HasPrefix(strings.TrimSpace(sec[off:]), `"lineage"`) {
+			k = off - len("```json\n")
+			break
+		}
+	}
 	if k < 0 {
 		t.Fatal("the Augmentation section quotes no lineage")
 	}
