@@ -631,6 +631,9 @@ func readFolderClasses(p string) ([]manifest.Class, map[int]Invariance, error) {
 			if c.Name == "" {
 				return nil, nil, fmt.Errorf("%s: empty name", at)
 			}
+			if id == 0 && c.Name != "background" {
+				return nil, nil, fmt.Errorf("%s: id 0 is background in every trueset dataset; name it \"background\" or leave it out (got %q)", at, c.Name)
+			}
 			if err := checkClassName(c.Name); err != nil {
 				return nil, nil, fmt.Errorf("%s: %w", at, err)
 			}

@@ -598,6 +598,7 @@ func TestFolderErrors(t *testing.T) {
 
 		{"classes: id 255", setClasses(`[{"id": 255, "name": "glare"}]`), []string{"@classes.json", "id 255", "ignore"}},
 		{"classes: id out of range", setClasses(`[{"id": 300}]`), []string{"@classes.json", "0..254"}},
+		{"classes: id 0 named other than background", setClasses(`[{"id": 0, "name": "floor"}, {"id": 1, "name": "leaf-disc"}]`), []string{"@classes.json", "id 0 is background", `"floor"`}},
 		{"classes: duplicate id", setClasses(`[{"id": 1}, {"id": 1, "name": "x"}]`), []string{"@classes.json", "entry 2", "twice"}},
 		{"classes: duplicate name", setClasses(`[{"id": 1, "name": "a"}, {"id": 2, "name": "a"}]`), []string{"@classes.json", `"a"`, "class 1"}},
 		{"classes: misspelt field", setClasses(`[{"id": 1, "colour": [1, 2, 3]}]`), []string{"@classes.json", `"colour"`}},
