@@ -401,7 +401,7 @@ func labCutCheck(t *testing.T, what string, p *Plan, in *Input, out *Output) boo
 	return dropped
 }
 
-// labDigest summarises an input's pixels and record, to see that copies
+// labDigest summarizes an input's pixels and record, to see that copies
 // leave their source alone.
 func labDigest(in *Input) string {
 	var b strings.Builder

@@ -2,7 +2,7 @@ package augment
 
 import "github.com/trueset/trueset/manifest"
 
-// recompute evaluates every defined target on the relabelled objects
+// recompute evaluates every defined target on the relabeled objects
 // (manifest.EvalTarget); a target without a definition keeps its old value.
 // Text readings take the glyphs left to right by their mapped centers (flips
 // of text are refused before any work, and turns are bounded, so this is the

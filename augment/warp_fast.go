@@ -62,7 +62,7 @@ func columnTerms(inv Mat, ow int) (au, av []float64) {
 // source pixel (i0 + ix·x + iy·y, j0 + jx·x + jy·y).
 type quarter struct{ i0, j0, ix, iy, jx, jy int }
 
-// quarterOf recognises an inverse map that moves pixel centers onto pixel
+// quarterOf recognizes an inverse map that moves pixel centers onto pixel
 // centers: its linear part a signed permutation of ±1 entries and the
 // preimage of the first center a center. The reference's preimages are then
 // exact (sums of small multiples of ½), so the integer indices here are the

@@ -158,14 +158,14 @@ func fastSameImage(t *testing.T, what string, got, want *Image) {
 
 // TestWarpFastPathsTaken checks that the maps meant for each fast path reach
 // it (so the comparison above covers them): exact quarter turns and flips are
-// recognised, the same maps off by half a pixel are not.
+// recognized, the same maps off by half a pixel are not.
 func TestWarpFastPathsTaken(t *testing.T) {
 	for _, deg := range []float64{0, 90, 180, 270, -90, 360} {
 		m, _, _ := RotateCanvas(7, 5, deg, true)
 		for _, mm := range []Mat{m, FlipH(7).Then(m), FlipV(5).Then(m), m.Then(Translate(-4, 9))} {
 			inv, _ := mm.Invert()
 			if _, ok := quarterOf(inv); !ok {
-				t.Errorf("%v (turn %g°): not recognised as an exact quarter turn", mm, deg)
+				t.Errorf("%v (turn %g°): not recognized as an exact quarter turn", mm, deg)
 			}
 			inv2, _ := mm.Then(Translate(0.5, 0)).Invert()
 			if _, ok := quarterOf(inv2); ok {

@@ -37,7 +37,7 @@ func BenchmarkPlan(b *testing.B) {
 	}
 }
 
-// BenchmarkRender: plan, rasterise, composite and measure labels.
+// BenchmarkRender: plan, rasterize, composite and measure labels.
 func BenchmarkRender(b *testing.B) {
 	r := benchRecipe(b)
 	rd := NewRenderer(r)

@@ -22,7 +22,7 @@ type Seg struct {
 	P  [3]Pt
 }
 
-// Path is a list of closed contours. Filling uses the rasteriser's rule: a
+// Path is a list of closed contours. Filling uses the rasterizer's rule: a
 // contour drawn the other way round cuts a hole.
 type Path []Seg
 

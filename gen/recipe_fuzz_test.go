@@ -205,7 +205,7 @@ func checkFuzzSample(t *testing.T, r *Recipe, s *Sample) {
 // fuzzScene is one layer of one object kind, with optional parts: the
 // numbers FuzzRenderRecipe varies. Byte mutations of recipe text almost
 // never give a valid recipe, so this target writes valid YAML around fuzzed
-// numbers to reach the planner and the rasteriser with extreme geometry.
+// numbers to reach the planner and the rasterizer with extreme geometry.
 type fuzzScene struct {
 	W, H             uint16
 	Shape            uint8 // index into shapeKinds; len(shapeKinds) = a glyph

@@ -123,7 +123,7 @@ func (rd *Renderer) Generate(seed uint64, index int) (*Sample, error) {
 	return nil, fmt.Errorf("sample %d: %v (gave up after %d attempts)", index, last, MaxAttempts)
 }
 
-// Render draws a plan. Each object is rasterised once; that coverage is both
+// Render draws a plan. Each object is rasterized once; that coverage is both
 // the alpha it is composited with and, where coverage ≥ 0.5, its mask pixels
 // (topmost object wins). Labels are then measured from the instance mask.
 func (rd *Renderer) Render(p *Plan) (*Sample, error) {
@@ -166,7 +166,7 @@ func (rd *Renderer) Render(p *Plan) (*Sample, error) {
 			alone[i] = 0
 			continue
 		}
-		rd.rasterise(x0, y0, bw, bh)
+		rd.rasterize(x0, y0, bw, bh)
 		tone := o.Tone
 		n := 0
 		for y := 0; y < bh; y++ {
@@ -225,9 +225,9 @@ func (rd *Renderer) Render(p *Plan) (*Sample, error) {
 	return s, nil
 }
 
-// rasterise fills rd.cov (bw×bh) with the coverage of rd.world, offset so
+// rasterize fills rd.cov (bw×bh) with the coverage of rd.world, offset so
 // that pixel (x0, y0) of the canvas is (0, 0) of the buffer.
-func (rd *Renderer) rasterise(x0, y0, bw, bh int) {
+func (rd *Renderer) rasterize(x0, y0, bw, bh int) {
 	rd.ras.Reset(bw, bh)
 	rd.ras.DrawOp = draw.Src
 	fx, fy := float64(x0), float64(y0)

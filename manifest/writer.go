@@ -346,7 +346,7 @@ func (w *Writer) WriteFiles(rec *Record, enc *Encoder, img, mask, inst image.Ima
 	}{{"image", rec.Image, img}, {"mask", rec.Mask, mask}, {"instances", rec.Instances, inst}}
 	// Sample i starts with file i mod 3, so workers on neighbouring samples
 	// create files in different folders at the same moment: the kernel
-	// serialises creations in one folder (on Linux, under the folder's
+	// serializes creations in one folder (on Linux, under the folder's
 	// inode lock; see README, Performance). The bytes written do not depend
 	// on the order.
 	first := (rec.Index%3 + 3) % 3
