@@ -9,13 +9,25 @@
 # group and split checks, the seeded allocation recomputed) — and runs
 # `trueset verify` on each under bench/cmd/peakrss, which reads the child's
 # peak RSS (ru_maxrss) from its rusage. It prints both and their ratio.
-# With the default GOGC=100 most of the peak is garbage awaiting collection
-# (each record's three PNG decodes allocate ~100 kB, mostly the standard
-# library's inflate window), and the collector lets it grow to twice the live
-# heap, which holds the per-group state (5 bytes a group, 9 more while the
-# allocation is recomputed); GOGC=25 (run as `GOGC=25 bash …`) shows the
-# retained state alone. Run by hand, not by CI (the 1,000,000-record run takes
-# a few minutes):
+#
+# Measured (2 CPUs, load average 4–5 from other work): 20.9 MB at 10,000 and
+# 34.8 MB at 1,000,000 records, ratio 1.66; a second run 21.2 and 37.2 MB,
+# 1.76 (a lone 1,000,000 run, traced, peaked at 44.5 MB).
+# Before verify decoded through internal/pngread it was 27–34 MB and 83 MB
+# (2.6–3.1): image/png allocates a new inflater (32 KiB window, Huffman
+# tables, a bufio.Reader) and palette for every file, ~165 kB of garbage per
+# record; pngread reuses them, ~15 kB. The garbage mattered because a GC
+# cycle whose mark phase waits for a CPU (86 ms of wall clock for 0.2 ms of
+# CPU in one trace) counts everything allocated meanwhile as live and then
+# doubles that for its next goal: `10->41->36 MB, 11 MB goal` then a 73 MB
+# goal. What grows with the records is the per-group state, 5 bytes a group
+# (its stratum and split, kept to recompute the seeded allocation), 9 more
+# while the allocation is recomputed at the end; at GOGC=100 the collector's
+# goal is twice the live heap, so 1,000,000 groups add ~10 MB of heap
+# (steady 11–13 MB against 3–4 MB at 10,000), and a GC cycle delayed by a busy
+# machine still adds a few MB (the spread between runs). GOGC=25 (run as
+# `GOGC=25 bash …`) shows the retained state alone. Run by hand, not by CI
+# (the 1,000,000-record run takes about two minutes):
 #
 #   bash bench/verify_memory.sh
 #   SMALL=10000 BIG=200000 bash bench/verify_memory.sh   # quicker

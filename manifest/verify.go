@@ -22,6 +22,7 @@ import (
 	"unicode"
 	"unicode/utf8"
 
+	"github.com/trueset/trueset/internal/pngread"
 	"github.com/trueset/trueset/internal/safefile"
 )
 
@@ -193,6 +194,10 @@ type verifier struct {
 	unknownSplit      map[int32]string // second pass: a group's first split when not one of dataset.json's
 	classByName       map[string]int
 	records, tracked  int
+
+	// One PNG decoder per kind of record file (image, mask, instances),
+	// reused from record to record: its inflater, rows, palette and image.
+	decs [3]pngread.Decoder
 }
 
 func newVerifier(dir string, d *Dataset, report func(Problem)) *verifier {
@@ -736,11 +741,22 @@ func (s *SampleFile) SHA256() (string, error) {
 // and height h, at most MaxVerifyPixels. It returns the header; nothing is
 // decoded.
 func (s *SampleFile) Header(w, h int) (image.Config, error) {
+	return s.header(w, h, nil)
+}
+
+// header is Header reading with dec (its palette valid until dec's next
+// use), or with image/png when dec is nil.
+func (s *SampleFile) header(w, h int, dec *pngread.Decoder) (image.Config, error) {
 	r, err := s.reader()
 	if err != nil {
 		return image.Config{}, err
 	}
-	cfg, err := png.DecodeConfig(r)
+	var cfg image.Config
+	if dec != nil {
+		cfg, err = dec.DecodeConfig(r)
+	} else {
+		cfg, err = png.DecodeConfig(r)
+	}
 	if err != nil {
 		return cfg, &SampleError{Rel: s.Rel, Check: KindFormat, Msg: "not a readable PNG: " + err.Error()}
 	}
@@ -756,6 +772,12 @@ func (s *SampleFile) Header(w, h int) (image.Config, error) {
 
 // Decode decodes the PNG; call Header first.
 func (s *SampleFile) Decode() (image.Image, error) {
+	return s.decode(nil)
+}
+
+// decode decodes the PNG with dec, reusing its memory (the image is valid
+// until dec's next use), or with image/png when dec is nil.
+func (s *SampleFile) decode(dec *pngread.Decoder) (image.Image, error) {
 	if s.cfg.Width == 0 && s.cfg.Height == 0 && s.cfg.ColorModel == nil {
 		return nil, &SampleError{Rel: s.Rel, Check: KindFormat, Msg: "header not checked before decoding"}
 	}
@@ -763,7 +785,12 @@ func (s *SampleFile) Decode() (image.Image, error) {
 	if err != nil {
 		return nil, err
 	}
-	m, err := png.Decode(r)
+	var m image.Image
+	if dec != nil {
+		m, err = dec.Decode(r)
+	} else {
+		m, err = png.Decode(r)
+	}
 	if err != nil {
 		return nil, &SampleError{Rel: s.Rel, Check: KindFormat, Msg: "not a readable PNG: " + err.Error()}
 	}
@@ -795,7 +822,7 @@ func DecodedBytes(cfg image.Config) int64 {
 
 // openSample opens, hashes and header-checks one record file for verify,
 // reporting what is wrong; it returns the file ready to decode, or nil.
-func (v *verifier) openSample(key, rel, want string, w, h int, bad func(check, file, format string, args ...any)) *SampleFile {
+func (v *verifier) openSample(key, rel, want string, w, h int, dec *pngread.Decoder, bad func(check, file, format string, args ...any)) *SampleFile {
 	report := func(err error) {
 		var se *SampleError
 		if errors.As(err, &se) {
@@ -822,7 +849,7 @@ func (v *verifier) openSample(key, rel, want string, w, h int, bad func(check, f
 	if got := sum; got != want {
 		bad(KindSHA256, rel, "%s: SHA-256 %s, record says %s", rel, got, want)
 	}
-	if _, err := s.Header(w, h); err != nil {
+	if _, err := s.header(w, h, dec); err != nil {
 		s.Close()
 		report(err)
 		return nil
@@ -830,13 +857,14 @@ func (v *verifier) openSample(key, rel, want string, w, h int, bad func(check, f
 	return s
 }
 
-// decodeOK decodes a header-checked file, reporting a failure.
-func decodeOK(s *SampleFile, bad func(check, file, format string, args ...any)) image.Image {
+// decodeOK decodes a header-checked file with dec, reporting a failure.
+// The image is dec's: valid until dec decodes the next file.
+func decodeOK(s *SampleFile, dec *pngread.Decoder, bad func(check, file, format string, args ...any)) image.Image {
 	if s == nil {
 		return nil
 	}
 	defer s.Close()
-	m, err := s.Decode()
+	m, err := s.decode(dec)
 	if err != nil {
 		var se *SampleError
 		if errors.As(err, &se) {
@@ -850,9 +878,10 @@ func decodeOK(s *SampleFile, bad func(check, file, format string, args ...any)) 
 }
 
 func (v *verifier) verifyRecord(r *Record, bad func(check, file, format string, args ...any)) {
-	// One record's files at a time: at most three decoded images are alive.
-	img := decodeOK(v.openSample("image", r.Image, r.SHA256["image"], r.Width, r.Height, bad), bad)
-	mf := v.openSample("mask", r.Mask, r.SHA256["mask"], r.Width, r.Height, bad)
+	// One record's files at a time: at most three decoded images are alive,
+	// each in its kind's decoder, which reuses it for the next record.
+	img := decodeOK(v.openSample("image", r.Image, r.SHA256["image"], r.Width, r.Height, &v.decs[0], bad), &v.decs[0], bad)
+	mf := v.openSample("mask", r.Mask, r.SHA256["mask"], r.Width, r.Height, &v.decs[1], bad)
 	if mf != nil {
 		if _, ok := mf.cfg.ColorModel.(color.Palette); !ok {
 			bad(KindFormat, r.Mask, "%s: semantic mask is not an indexed PNG", r.Mask)
@@ -860,14 +889,14 @@ func (v *verifier) verifyRecord(r *Record, bad func(check, file, format string, 
 			mf = nil
 		}
 	}
-	mk := decodeOK(mf, bad)
-	inf := v.openSample("instances", r.Instances, r.SHA256["instances"], r.Width, r.Height, bad)
+	mk := decodeOK(mf, &v.decs[1], bad)
+	inf := v.openSample("instances", r.Instances, r.SHA256["instances"], r.Width, r.Height, &v.decs[2], bad)
 	if inf != nil && inf.cfg.ColorModel != color.Gray16Model {
 		bad(KindFormat, r.Instances, "%s: instance mask is not a 16-bit gray PNG", r.Instances)
 		inf.Close()
 		inf = nil
 	}
-	in := decodeOK(inf, bad)
+	in := decodeOK(inf, &v.decs[2], bad)
 	targets, classByName := v.d.TargetDefs, v.classByName
 	want := image.Rect(0, 0, r.Width, r.Height)
 	for i, m := range []image.Image{img, mk, in} {
