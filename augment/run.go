@@ -161,7 +161,7 @@ func Run(ctx context.Context, o RunOptions) (Summary, error) {
 	}
 	for _, s := range o.Splits {
 		if !known[s] {
-			return Summary{}, fmt.Errorf("--split %s: the input has splits %v", s, in.splits.Names)
+			return Summary{}, fmt.Errorf("--split %s: the input has splits %s", s, strings.Join(in.splits.Names, ", "))
 		}
 		augmented[s] = true
 	}

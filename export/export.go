@@ -63,7 +63,7 @@ func inputf(format string, args ...any) error {
 // Run exports o.Dir in o.Format to o.Out.
 func Run(o Options) (*Summary, error) {
 	if !slices.Contains(Formats, o.Format) {
-		return nil, inputf("format %q: trueset exports %s", o.Format, strings.Join(Formats, " or "))
+		return nil, inputf("format %q: trueset exports %s (objects-json: the trade's common JSON of images, annotations and categories, with [x, y, width, height] boxes and run-length masks, for detection and instance segmentation; center-boxes: one text file per image of class index and normalized center x, center y, width, height)", o.Format, strings.Join(Formats, " or "))
 	}
 	if err := manifest.CheckDisjoint(o.Out, o.Dir); err != nil {
 		return nil, err

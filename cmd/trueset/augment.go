@@ -139,8 +139,11 @@ func runAugment(ctx context.Context, o *augmentOptions, stdout, stderr io.Writer
 	case strings.Contains(o.split, "="):
 		return usagef("--split %s: --split names the splits whose sources get copies (e.g. train,val); split names and ratios are --ratios", o.split)
 	}
-	if st, err := os.Stat(o.in); err != nil || !st.IsDir() {
-		return usagef("--in %s is not a folder", o.in)
+	if err := checkFolder("--in", o.in); err != nil {
+		return err
+	}
+	if err := checkOutFolder(o.out); err != nil {
+		return err
 	}
 	if o.onError != "fail" && o.onError != "skip" {
 		return usagef("--on-error %q: want fail or skip", o.onError)

@@ -74,6 +74,7 @@ labels/ appears only when every file is written.`,
 type exportJSON struct {
 	Command string `json:"command"` // "export"
 	Dir     string `json:"dir"`
+	Samples int    `json:"samples"` // samples exported (one image each)
 	*export.Summary
 }
 
@@ -84,6 +85,9 @@ func runExport(dir string, o *exportOptions, stdout io.Writer) error {
 	if o.out == "" {
 		return usagef("--out PATH is required")
 	}
+	if err := checkFolder("", dir); err != nil {
+		return err
+	}
 	sum, err := export.Run(export.Options{Dir: dir, Format: o.format, Out: o.out, Split: o.split})
 	var ie *export.InputError
 	if errors.As(err, &ie) {
@@ -93,7 +97,7 @@ func runExport(dir string, o *exportOptions, stdout io.Writer) error {
 		return err
 	}
 	if o.json {
-		return writeJSON(stdout, exportJSON{Command: "export", Dir: dir, Summary: sum})
+		return writeJSON(stdout, exportJSON{Command: "export", Dir: dir, Samples: sum.Images, Summary: sum})
 	}
 	if !o.quiet {
 		fmt.Fprintf(stdout, "exported %d images, %d objects (%d images without objects), %d categories as %s to %s\n",

@@ -283,7 +283,7 @@ func TestExportRefusals(t *testing.T) {
 		{[]string{"export", dir, "--format", "objects-json", "--split", "nope", "--out", filepath.Join(tmp, "a.json")}, `no split "nope"`},
 		{[]string{"export", dir, "--format", "center-boxes", "--out", full}, "is not empty"},
 		{[]string{"export", dir, "--format", "objects-json", "--out", full}, "is a folder"},
-		{[]string{"export", filepath.Join(tmp, "missing"), "--format", "objects-json", "--out", filepath.Join(tmp, "a.json")}, "dataset.json: missing"},
+		{[]string{"export", filepath.Join(tmp, "missing"), "--format", "objects-json", "--out", filepath.Join(tmp, "a.json")}, "missing does not exist"},
 	} {
 		_, stderr := wantCode(t, exitUsage, c.args...)
 		if !strings.Contains(stderr, c.want) {

@@ -129,6 +129,9 @@ func runGenerate(ctx context.Context, o *generateOptions, stdout, stderr io.Writ
 	if o.out == "" {
 		return usagef("--out DIR is required")
 	}
+	if err := checkOutFolder(o.out); err != nil {
+		return err
+	}
 	if o.preset != "" && o.recipe != "" {
 		return usagef("give --preset or --recipe, not both")
 	}

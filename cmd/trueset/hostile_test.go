@@ -179,3 +179,35 @@ func TestAugmentInstrumentSets(t *testing.T) {
 		})
 	}
 }
+
+// A folder argument that does not exist, or is a file, gets one message and
+// exit 2 from every command that reads or writes a dataset.
+func TestMissingFolderSameEverywhere(t *testing.T) {
+	tmp := t.TempDir()
+	missing := filepath.Join(tmp, "nodir")
+	file := filepath.Join(tmp, "file.txt")
+	if err := os.WriteFile(file, []byte("x"), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	plan := "../../examples/plans/light.yaml"
+	for _, c := range []struct {
+		args []string
+		want string
+	}{
+		{[]string{"verify", missing}, missing + " does not exist"},
+		{[]string{"stats", missing}, missing + " does not exist"},
+		{[]string{"preview", missing, "--out", filepath.Join(tmp, "s.png")}, missing + " does not exist"},
+		{[]string{"report", missing, "--out", filepath.Join(tmp, "r.html")}, missing + " does not exist"},
+		{[]string{"split", missing}, missing + " does not exist"},
+		{[]string{"readback", missing, filepath.Join(tmp, "b.npz")}, missing + " does not exist"},
+		{[]string{"export", missing, "--format", "objects-json", "--out", filepath.Join(tmp, "o.json")}, missing + " does not exist"},
+		{[]string{"augment", "--in", missing, "--out", filepath.Join(tmp, "a"), "--plan", plan}, "--in " + missing + " does not exist"},
+		{[]string{"verify", file}, file + " is a file, not a folder"},
+		{[]string{"generate", "--count", "2", "--out", file}, "--out " + file + " is a file, not a folder"},
+	} {
+		_, stderr := wantCode(t, exitUsage, c.args...)
+		if !strings.Contains(stderr, c.want) {
+			t.Errorf("trueset %s: %q lacks %q", strings.Join(c.args, " "), stderr, c.want)
+		}
+	}
+}

@@ -3,6 +3,7 @@
 package main
 
 import (
+	"io/fs"
 	"encoding/json"
 	"errors"
 	"fmt"
@@ -204,4 +205,33 @@ func run(args []string, stdout, stderr io.Writer) int {
 
 func main() {
 	os.Exit(run(os.Args[1:], os.Stdout, os.Stderr))
+}
+
+// checkFolder refuses a folder argument that does not exist or is a file
+// (exit 2), in the same words for every command; flag names the flag, or ""
+// for a positional argument.
+func checkFolder(flag, dir string) error {
+	label := dir
+	if flag != "" {
+		label = flag + " " + dir
+	}
+	st, err := os.Stat(dir)
+	switch {
+	case errors.Is(err, fs.ErrNotExist):
+		return usagef("%s does not exist", label)
+	case err != nil:
+		return usagef("%s: %v", label, err)
+	case !st.IsDir():
+		return usagef("%s is a file, not a folder", label)
+	}
+	return nil
+}
+
+// checkOutFolder refuses an --out that exists as something other than a
+// folder (exit 2); a missing one is made by the run.
+func checkOutFolder(dir string) error {
+	if st, err := os.Stat(dir); err == nil && !st.IsDir() {
+		return usagef("--out %s is a file, not a folder", dir)
+	}
+	return nil
 }

@@ -61,6 +61,9 @@ func runMerge(dirs []string, o *mergeOptions, stdout io.Writer) error {
 	if o.out == "" {
 		return usagef("--out DIR is required")
 	}
+	if err := checkOutFolder(o.out); err != nil {
+		return err
+	}
 	if err := manifest.CheckDisjoint(o.out, dirs...); err != nil {
 		return err
 	}

@@ -3,6 +3,7 @@ package main
 import (
 	"fmt"
 	"io"
+	"strings"
 
 	"github.com/spf13/cobra"
 
@@ -24,7 +25,7 @@ func newPresetsCmd(stdout io.Writer) *cobra.Command {
 		Example: "  trueset presets show bin-labels > labels.yaml\n  trueset generate --recipe labels.yaml --out labels",
 		Args: func(c *cobra.Command, args []string) error {
 			if len(args) != 1 {
-				return usagef("presets show takes one preset name; built-in presets: %v", gen.PresetNames())
+				return usagef("presets show takes one preset name; built-in presets: %s", strings.Join(gen.PresetNames(), ", "))
 			}
 			return nil
 		},
@@ -43,7 +44,8 @@ func runPresetsList(stdout io.Writer) error {
 		if name == gen.DefaultPreset {
 			mark = "*"
 		}
-		fmt.Fprintf(stdout, "%s %-16s %dx%d %-4s  %s\n", mark, name, r.Canvas.Width, r.Canvas.Height, r.Canvas.Mode, r.Description)
+		size := fmt.Sprintf("%dx%d %s", r.Canvas.Width, r.Canvas.Height, r.Canvas.Mode)
+		fmt.Fprintf(stdout, "%s %-16s %-12s  %s\n", mark, name, size, r.Description)
 	}
 	fmt.Fprintln(stdout, "\n* default preset. `trueset presets show NAME` prints one as YAML.")
 	return nil

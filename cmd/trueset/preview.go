@@ -93,6 +93,9 @@ func runPreview(dir string, o *previewOptions, stdout io.Writer) error {
 	if o.count < 1 || o.count > inspect.MaxPreviewCount {
 		return usagef("--count %d: want 1..%d", o.count, inspect.MaxPreviewCount)
 	}
+	if err := checkFolder("", dir); err != nil {
+		return err
+	}
 	d, err := manifest.ReadDataset(dir)
 	if err != nil {
 		return err

@@ -107,6 +107,9 @@ func runReadback(dir, batch string, o *readbackOptions, stdout io.Writer) error 
 	if o.sheet != "" && strings.ToLower(filepath.Ext(o.sheet)) != ".png" {
 		return usagef("--sheet %s: the sheet is written as .png", o.sheet)
 	}
+	if err := checkFolder("", dir); err != nil {
+		return err
+	}
 	d, err := manifest.ReadDataset(dir)
 	if err != nil {
 		return err

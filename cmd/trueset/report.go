@@ -3,7 +3,6 @@ package main
 import (
 	"fmt"
 	"io"
-	"os"
 	"runtime"
 	"slices"
 	"strings"
@@ -81,8 +80,8 @@ func runReport(dir string, o *reportOptions, stdout io.Writer) error {
 	if o.sheetCount < 0 || o.sheetCount > inspect.MaxPreviewCount {
 		return usagef("--sheet-count %d: want 0..%d", o.sheetCount, inspect.MaxPreviewCount)
 	}
-	if st, err := os.Stat(dir); err != nil || !st.IsDir() {
-		return usagef("%s is not a folder", dir)
+	if err := checkFolder("", dir); err != nil {
+		return err
 	}
 	d, err := manifest.ReadDataset(dir)
 	if err != nil {

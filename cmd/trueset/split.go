@@ -3,7 +3,6 @@ package main
 import (
 	"fmt"
 	"io"
-	"os"
 	"time"
 
 	"github.com/spf13/cobra"
@@ -70,8 +69,8 @@ type splitJSON struct {
 }
 
 func runSplit(dir string, o *splitOptions, stdout, stderr io.Writer) error {
-	if st, err := os.Stat(dir); err != nil || !st.IsDir() {
-		return usagef("%s is not a folder", dir)
+	if err := checkFolder("", dir); err != nil {
+		return err
 	}
 	start := time.Now()
 	d, err := manifest.ReadDataset(dir)

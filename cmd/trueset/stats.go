@@ -88,6 +88,9 @@ func runStats(dir string, o *statsOptions, stdout io.Writer) error {
 	if o.workers < 1 || o.workers > 1024 {
 		return usagef("--workers %d: want 1..1024", o.workers)
 	}
+	if err := checkFolder("", dir); err != nil {
+		return err
+	}
 	d, err := manifest.ReadDataset(dir)
 	if err != nil {
 		return err

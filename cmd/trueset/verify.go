@@ -139,8 +139,8 @@ func (e errFound) Error() string {
 }
 
 func runVerify(ctx context.Context, dir string, o *verifyOptions, stdout, stderr io.Writer) error {
-	if st, err := os.Stat(dir); err != nil || !st.IsDir() {
-		return usagef("%s is not a folder", dir)
+	if err := checkFolder("", dir); err != nil {
+		return err
 	}
 	if o.max < 0 {
 		return usagef("--max-problems %d: want a whole number ≥ 0", o.max)
