@@ -298,12 +298,24 @@ func (p *Planted) WriteText(w io.Writer) {
 	if b := p.Bait; b != nil {
 		fmt.Fprintf(w, "\nbait: %s cue against %s > %s, measured from the images (%s); Pearson r:\n", b.Cue, b.Target, Figure(b.Above), b.Measure)
 		tw := table()
-		fmt.Fprintf(tw, "split\tbaited\tsamples\tr(cue, answer)\tr(cue, %s)\tcue | yes\tcue | no\tyes share\t\n", b.Target)
+		fmt.Fprintf(tw, "split\tcue\tsamples\tr(cue, answer)\tr(cue, %s)\tcue | yes\tcue | no\tyes share\t\n", b.Target)
 		for _, s := range b.Splits {
-			fmt.Fprintf(tw, "%s\t%s\t%d\t%s\t%s\t%s\t%s\t%s\t\n", s.Split, yesNo(s.Baited), s.Samples, Figure(s.CueAnswer), Figure(s.CueTarget), Figure(s.MeanCueOn), Figure(s.MeanCueOff), Figure(s.AnswerShare))
+			fmt.Fprintf(tw, "%s\t%s\t%d\t%s\t%s\t%s\t%s\t%s\t\n", s.Split, b.cueMode(s.Baited), s.Samples, Figure(s.CueAnswer), Figure(s.CueTarget), Figure(s.MeanCueOn), Figure(s.MeanCueOff), Figure(s.AnswerShare))
 		}
 		tw.Flush()
 	}
+}
+
+// cueMode says how the cue relates to the answer in a split: baited (agrees
+// by design), or the recipe's elsewhere (independent or reversed).
+func (b *BaitStats) cueMode(baited bool) string {
+	if baited {
+		return "baited"
+	}
+	if b.spec != nil && b.spec.Elsewhere != "" {
+		return b.spec.Elsewhere
+	}
+	return "independent"
 }
 
 func yesNo(b bool) string {
@@ -352,9 +364,9 @@ func repPlanted(s *Stats) []repTable {
 		out = append(out, t)
 	}
 	if b := p.Bait; b != nil {
-		t := repTable{ID: "planted-bait", Head: []string{"split", "baited", "samples", "r(cue, answer)", "r(cue, " + b.Target + ")"}}
+		t := repTable{ID: "planted-bait", Head: []string{"split", "cue", "samples", "r(cue, answer)", "r(cue, " + b.Target + ")"}}
 		for _, s := range b.Splits {
-			t.Rows = append(t.Rows, []repCell{repPlain(s.Split), repPlain(yesNo(s.Baited)), repPlainNum(fmt.Sprint(s.Samples)), repPlainNum(Figure(s.CueAnswer)), repPlainNum(Figure(s.CueTarget))})
+			t.Rows = append(t.Rows, []repCell{repPlain(s.Split), repPlain(b.cueMode(s.Baited)), repPlainNum(fmt.Sprint(s.Samples)), repPlainNum(Figure(s.CueAnswer)), repPlainNum(Figure(s.CueTarget))})
 		}
 		out = append(out, t)
 	}
