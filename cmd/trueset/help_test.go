@@ -226,6 +226,7 @@ var readmeSkips = map[string]string{
 var readmeSubstitutions = []struct{ from, to, why string }{
 	{"go run ./cmd/trueset ", "trueset ", "the binary under test, built once, rather than a second build by go run"},
 	{"go test ./...\n", "", "the test suite would run this test again, recursively"},
+	{"go build -o trueset ./cmd/trueset && export PATH=\"$PWD:$PATH\"\n", "", "the binary under test is built once and already on PATH (the folder here is not the source tree)"},
 }
 
 // TestReadmeShellBlocks runs every ```sh block of README.md, in order, in
