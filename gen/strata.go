@@ -92,7 +92,7 @@ func (r *Recipe) CheckStratify(key string) error {
 	for _, t := range r.Targets {
 		if t.Name == key {
 			if !r.contentDecides(t) {
-				return fmt.Errorf("stratify %q: target %s (%s of %s) depends on geometry, which is drawn after the split; stratify by a count, a value aggregate or a row reading", key, t.Name, t.Kind, t.Of)
+				return fmt.Errorf("stratify %q: target %s (%s of %s) depends on geometry, which is drawn after the split; stratify by a count, a value aggregate or a row reading, or generate first and re-deal the finished set with trueset split DIR --stratify %s, which reads the rendered records", key, t.Name, t.Kind, t.Of, key)
 			}
 			return nil
 		}
