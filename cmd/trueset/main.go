@@ -3,11 +3,11 @@
 package main
 
 import (
-	"io/fs"
 	"encoding/json"
 	"errors"
 	"fmt"
 	"io"
+	"io/fs"
 	"os"
 	"strings"
 
