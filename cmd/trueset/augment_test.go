@@ -221,7 +221,7 @@ func TestAugmentUsageErrors(t *testing.T) {
 		{"bad plan file", []string{"--in", in, "--out", out, "--plan", bad}, []string{bad + ":6:", "geometry.moves[0].sigma", "flip does not take sigma"}},
 		{"missing plan file", []string{"--in", in, "--out", out, "--plan", filepath.Join(root, "nope.yaml")}, []string{"nope.yaml"}},
 		{"unknown split", []string{"--in", in, "--out", out, "--plan", everyStepPlan, "--split", "nosuch"}, []string{"--split nosuch", "train"}},
-		{"--in not a folder", []string{"--in", filepath.Join(root, "absent"), "--out", out, "--plan", everyStepPlan}, []string{"--in", "not a folder"}},
+		{"--in missing", []string{"--in", filepath.Join(root, "absent"), "--out", out, "--plan", everyStepPlan}, []string{"--in", "does not exist"}},
 	}
 	for _, c := range cases {
 		t.Run(c.name, func(t *testing.T) {
