@@ -373,7 +373,6 @@ func erase(mask *image.Paletted, inst *image.Gray16, id int) {
 // is gone loses its parent reference.
 func relabel(objs []manifest.Object, inst *image.Gray16, m Mat, frac map[int]float64) []manifest.Object {
 	stats := manifest.MeasureInstances(inst)
-	moments := manifest.MeasureMoments(inst)
 	kept := map[int]bool{}
 	out := []manifest.Object{} // [] in the record, not null, when none is left
 	s := math.Sqrt(math.Abs(m.Det()))
@@ -405,7 +404,7 @@ func relabel(objs []manifest.Object, inst *image.Gray16, m Mat, frac map[int]flo
 			dx, dy := m[0]*cs+m[1]*sn, m[3]*cs+m[4]*sn
 			n.Angle = manifest.Factor(manifest.Round(math.Atan2(dy, dx)*180/math.Pi, 3))
 		}
-		n.Measured(moments[o.Instance])
+		n.Measured(&st.M)
 		out = append(out, n)
 	}
 	for i := range out {

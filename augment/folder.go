@@ -1027,7 +1027,6 @@ func readFolderSource(files folderSourceFiles, maxPixels int, classesGiven bool,
 		return nil, err
 	}
 	stats := manifest.MeasureInstances(ids)
-	moments := manifest.MeasureMoments(ids)
 	objIDs := make([]int, 0, len(stats))
 	for id := range stats {
 		objIDs = append(objIDs, id)
@@ -1037,7 +1036,7 @@ func readFolderSource(files folderSourceFiles, maxPixels int, classesGiven bool,
 	for _, id := range objIDs {
 		st := stats[id]
 		o := manifest.Object{Instance: id, Class: int(classes[id]), Box: st.BBox, Area: st.Area, Shown: 1, Shape: "labeled"}
-		o.Measured(moments[id])
+		o.Measured(&st.M)
 		objects = append(objects, o)
 	}
 	sum := sha256.New()

@@ -634,7 +634,6 @@ func checkLabels(rec *manifest.Record, mask *image.Paletted, inst *image.Gray16,
 		byName[c.Name] = c.ID
 	}
 	stats := manifest.MeasureInstances(inst)
-	moments := manifest.MeasureMoments(inst)
 	byID := map[int]*manifest.Object{}
 	for i := range rec.Objects {
 		o := &rec.Objects[i]
@@ -654,7 +653,7 @@ func checkLabels(rec *manifest.Record, mask *image.Paletted, inst *image.Gray16,
 		case st.Area != o.Area:
 			return fmt.Errorf("%s: object %d: area %d in the record, %d in the instance mask", rec.Instances, o.Instance, o.Area, st.Area)
 		}
-		if msg := manifest.CheckMeasured(o, moments[o.Instance]); msg != "" {
+		if msg := manifest.CheckMeasured(o, &st.M); msg != "" {
 			return fmt.Errorf("%s: %s", rec.Instances, msg)
 		}
 	}

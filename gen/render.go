@@ -318,7 +318,6 @@ func blend(dst, src, a uint8) uint8 {
 func (rd *Renderer) label(p *Plan, s *Sample, alone []int) error {
 	r := rd.r
 	stats := manifest.MeasureInstances(s.Instances)
-	moments := manifest.MeasureMoments(s.Instances)
 	rec := &s.Record
 	rec.Index = p.Index
 	rec.ID = manifest.SampleID(p.Index)
@@ -350,8 +349,8 @@ func (rd *Renderer) label(p *Plan, s *Sample, alone []int) error {
 			Angle: manifest.Factor(manifest.Round(o.Angle, 3)),
 			Value: o.Value,
 		}
-		if m := moments[id]; m != nil {
-			ob.Measured(m)
+		if st != nil {
+			ob.Measured(&st.M)
 		}
 		if o.Kind == "glyph" {
 			ob.Glyph = string(o.Glyph)

@@ -5,11 +5,13 @@ import "image"
 // InstanceStats is what an instance mask says about one instance id.
 type InstanceStats struct {
 	Area int
-	BBox [4]int // [x0, y0, x1, y1], exclusive max
+	BBox [4]int  // [x0, y0, x1, y1], exclusive max
+	M    Moments // first and second moments of its pixels (measured.go)
 }
 
 // MeasureInstances scans a 16-bit instance mask and returns, for every id
-// present (id 0 excluded), its pixel count and bounding box. Boxes follow the
+// present (id 0 excluded), its pixel count, bounding box and moments, in one
+// scan. Boxes follow the
 // pixel convention: a single pixel at (x, y) has box [x, y, x+1, y+1].
 func MeasureInstances(m *image.Gray16) map[int]*InstanceStats {
 	out := map[int]*InstanceStats{}
@@ -33,6 +35,13 @@ func MeasureInstances(m *image.Gray16) map[int]*InstanceStats {
 				}
 			}
 			s.Area++
+			X, Y := int64(x), int64(y)
+			s.M.N++
+			s.M.SX += X
+			s.M.SY += Y
+			s.M.SXX += X * X
+			s.M.SYY += Y * Y
+			s.M.SXY += X * Y
 			if x < s.BBox[0] {
 				s.BBox[0] = x
 			}

@@ -8,7 +8,8 @@ import (
 )
 
 // TestMeasureInstancesRuns checks MeasureInstances (which looks the map up
-// only where the id changes along a row) against the plain per-pixel count,
+// only where the id changes along a row) against the plain per-pixel count
+// (area, box and moment sums),
 // on masks with long runs, single pixels, ids repeating after gaps and rows
 // that end and start with the same id, including a sub-image with an offset.
 func TestMeasureInstancesRuns(t *testing.T) {
@@ -28,6 +29,8 @@ func TestMeasureInstancesRuns(t *testing.T) {
 				}
 				s.Area++
 				s.BBox = [4]int{min(s.BBox[0], x), min(s.BBox[1], y), max(s.BBox[2], x+1), max(s.BBox[3], y+1)}
+				X, Y := int64(x), int64(y)
+				s.M = Moments{s.M.N + 1, s.M.SX + X, s.M.SY + Y, s.M.SXX + X*X, s.M.SYY + Y*Y, s.M.SXY + X*Y}
 			}
 		}
 		return out

@@ -6,47 +6,13 @@ import (
 	"math"
 )
 
-// Moments is what an instance mask says about one object's position and
+// Moments (filled by MeasureInstances) is what an instance mask says about one object's position and
 // extent: the first and second moments of its pixels, each pixel taken as
 // the unit square [x, x+1) × [y, y+1) (DESIGN, Conventions).
 type Moments struct {
 	N             int64 // pixels
 	SX, SY        int64 // Σx, Σy over pixel indices
 	SXX, SYY, SXY int64 // Σx², Σy², Σxy over pixel indices
-}
-
-// MeasureMoments scans a 16-bit instance mask and returns the moments of
-// every id present (id 0 excluded). Sums are integers, so the result does not
-// depend on the order of the pixels.
-func MeasureMoments(m *image.Gray16) map[int]*Moments {
-	out := map[int]*Moments{}
-	b := m.Bounds()
-	last, s := 0, (*Moments)(nil)
-	for y := b.Min.Y; y < b.Max.Y; y++ {
-		row := m.Pix[(y-b.Min.Y)*m.Stride:]
-		for x := b.Min.X; x < b.Max.X; x++ {
-			i := 2 * (x - b.Min.X)
-			id := int(row[i])<<8 | int(row[i+1])
-			if id == 0 {
-				continue
-			}
-			if id != last {
-				last, s = id, out[id]
-				if s == nil {
-					s = &Moments{}
-					out[id] = s
-				}
-			}
-			X, Y := int64(x), int64(y)
-			s.N++
-			s.SX += X
-			s.SY += Y
-			s.SXX += X * X
-			s.SYY += Y * Y
-			s.SXY += X * Y
-		}
-	}
-	return out
 }
 
 // Center is the centroid of the object's pixels in pixel coordinates: the
@@ -85,10 +51,10 @@ func (o *Object) Measured(m *Moments) {
 // instance mask; objects absent from it keep zeros (they have Area 0 and
 // are not written).
 func SetMeasured(objs []Object, inst *image.Gray16) {
-	mm := MeasureMoments(inst)
+	stats := MeasureInstances(inst)
 	for i := range objs {
-		if m := mm[objs[i].Instance]; m != nil {
-			objs[i].Measured(m)
+		if st := stats[objs[i].Instance]; st != nil {
+			objs[i].Measured(&st.M)
 		}
 	}
 }

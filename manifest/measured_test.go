@@ -18,7 +18,7 @@ func TestMeasuredRectangle(t *testing.T) {
 			m.Pix[y*m.Stride+2*x+1] = 3
 		}
 	}
-	mm := MeasureMoments(m)[3]
+	mm := &MeasureInstances(m)[3].M
 	c, s := mm.Center(), mm.Size()
 	if want := [2]float64{float64(x0) + float64(w)/2, float64(y0) + float64(h)/2}; math.Abs(c[0]-want[0]) > 1e-9 || math.Abs(c[1]-want[1]) > 1e-9 {
 		t.Errorf("center %v, want %v", c, want)
@@ -53,7 +53,8 @@ func TestMeasuredDiscAndTilt(t *testing.T) {
 		u, v := dx*cs+dy*sn, -dx*sn+dy*cs
 		return u*u/(18*18)+v*v/(7*7) <= 1
 	})
-	mm := MeasureMoments(m)
+	st := MeasureInstances(m)
+	mm := map[int]*Moments{1: &st[1].M, 2: &st[2].M}
 	near := func(what string, got, want, tol float64) {
 		if math.Abs(got-want) > tol {
 			t.Errorf("%s = %.4f, want %.4f ± %g", what, got, want, tol)

@@ -918,7 +918,6 @@ func (v *verifier) verifyRecord(r *Record, bad func(check, file, format string, 
 		return
 	}
 	stats := MeasureInstances(inst)
-	moments := MeasureMoments(inst) // measured.go
 	byID := map[int]*Object{}
 	for i := range r.Objects {
 		o := &r.Objects[i]
@@ -934,7 +933,7 @@ func (v *verifier) verifyRecord(r *Record, bad func(check, file, format string, 
 		if st.Area != o.Area {
 			bad(KindArea, r.Instances, "object %d: area %d in the record, %d in the instance mask", o.Instance, o.Area, st.Area)
 		}
-		if msg := CheckMeasured(o, moments[o.Instance]); msg != "" {
+		if msg := CheckMeasured(o, &st.M); msg != "" {
 			bad(KindMeasured, r.Instances, "%s", msg)
 		}
 	}
