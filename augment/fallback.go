@@ -49,7 +49,7 @@ func CheckReadingCuts(p *Plan, defs []manifest.TargetDef) error {
 		return ""
 	}
 	if at := find(p.Geometry.Moves, "geometry.moves"); at != "" {
-		return fmt.Errorf("plan geometry.cuts.policy drop: %s could cut an object that target %q reads, and dropping it would shorten the reading while the image still shows part of the glyph; use policy redraw (copies that cut a read object are drawn again, and not written if no draw keeps it whole)", at, reads)
+		return usageErrorf("plan geometry.cuts.policy drop: %s could cut an object that target %q reads, and dropping it would shorten the reading while the image still shows part of the glyph; use policy redraw (copies that cut a read object are drawn again, and not written if no draw keeps it whole)", at, reads)
 	}
 	return nil
 }

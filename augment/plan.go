@@ -19,6 +19,19 @@ type Range = yamlnode.Range
 // IntRange is a closed integer interval.
 type IntRange = yamlnode.IntRange
 
+// UsageError is a refusal of what the user asked for, not of an input
+// file's content: a plan that would break a class's declared invariance or
+// cut a reading, a --split the input does not have. The command maps it to
+// exit 2.
+type UsageError struct{ Err error }
+
+func (e *UsageError) Error() string { return e.Err.Error() }
+func (e *UsageError) Unwrap() error { return e.Err }
+
+func usageErrorf(format string, args ...any) error {
+	return &UsageError{fmt.Errorf(format, args...)}
+}
+
 // PlanError is a refused plan file: file, line, column, field path, value.
 type PlanError = yamlnode.Error
 

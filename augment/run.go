@@ -161,7 +161,7 @@ func Run(ctx context.Context, o RunOptions) (Summary, error) {
 	}
 	for _, s := range o.Splits {
 		if !known[s] {
-			return Summary{}, fmt.Errorf("--split %s: the input has splits %s", s, strings.Join(in.splits.Names, ", "))
+			return Summary{}, usageErrorf("--split %s: the input has splits %s", s, strings.Join(in.splits.Names, ", "))
 		}
 		augmented[s] = true
 	}
@@ -1137,11 +1137,11 @@ func CheckInvariance(p *Plan, classes []manifest.Class, defs []manifest.TargetDe
 		case "flip":
 			for _, c := range classes {
 				if c.Flip != nil && !*c.Flip {
-					return 0, fmt.Errorf("plan %s (flip %s) would mirror class %q, whose label does not survive a flip (dataset classes: flip false); remove the step or pass --allow-label-change", sp, s.Axis, c.Name)
+					return 0, usageErrorf("plan %s (flip %s) would mirror class %q, whose label does not survive a flip (dataset classes: flip false); remove the step or pass --allow-label-change", sp, s.Axis, c.Name)
 				}
 			}
 			if reads != "" {
-				return 0, fmt.Errorf("plan %s (flip %s) would mirror samples whose target %q reads text; remove the step or pass --allow-label-change", sp, s.Axis, reads)
+				return 0, usageErrorf("plan %s (flip %s) would mirror samples whose target %q reads text; remove the step or pass --allow-label-change", sp, s.Axis, reads)
 			}
 		case "rotate", "warp":
 			turn := 0.0
@@ -1158,11 +1158,11 @@ func CheckInvariance(p *Plan, classes []manifest.Class, defs []manifest.TargetDe
 			}
 			for _, c := range classes {
 				if c.MaxRotate != nil && total > *c.MaxRotate {
-					return 0, fmt.Errorf("plan %s (%s up to %s°%s) turns class %q beyond the %s° that keep its label; narrow the range or pass --allow-label-change", sp, s.Do, fmtDeg(turn), also, c.Name, fmtDeg(*c.MaxRotate))
+					return 0, usageErrorf("plan %s (%s up to %s°%s) turns class %q beyond the %s° that keep its label; narrow the range or pass --allow-label-change", sp, s.Do, fmtDeg(turn), also, c.Name, fmtDeg(*c.MaxRotate))
 				}
 			}
 			if reads != "" && total > 90 {
-				return 0, fmt.Errorf("plan %s (%s up to %s°%s) could turn samples whose target %q reads text upside down; keep turns within ±90° or pass --allow-label-change", sp, s.Do, fmtDeg(turn), also, reads)
+				return 0, usageErrorf("plan %s (%s up to %s°%s) could turn samples whose target %q reads text upside down; keep turns within ±90° or pass --allow-label-change", sp, s.Do, fmtDeg(turn), also, reads)
 			}
 			return total, nil
 		}

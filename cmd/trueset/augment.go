@@ -215,7 +215,8 @@ func runAugment(ctx context.Context, o *augmentOptions, stdout, stderr io.Writer
 	}
 	if err != nil {
 		var pe *augment.PlanError
-		if errors.As(err, &pe) || strings.HasPrefix(err.Error(), "plan ") {
+		var ue *augment.UsageError // a plan that breaks invariance, an unknown --split
+		if errors.As(err, &pe) || errors.As(err, &ue) {
 			return usageError{err}
 		}
 		var ie *augment.InputError
@@ -227,9 +228,6 @@ func runAugment(ctx context.Context, o *augmentOptions, stdout, stderr io.Writer
 				return fmt.Errorf("%w\n%s has no dataset.json, so it is visibly incomplete; fix the input, then start again with --force (or into a new folder)", err, o.out)
 			}
 			return err
-		}
-		if strings.HasPrefix(err.Error(), "--split ") {
-			return usageError{err} // a split the input does not have
 		}
 		var re *augment.ResumeError
 		if resumeRefused(err) || errors.As(err, &re) {
