@@ -18,7 +18,6 @@ import (
 	"slices"
 	"sort"
 	"strings"
-	"sync"
 	"unicode"
 	"unicode/utf8"
 
@@ -646,83 +645,6 @@ func (v *verifier) checkStrata() {
 // MaxVerifyPixels bounds one image verify (and stats, preview, report)
 // decodes (width × height).
 const MaxVerifyPixels = 64 << 20
-
-// SampleFile is one of a record's PNG files, opened for reading through
-// safefile (a regular file inside the dataset folder, at most
-// MaxSampleFileBytes). Its header is checked before anything is decoded.
-type SampleFile struct {
-	Rel  string
-	f    *os.File
-	size int64
-	cfg  image.Config
-	br   *bufio.Reader // from readerPool, reused for every pass over the file
-}
-
-// readerPool holds the buffered readers sample files borrow, so that
-// reading a file three times (hash, header, pixels) across a million
-// records does not allocate a buffer each time.
-var readerPool = sync.Pool{New: func() any { return bufio.NewReaderSize(nil, 32<<10) }}
-
-// SampleError is a sample file that cannot be used, with the kind of check
-// it fails (KindPath, KindMissing, KindFormat or KindSize).
-type SampleError struct {
-	Rel   string
-	Check string
-	Msg   string
-}
-
-func (e *SampleError) Error() string {
-	if strings.HasPrefix(e.Msg, "is ") || strings.HasPrefix(e.Msg, "decodes ") {
-		return e.Rel + " " + e.Msg // "images/a.png is 9x9, the record says 8x8"
-	}
-	return e.Rel + ": " + e.Msg
-}
-
-// OpenSample opens DIR/rel for reading: rel must stay inside dir (no
-// symbolic link out of it), name a regular file (never a pipe or a device,
-// which could hang or never end) of at most MaxSampleFileBytes.
-func OpenSample(dir, rel string) (*SampleFile, error) {
-	p, err := ResolveInside(dir, rel)
-	if err != nil {
-		return nil, &SampleError{Rel: rel, Check: KindPath, Msg: err.Error()}
-	}
-	f, err := safefile.Open(p)
-	if err != nil {
-		return nil, &SampleError{Rel: rel, Check: KindMissing, Msg: safefile.Msg(err)}
-	}
-	st, err := f.Stat()
-	if err != nil {
-		f.Close()
-		return nil, &SampleError{Rel: rel, Check: KindMissing, Msg: err.Error()}
-	}
-	if st.Size() > MaxSampleFileBytes {
-		f.Close()
-		return nil, &SampleError{Rel: rel, Check: KindSize, Msg: fmt.Sprintf("%d bytes; a sample file may take at most %d", st.Size(), MaxSampleFileBytes)}
-	}
-	return &SampleFile{Rel: rel, f: f, size: st.Size()}, nil
-}
-
-// Close closes the file.
-func (s *SampleFile) Close() {
-	s.f.Close()
-	if s.br != nil {
-		s.br.Reset(nil)
-		readerPool.Put(s.br)
-		s.br = nil
-	}
-}
-
-func (s *SampleFile) reader() (*bufio.Reader, error) {
-	if _, err := s.f.Seek(0, io.SeekStart); err != nil {
-		return nil, &SampleError{Rel: s.Rel, Check: KindMissing, Msg: err.Error()}
-	}
-	if s.br == nil {
-		s.br = readerPool.Get().(*bufio.Reader)
-	}
-	// Never more than the size seen at open: a file that grows is not read on.
-	s.br.Reset(io.LimitReader(s.f, s.size))
-	return s.br, nil
-}
 
 // SHA256 is the hex SHA-256 of the whole file, streamed.
 func (s *SampleFile) SHA256() (string, error) {
