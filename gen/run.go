@@ -29,6 +29,8 @@ type RunOptions struct {
 	Shard, Shards   int    // render only shard Shard of Shards (Shards 0 = the whole set)
 	Force           bool
 	Resume          bool        // continue an interrupted run of the same recipe, seed and options in Out
+	Layout          string      // manifest.LayoutFolder ("" too) or manifest.LayoutPacked
+	PackBytes       int64       // the packed layout's bound on a pack (0 = manifest.DefaultPackBytes)
 	FS              manifest.FS // nil = the real file system
 	Version         string
 	Progress        func(done, total int) // called from one goroutine, in order
@@ -200,13 +202,15 @@ func Run(ctx context.Context, o RunOptions) (Summary, error) {
 		Shard       int    `json:"shard"`
 		Shards      int    `json:"shards"`
 		Cover       bool   `json:"require_coverage,omitempty"` // another allocation: not the same run
-	}{"generate", o.Version, recipeHash, o.Seed, o.Count, table.Spec, o.Stratify, o.Shard, o.Shards, o.RequireCoverage})
+		Layout      string `json:"layout,omitempty"`
+		PackBytes   int64  `json:"pack_bytes,omitempty"`
+	}{"generate", o.Version, recipeHash, o.Seed, o.Count, table.Spec, o.Stratify, o.Shard, o.Shards, o.RequireCoverage, packedOnly(o.Layout), packBytes(o)})
 	// A layout no sample can meet fails here, before the folder is touched,
 	// rather than after the run has started (and invited a --resume).
 	if _, err := NewRenderer(r).Generate(o.Seed, first); err != nil {
 		return Summary{Splits: table}, r.layoutRecipeError(err)
 	}
-	co := manifest.CreateOptions{Force: o.Force, FS: o.FS, Marker: marker}
+	co := manifest.CreateOptions{Force: o.Force, FS: o.FS, Marker: marker, Layout: o.Layout, PackBytes: packBytes(o)}
 	var w *manifest.Writer
 	resumed := 0
 	if o.Resume {
@@ -288,4 +292,24 @@ func (r *Recipe) layoutRecipeError(err error) error {
 	}
 	return &RecipeError{File: file, Path: le.Path(),
 		Msg: fmt.Sprintf("sample %d cannot be laid out: %s (gave up after %d attempts); loosen the layout: fewer or smaller objects, a larger region, more overlap or lower least_pixels/least_shown", le.Index, le.Constraint, MaxAttempts)}
+}
+
+// packedOnly is the layout a run marker names: "" for the folder layout,
+// so markers of folder runs read as before.
+func packedOnly(layout string) string {
+	if layout == manifest.LayoutPacked {
+		return layout
+	}
+	return ""
+}
+
+// packBytes is the pack bound of a packed run (0 for the folder layout).
+func packBytes(o RunOptions) int64 {
+	if o.Layout != manifest.LayoutPacked {
+		return 0
+	}
+	if o.PackBytes <= 0 {
+		return manifest.DefaultPackBytes
+	}
+	return o.PackBytes
 }

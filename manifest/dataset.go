@@ -41,6 +41,8 @@ type Dataset struct {
 	Splits         SplitTable      `json:"splits"`
 	Augment        *AugmentInfo    `json:"augment,omitempty"`
 	ManifestSHA256 string          `json:"manifest_sha256"`
+	// Layout is present for the packed layout only (pack.go).
+	Layout *Layout `json:"layout,omitempty"`
 }
 
 // AugmentInfo records how an augmented dataset was made from its source.

@@ -36,6 +36,9 @@ func (w *Writer) FinishShard(s *Shard) (int64, error) {
 	}
 	s.PartSHA256 = hex.EncodeToString(w.sum.Sum(nil))
 	s.Dataset.Format = Format
+	if err := w.finishPacks(&s.Dataset); err != nil {
+		return 0, err
+	}
 	var buf bytes.Buffer
 	enc := json.NewEncoder(&buf)
 	enc.SetIndent("", "  ")
@@ -172,16 +175,21 @@ func Merge(dirs []string, out string, force bool) (int64, error) {
 	return total + n, err
 }
 
-// copyChecked copies a record's file rel from a shard to out. The source
-// must be a regular file inside the shard (a symbolic link out of it is
-// refused) whose SHA-256 is the one the record gives.
+// copyChecked copies a record's file rel from a shard to out. The source is
+// read through ReadSample (in the folder layout a regular file inside the
+// shard, a symbolic link out of it refused) and its SHA-256 must be the one
+// the record gives.
 func copyChecked(dir, out, rel, kind string, r *Record) (int64, error) {
-	src, err := ResolveInside(dir, rel)
+	src := filepath.Join(dir, rel)
+	b, err := ReadSample(dir, rel)
 	if err != nil {
-		return 0, fmt.Errorf("record %s: %s: %w", r.ID, kind, err)
-	}
-	b, err := safefile.Read(src, kind+" file", MaxSampleFileBytes)
-	if err != nil {
+		var se *SampleError
+		if errors.As(err, &se) && se.Check == KindPath {
+			return 0, fmt.Errorf("record %s: %s: %s", r.ID, kind, se.Msg)
+		}
+		if errors.As(err, &se) {
+			return 0, fmt.Errorf("record %s: %s: %s", r.ID, src, se.Msg)
+		}
 		return 0, fmt.Errorf("record %s: %w", r.ID, err)
 	}
 	if got, want := SHA256Hex(b), r.SHA256[kind]; got != want {

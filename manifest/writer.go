@@ -34,7 +34,8 @@ type Writer struct {
 	sum    hash.Hash
 	bytes  int64
 	marker bool
-	lock   *Lock // held from Create or Resume to Finish or Abort
+	lock   *Lock   // held from Create or Resume to Finish or Abort
+	pack   *packer // the packed layout; nil = folder
 }
 
 // CreateOptions configures Create and Resume.
@@ -42,6 +43,10 @@ type CreateOptions struct {
 	Force  bool   // write into a folder that is not empty
 	FS     FS     // nil = OS
 	Marker []byte // the run's identity, written to RunMarkerFile; nil = no marker
+	// Layout is LayoutFolder ("" too) or LayoutPacked; PackBytes bounds a
+	// pack (0 = DefaultPackBytes).
+	Layout    string
+	PackBytes int64
 }
 
 // Create prepares dir for a new dataset. A folder that already holds files is
@@ -105,9 +110,16 @@ func CreateWith(dir string, o CreateOptions) (*Writer, error) {
 		}
 		w.marker = true
 	}
-	for _, sub := range []string{ImagesDir, MasksDir, InstancesDir} {
-		if err := fsys.MkdirAll(filepath.Join(dir, sub), 0o755); err != nil {
+	if o.Layout == LayoutPacked {
+		w.pack = newPacker(dir, o.PackBytes, fsys)
+		if err := w.pack.createIndex(); err != nil {
 			return nil, err
+		}
+	} else {
+		for _, sub := range []string{ImagesDir, MasksDir, InstancesDir} {
+			if err := fsys.MkdirAll(filepath.Join(dir, sub), 0o755); err != nil {
+				return nil, err
+			}
 		}
 	}
 	f, err := fsys.OpenFile(filepath.Join(dir, ManifestFile), os.O_RDWR|os.O_CREATE|os.O_TRUNC, 0o644)
@@ -246,9 +258,17 @@ func Resume(dir string, o CreateOptions, keep func(n int) int) (*Writer, int, er
 	if err := removeTemps(fsys, dir); err != nil {
 		return nil, 0, err
 	}
-	for _, sub := range []string{ImagesDir, MasksDir, InstancesDir} {
-		if err := fsys.MkdirAll(filepath.Join(dir, sub), 0o755); err != nil {
+	var ps *packScan
+	if o.Layout == LayoutPacked {
+		if ps, err = newPackScan(dir); err != nil {
 			return nil, 0, err
+		}
+		defer ps.close()
+	} else {
+		for _, sub := range []string{ImagesDir, MasksDir, InstancesDir} {
+			if err := fsys.MkdirAll(filepath.Join(dir, sub), 0o755); err != nil {
+				return nil, 0, err
+			}
 		}
 	}
 	path := filepath.Join(dir, ManifestFile)
@@ -265,7 +285,10 @@ func Resume(dir string, o CreateOptions, keep func(n int) int) (*Writer, int, er
 		}
 		line := data[off : off+nl]
 		var rec Record
-		if json.Unmarshal(line, &rec) != nil || !filesIntact(dir, &rec) {
+		if json.Unmarshal(line, &rec) != nil {
+			break
+		}
+		if ps != nil && !ps.intact(&rec, line) || ps == nil && !filesIntact(dir, &rec) {
 			break
 		}
 		off += nl + 1
@@ -292,6 +315,12 @@ func Resume(dir string, o CreateOptions, keep func(n int) int) (*Writer, int, er
 		return nil, 0, err
 	}
 	w := &Writer{Dir: dir, fs: fsys, f: f, bw: bufio.NewWriterSize(f, 1<<16), sum: sha256.New(), bytes: int64(cut), marker: true, lock: lk}
+	if ps != nil {
+		if w.pack, err = ps.rebuild(n, fsys, o.PackBytes); err != nil {
+			f.Close()
+			return nil, 0, err
+		}
+	}
 	w.sum.Write(data[:cut])
 	ok = true
 	return w, n, nil
@@ -356,7 +385,9 @@ func (w *Writer) WriteFiles(rec *Record, enc *Encoder, img, mask, inst image.Ima
 		if err != nil {
 			return n, fmt.Errorf("encode %s: %w", it.rel, err)
 		}
-		if err := writeAtomic(w.fs, filepath.Join(w.Dir, it.rel), b); err != nil {
+		if w.pack != nil {
+			w.pack.stage(it.rel, b)
+		} else if err := writeAtomic(w.fs, filepath.Join(w.Dir, it.rel), b); err != nil {
 			return n, err
 		}
 		rec.SHA256[it.key] = SHA256Hex(b)
@@ -374,7 +405,25 @@ func (w *Writer) Append(rec *Record) error {
 	if len(b) > MaxRecordBytes {
 		return fmt.Errorf("record %s is %d bytes of JSON; a manifest line may hold at most %d (too many objects, or names too long)", rec.ID, len(b), MaxRecordBytes)
 	}
-	b = append(b, '\n')
+	return w.appendLine(rec, b)
+}
+
+// AppendRaw adds a record whose manifest line is line (without its
+// newline) as it is, so a conversion keeps manifest.jsonl byte for byte.
+func (w *Writer) AppendRaw(rec *Record, line []byte) error {
+	if len(line) > MaxRecordBytes {
+		return fmt.Errorf("record %s is %d bytes of JSON; a manifest line may hold at most %d", rec.ID, len(line), MaxRecordBytes)
+	}
+	return w.appendLine(rec, line)
+}
+
+func (w *Writer) appendLine(rec *Record, b []byte) error {
+	if w.pack != nil {
+		if err := w.pack.appendSample(rec, b); err != nil {
+			return err
+		}
+	}
+	b = append(b[:len(b):len(b)], '\n')
 	w.sum.Write(b)
 	w.bytes += int64(len(b))
 	if _, err := w.bw.Write(b); err != nil {
@@ -386,7 +435,26 @@ func (w *Writer) Append(rec *Record) error {
 // WriteRaw writes b to rel inside the dataset atomically (files carried over
 // byte for byte).
 func (w *Writer) WriteRaw(rel string, b []byte) error {
+	if w.pack != nil {
+		w.pack.stage(rel, b)
+		return nil
+	}
 	return writeAtomic(w.fs, filepath.Join(w.Dir, rel), b)
+}
+
+// finishPacks closes the packs and the index and sets d.Layout (nil in
+// the folder layout).
+func (w *Writer) finishPacks(d *Dataset) error {
+	d.Layout = nil
+	if w.pack == nil {
+		return nil
+	}
+	l, err := w.pack.finish()
+	if err != nil {
+		return err
+	}
+	d.Layout = l
+	return nil
 }
 
 func (w *Writer) dropMarker() error {
@@ -401,6 +469,9 @@ func (w *Writer) dropMarker() error {
 
 // Abort closes the manifest without marking the dataset complete.
 func (w *Writer) Abort() {
+	if w.pack != nil {
+		w.pack.abort()
+	}
 	w.bw.Flush()
 	w.f.Close()
 	w.lock.Unlock()
@@ -431,6 +502,9 @@ func (w *Writer) Finish(d *Dataset) (int64, error) {
 	}
 	d.Format = Format
 	d.ManifestSHA256 = hex.EncodeToString(w.sum.Sum(nil))
+	if err := w.finishPacks(d); err != nil {
+		return 0, err
+	}
 	b, err := MarshalDataset(d)
 	if err != nil {
 		return 0, err

@@ -37,6 +37,7 @@ type generateOptions struct {
 	resume  bool
 	quiet   bool
 	json    bool
+	layoutFlags
 }
 
 func newGenerateCmd(stdout, stderr io.Writer) *cobra.Command {
@@ -67,6 +68,11 @@ single run would write. Without --shard, a Kubernetes Indexed Job
 (JOB_COMPLETION_INDEX, with --shards N) or a Slurm job array
 (SLURM_ARRAY_TASK_ID, SLURM_ARRAY_TASK_COUNT, SLURM_ARRAY_TASK_MIN) sets it.
 
+--layout packed writes each split as a sequence of tar archives (pax) of at
+most --pack-size bytes under packs/, with packs/index.jsonl and the same
+manifest.jsonl, for training jobs that stream from object storage; every
+command reads both layouts and ` + "`trueset convert`" + ` turns one into the other.
+
 The same tool version, recipe and seed give byte-identical files whatever
 --workers is.`,
 		Example: `  # the default preset (` + gen.DefaultPreset + `), 1000 samples
@@ -80,6 +86,9 @@ The same tool version, recipe and seed give byte-identical files whatever
 
   # every split must see every number of dice
   trueset generate --preset tabletop-dice --stratify dice --require-coverage --out dice
+
+  # packed: tar archives of at most 64 MiB per split, for streaming
+  trueset generate --count 20000 --layout packed --pack-size 64MiB --out parts-packed
 
   # shard 2 of 7 on one machine of a batch; then merge the seven folders
   trueset generate --preset bin-labels --count 70000 --shard 2/7 --out part-2
@@ -105,6 +114,7 @@ The same tool version, recipe and seed give byte-identical files whatever
 	f.BoolVar(&o.resume, "resume", false, "continue an interrupted run in --out (same recipe, seed and options); the result equals an uninterrupted run")
 	f.BoolVarP(&o.quiet, "quiet", "q", false, "no progress bar and no summary")
 	f.BoolVar(&o.json, "json", false, "print the summary as one JSON document on stdout instead of text (errors still go to stderr)")
+	o.layoutFlags.bind(f, manifest.LayoutFolder)
 	return cmd
 }
 
@@ -129,6 +139,10 @@ func runGenerate(ctx context.Context, o *generateOptions, stdout, stderr io.Writ
 	if o.out == "" {
 		return usagef("--out DIR is required")
 	}
+	layout, packBytes, err := o.layoutFlags.resolve()
+	if err != nil {
+		return err
+	}
 	if err := checkOutFolder(o.out); err != nil {
 		return err
 	}
@@ -142,7 +156,6 @@ func runGenerate(ctx context.Context, o *generateOptions, stdout, stderr io.Writ
 		return usagef("--workers %d: want 1..1024", o.workers)
 	}
 	var r *gen.Recipe
-	var err error
 	switch {
 	case o.recipe != "":
 		if err := fileExists("--recipe", o.recipe); err != nil {
@@ -212,6 +225,7 @@ func runGenerate(ctx context.Context, o *generateOptions, stdout, stderr io.Writ
 		Recipe: r, Out: o.out, Count: o.count, Seed: o.seed, Workers: o.workers,
 		Splits: o.ratios, Stratify: o.strat, RequireCoverage: o.cover,
 		Shard: shard, Shards: shards, Force: o.force, Resume: o.resume, Version: version,
+		Layout: layout, PackBytes: packBytes,
 		Progress: func(done, total int) { bar.set(done) },
 	})
 	bar.finish()
