@@ -366,16 +366,13 @@ func (in *input) checkHeaders(rec *manifest.Record) error {
 		return fmt.Errorf("record %s: width and height are %d×%d; want a size of at least 1×1", rec.ID, rec.Width, rec.Height)
 	}
 	for i, rel := range recordFiles(rec) {
-		p, err := in.safePath(rel)
+		p := in.path(rel)
+		f, err := manifest.OpenSample(in.dir, rel)
 		if err != nil {
-			return fmt.Errorf("record %s: %w", rec.ID, err)
-		}
-		f, err := safefile.Open(p)
-		if err != nil {
-			return fmt.Errorf("record %s: %w", rec.ID, err)
+			return in.fileErr(rec, err)
 		}
 		var b [pngHeaderBytes]byte
-		_, err = io.ReadFull(f, b[:])
+		_, err = io.ReadFull(f.Section(), b[:])
 		f.Close()
 		if err != nil {
 			return fmt.Errorf("record %s: %s: not a PNG: shorter than a PNG header", rec.ID, p)
@@ -410,16 +407,13 @@ func (in *input) checkHeaders(rec *manifest.Record) error {
 // checkSums checks a record's three files against its SHA-256s.
 func (in *input) checkSums(rec *manifest.Record) error {
 	for i, rel := range recordFiles(rec) {
-		p, err := in.safePath(rel)
+		p := in.path(rel)
+		f, err := manifest.OpenSample(in.dir, rel)
 		if err != nil {
-			return fmt.Errorf("record %s: %w", rec.ID, err)
-		}
-		f, err := safefile.Open(p)
-		if err != nil {
-			return fmt.Errorf("record %s: %w", rec.ID, err)
+			return in.fileErr(rec, err)
 		}
 		h := sha256.New()
-		_, err = io.Copy(h, io.LimitReader(f, manifest.MaxSampleFileBytes+1))
+		_, err = io.Copy(h, f.Section())
 		f.Close()
 		if err != nil {
 			return fmt.Errorf("record %s: %s: %v", rec.ID, p, err)
@@ -431,10 +425,25 @@ func (in *input) checkSums(rec *manifest.Record) error {
 	return nil
 }
 
-// safePath resolves a record path inside the input folder, refusing paths
-// that leave it, symbolic links included.
-func (in *input) safePath(rel string) (string, error) {
-	return manifest.ResolveInside(in.dir, rel)
+// path is how messages name the record file rel of the input: the folder
+// and the record's path, in either layout (in the packed layout the file is
+// a member of a pack, found by the same path).
+func (in *input) path(rel string) string {
+	return filepath.Join(in.dir, rel)
+}
+
+// fileErr words a record file that manifest.OpenSample or ReadSample
+// refused: a path that leaves the folder as the path check says it, any
+// other refusal after the file's path.
+func (in *input) fileErr(rec *manifest.Record, err error) error {
+	var se *manifest.SampleError
+	if errors.As(err, &se) {
+		if se.Check == manifest.KindPath {
+			return fmt.Errorf("record %s: %s", rec.ID, se.Msg)
+		}
+		return fmt.Errorf("record %s: %s: %s", rec.ID, in.path(se.Rel), se.Msg)
+	}
+	return fmt.Errorf("record %s: %w", rec.ID, err)
 }
 
 // dataset builds the output dataset.json.
@@ -562,16 +571,12 @@ func (in *input) carryOver(rec *manifest.Record, decodeImage bool, w *manifest.W
 	var n int64
 	var raw [3][]byte
 	for i, rel := range recordFiles(rec) {
-		p, err := in.safePath(rel)
+		b, err := manifest.ReadSample(in.dir, rel)
 		if err != nil {
-			return nil, n, &InputError{fmt.Errorf("record %s: %w", rec.ID, err)}
-		}
-		b, err := safefile.Read(p, headerRoles[i].what, manifest.MaxSampleFileBytes)
-		if err != nil {
-			return nil, n, &InputError{fmt.Errorf("record %s: %w", rec.ID, err)}
+			return nil, n, &InputError{in.fileErr(rec, err)}
 		}
 		if got := manifest.SHA256Hex(b); got != rec.SHA256[headerRoles[i].key] {
-			return nil, n, &InputError{fmt.Errorf("record %s: %s: SHA-256 %s, the record says %s; run trueset verify on the input", rec.ID, p, got, rec.SHA256[headerRoles[i].key])}
+			return nil, n, &InputError{fmt.Errorf("record %s: %s: SHA-256 %s, the record says %s; run trueset verify on the input", rec.ID, in.path(rel), got, rec.SHA256[headerRoles[i].key])}
 		}
 		raw[i] = b
 	}

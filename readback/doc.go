@@ -5,7 +5,8 @@
 //
 // Contract:
 //
-//   - Input: a trueset dataset folder (read through package manifest) and
+//   - Input: a trueset dataset folder in either layout (read through package
+//     manifest; its sample files through manifest.OpenSample) and
 //     one .npz file (NumPy's documented NPZ format: a zip archive of .npy
 //     arrays, read with codeberg.org/sbinet/npyio). Every file is opened
 //     through internal/safefile; the archive's entries, their uncompressed

@@ -1,17 +1,15 @@
 package readback
 
 import (
-	"bytes"
 	"fmt"
 	"image"
-	"image/png"
 	"sync"
 
-	"github.com/trueset/trueset/internal/safefile"
 	"github.com/trueset/trueset/manifest"
 )
 
-// MaxSourcePixels bounds one source image readback decodes (width × height).
+// MaxSourcePixels bounds one source image readback decodes (width × height):
+// the budget manifest.SampleFile.Header applies.
 const MaxSourcePixels = manifest.MaxVerifyPixels
 
 // source is one record's truth, decoded: the image as planar float32 in
@@ -31,32 +29,19 @@ type source struct {
 	instErr  error
 }
 
-// readPNG reads one record file through safefile and decodes it, checking
-// its size against the record before decoding in full.
+// readPNG reads one record file through manifest.OpenSample (a file of the
+// folder or a member of a pack) and decodes it, checking its size against
+// the record, and the pixel budget, before decoding in full.
 func readPNG(dir, rel string, w, h int) (image.Image, error) {
-	p, err := manifest.ResolveInside(dir, rel)
+	f, err := manifest.OpenSample(dir, rel)
 	if err != nil {
 		return nil, err
 	}
-	b, err := safefile.Read(p, "sample file", manifest.MaxSampleFileBytes)
-	if err != nil {
+	defer f.Close()
+	if _, err := f.Header(w, h); err != nil {
 		return nil, err
 	}
-	cfg, err := png.DecodeConfig(bytes.NewReader(b))
-	if err != nil {
-		return nil, fmt.Errorf("%s: not a readable PNG: %w", rel, err)
-	}
-	if cfg.Width != w || cfg.Height != h {
-		return nil, fmt.Errorf("%s is %dx%d, the record says %dx%d", rel, cfg.Width, cfg.Height, w, h)
-	}
-	if int64(w)*int64(h) > MaxSourcePixels {
-		return nil, fmt.Errorf("%s: %dx%d is over the budget of %d pixels", rel, w, h, MaxSourcePixels)
-	}
-	m, err := png.Decode(bytes.NewReader(b))
-	if err != nil {
-		return nil, fmt.Errorf("%s: not a readable PNG: %w", rel, err)
-	}
-	return m, nil
+	return f.Decode()
 }
 
 func loadSource(dir string, r *manifest.Record, withInst bool) (*source, error) {
