@@ -247,7 +247,10 @@ func (c *countOnly) Write(b []byte) (int, error) { c.n += int64(len(b)); return 
 // appendSample writes one sample's four members to its split's pack, and
 // its index line. line is the manifest line without the newline.
 func (p *packer) appendSample(rec *Record, line []byte) error {
-	names := [4]string{RecordMember(rec.ID), rec.Image, rec.Mask, rec.Instances}
+	names := MemberNames(rec.ID)
+	if rec.Image != names[1] || rec.Mask != names[2] || rec.Instances != names[3] {
+		return fmt.Errorf("record %s: files %s, %s, %s; the packed layout stores a sample's files as %s, %s, %s", rec.ID, rec.Image, rec.Mask, rec.Instances, names[1], names[2], names[3])
+	}
 	var data [4][]byte
 	data[0] = line
 	for i, rel := range names[1:] {

@@ -244,12 +244,12 @@ func (px *packIndex) open(rel string) (*SampleFile, error) {
 	}
 	f, err := safefile.Open(p)
 	if err != nil {
-		return nil, &SampleError{Rel: rel, Check: KindMissing, Msg: safefile.Msg(err)}
+		return nil, &SampleError{Rel: rel, Check: KindMissing, Msg: "in " + name + ", which " + safefile.Msg(err)}
 	}
 	st, err := f.Stat()
 	if err != nil {
 		f.Close()
-		return nil, &SampleError{Rel: rel, Check: KindMissing, Msg: err.Error()}
+		return nil, &SampleError{Rel: rel, Check: KindMissing, Msg: name + ": " + err.Error()}
 	}
 	if end := e.off[k] + e.size[k]; end > st.Size() {
 		f.Close()

@@ -56,11 +56,12 @@ const (
 	KindSplitTable  = "split-table"  // record counts, split counts or the strata table disagree with dataset.json
 	KindGroupLeak   = "group-leak"   // one group's records are in more than one split
 	KindClassTable  = "class-table"  // dataset.json's class table cannot describe 8-bit masks (ids, names)
+	KindPack        = "pack"         // packed layout: a pack or packs/index.jsonl disagrees with dataset.json's layout, the manifest or the layout's rules
 )
 
 // ProblemKinds lists every kind of check, in the order above.
 var ProblemKinds = []string{KindIncomplete, KindFormat, KindMissing, KindPath, KindSHA256, KindSize, KindInstance,
-	KindBox, KindArea, KindClassPixels, KindTarget, KindDuplicateID, KindSplit, KindSplitTable, KindGroupLeak, KindClassTable}
+	KindBox, KindArea, KindClassPixels, KindTarget, KindDuplicateID, KindSplit, KindSplitTable, KindGroupLeak, KindClassTable, KindPack}
 
 func (p Problem) String() string {
 	if p.ID == "" {
@@ -406,6 +407,7 @@ func (v *verifier) run() (int, error) {
 		}
 	}
 	v.checkStrata()
+	v.checkPacks()
 	return n, nil
 }
 

@@ -60,7 +60,7 @@ anyone can regenerate byte for byte from the recipe and the seed.`,
 		return usageError{fmt.Errorf("%s\nsee: %s --help", flagErrorText(c, err), c.CommandPath())}
 	})
 	root.AddCommand(newGenerateCmd(stdout, stderr), newAugmentCmd(stdout, stderr), newSplitCmd(stdout, stderr), newVerifyCmd(stdout, stderr),
-		newMergeCmd(stdout), newPresetsCmd(stdout), newVersionCmd(stdout), newStatsCmd(stdout), newPreviewCmd(stdout))
+		newMergeCmd(stdout), newConvertCmd(stdout, stderr), newPresetsCmd(stdout), newVersionCmd(stdout), newStatsCmd(stdout), newPreviewCmd(stdout))
 	root.AddCommand(newCompletionCmd(stdout), newManCmd(stdout))
 	root.AddCommand(newReportCmd(stdout))
 	root.AddCommand(newReadbackCmd(stdout))
