@@ -1,8 +1,8 @@
 #!/usr/bin/env bash
-# CI for the Python loader (examples/python): installs Debian's numpy and
-# Pillow if they are missing, builds trueset, generates a small set of every
-# preset, an augmented set and an augmented plain folder, and checks the
-# loader against all of them.
+# CI for the Python loader (examples/python): installs Debian's numpy,
+# Pillow and PyTorch if they are missing, builds trueset, generates a small
+# set of every preset, an augmented set, an augmented plain folder and
+# packed twins of two presets, and checks the loader against all of them.
 # Runs the same locally (`bash .ci/python.sh`) and in CI (root on Debian).
 set -euo pipefail
 
@@ -13,16 +13,18 @@ cd "$(dirname "${BASH_SOURCE[0]}")/.."
 PY=/usr/bin/python3
 COUNT=${COUNT:-30}
 
-echo "== numpy and Pillow for $PY"
-if ! "$PY" -c 'import numpy, PIL' 2>/dev/null; then
+# PyTorch (Debian's python3-torch, as .ci/instruments.sh installs it): the
+# packed reader's IterableDataset is tested in a real DataLoader with workers.
+echo "== numpy, Pillow and PyTorch for $PY"
+if ! "$PY" -c 'import numpy, PIL, torch' 2>/dev/null; then
 	if [ "$(id -u)" -ne 0 ]; then
-		echo "$PY lacks numpy or Pillow; as root run: apt-get install python3-numpy python3-pil" >&2
+		echo "$PY lacks numpy, Pillow or PyTorch; as root run: apt-get install python3-numpy python3-pil python3-torch" >&2
 		exit 1
 	fi
 	apt-get update
-	DEBIAN_FRONTEND=noninteractive apt-get install -y python3-numpy python3-pil
+	DEBIAN_FRONTEND=noninteractive apt-get install -y --no-install-recommends python3-numpy python3-pil python3-torch
 fi
-"$PY" -c 'import numpy, PIL; print("numpy", numpy.__version__, "Pillow", PIL.__version__)'
+"$PY" -c 'import numpy, PIL, torch; print("numpy", numpy.__version__, "Pillow", PIL.__version__, "torch", torch.__version__)'
 
 work="$(mktemp -d)"
 trap 'rm -rf "$work"' EXIT
@@ -60,6 +62,18 @@ dirs+=("$work/plain-aug")
 echo "== $PY examples/python/test_loader.py"
 "$PY" examples/python/test_loader.py "${dirs[@]}"
 
+# The packed layout (issue 15): packed twins (same preset, count and seed,
+# 64KiB packs: several per split) of an rgb and a gray preset, streamed by
+# iter_packed and PackedIterableDataset and compared with the folder loader
+# sample for sample; test_packed.py also writes packs of its own with
+# tarfile to read, and damages copies of both to be refused.
+for p in tabletop-dice workshop-parts; do
+	echo "== generate $p --layout packed ($COUNT samples), then $PY examples/python/test_packed.py"
+	"$work/trueset" generate --preset "$p" --count "$COUNT" --seed 1 --out "$work/$p-packed" \
+		--layout packed --pack-size 64KiB --quiet
+	"$PY" examples/python/test_packed.py "$work/$p" "$work/$p-packed"
+done
+
 # trueset readback (issue 13): planted pipeline bugs over an augmented dice
 # set (its copies hold ignore pixels), each to be named on the right samples,
 # and correct pipelines that must give no error.
@@ -92,7 +106,8 @@ cp -r examples/python "$work/pkg"
 rm -rf "$work/pkg/build" "$work/pkg"/*.egg-info
 "$VPY" -m pip install --quiet --no-build-isolation --no-index "$work/pkg"
 mkdir "$work/pytests"
-cp examples/python/test_loader.py examples/python/test_readback.py examples/python/readback_corpus.py "$work/pytests/"
+cp examples/python/test_loader.py examples/python/test_readback.py examples/python/readback_corpus.py \
+	examples/python/test_packed.py "$work/pytests/"
 (cd "$work" && "$VPY" -c '
 import os, sys, trueset_loader
 where = os.path.realpath(trueset_loader.__file__)
@@ -102,6 +117,8 @@ print("installed:", where)
 ' "$work/venv")
 echo "== installed package: test_loader.py"
 "$VPY" "$work/pytests/test_loader.py" "${dirs[@]}"
+echo "== installed package: test_packed.py tabletop-dice"
+"$VPY" "$work/pytests/test_packed.py" "$work/tabletop-dice" "$work/tabletop-dice-packed"
 echo "== installed package: readback corpus"
 "$VPY" "$work/pytests/readback_corpus.py" "$work/rb-dice-aug" "$work/rb-corpus-venv"
 "$VPY" "$work/pytests/test_readback.py" "$work/trueset" "$work/rb-dice-aug" "$work/rb-corpus-venv"

@@ -1,7 +1,8 @@
 """Read a trueset dataset folder in Python.
 
 Needs numpy and Pillow. If PyTorch is importable, TorchDataset (a
-torch.utils.data.Dataset) and torch_collate are defined as well.
+torch.utils.data.Dataset), torch_collate and PackedIterableDataset (a
+torch.utils.data.IterableDataset over tar packs) are defined as well.
 
     from trueset_loader import TruesetDataset
     train = TruesetDataset("dice", split="train")
@@ -22,11 +23,22 @@ PNG whose palette indices are the class ids) and instances/ (16-bit gray
 PNG whose values are the instance ids). Every path a record names must stay
 inside the dataset folder; a path that leaves it (absolute, "..", or a
 symbolic link pointing out) is refused with ValueError.
+
+A dataset in the packed layout (dataset.json's "layout" kind "packed": each
+split as tar packs) is streamed with iter_packed, which yields the same
+sample dicts:
+
+    from trueset_loader import iter_packed
+    for s in iter_packed("dice-packed", split="train"):
+        ...
 """
 
 import hashlib
+import io
 import json
 import os
+import random
+import tarfile
 
 import numpy as np
 from PIL import Image
@@ -41,7 +53,19 @@ FORMAT = "trueset-dataset/2"
 IGNORE_ID = 255
 
 __all__ = ["FORMAT", "IGNORE_ID", "TruesetDataset", "check_format", "load_splits", "iter_split",
-           "collate", "read_mask", "read_instances", "read_image", "safe_path", "dump_batch"]
+           "collate", "read_mask", "read_instances", "read_image", "safe_path", "dump_batch",
+           "iter_packed", "pack_list", "shard_packs", "shuffle_buffer", "SHA256_PAX_KEY"]
+
+
+def _clean_parts(rel):
+    """The parts of a clean relative path with forward slashes and no "."
+    or ".." part; ValueError for anything else."""
+    if not isinstance(rel, str) or rel == "" or "\\" in rel or rel.startswith("/") or os.path.isabs(rel):
+        raise ValueError("path %r leaves the dataset folder" % (rel,))
+    parts = rel.split("/")
+    if any(p in ("", ".", "..") for p in parts):
+        raise ValueError("path %r leaves the dataset folder (or is not clean)" % (rel,))
+    return parts
 
 
 def safe_path(root, rel):
@@ -51,11 +75,7 @@ def safe_path(root, rel):
     clean relative path with forward slashes and no ".." part, and after
     resolving symbolic links it must still be inside root.
     """
-    if not isinstance(rel, str) or rel == "" or "\\" in rel or rel.startswith("/") or os.path.isabs(rel):
-        raise ValueError("path %r leaves the dataset folder" % (rel,))
-    parts = rel.split("/")
-    if any(p in ("", ".", "..") for p in parts):
-        raise ValueError("path %r leaves the dataset folder (or is not clean)" % (rel,))
+    parts = _clean_parts(rel)
     real_root = os.path.realpath(root)
     p = os.path.join(real_root, *parts)
     real = os.path.realpath(p)
@@ -72,10 +92,15 @@ def read_image(path, mode=None):
     of gray and color images) each image stays gray or RGB as stored.
     """
     with Image.open(path) as img:
-        want = {"gray": "L", "rgb": "RGB"}.get(mode, img.mode if img.mode in ("L", "RGB") else "RGB")
-        if img.mode != want:
-            img = img.convert(want)
-        return np.array(img, dtype=np.uint8)
+        return image_array(img, mode)
+
+
+def image_array(img, mode=None):
+    """read_image of an opened Pillow image."""
+    want = {"gray": "L", "rgb": "RGB"}.get(mode, img.mode if img.mode in ("L", "RGB") else "RGB")
+    if img.mode != want:
+        img = img.convert(want)
+    return np.array(img, dtype=np.uint8)
 
 
 def mask_ids(img):
@@ -183,6 +208,9 @@ class TruesetDataset(object):
         with open(dpath, encoding="utf-8") as f:
             self.info = json.load(f)
         check_format(self.info, dpath)
+        if "layout" in self.info:
+            raise ValueError("%s: the dataset is in the %r layout (tar packs); read it with iter_packed or "
+                             "PackedIterableDataset" % (dpath, (self.info["layout"] or {}).get("kind")))
         self.class_table = self.info["classes"]
         self.class_names = {c["id"]: c["name"] for c in self.class_table}
         self.split_names = list(self.info["splits"]["names"])
@@ -215,26 +243,32 @@ class TruesetDataset(object):
         image = read_image(self._file(rec, "image"), self.info.get("mode"))
         mask = read_mask(self._file(rec, "mask"))
         instances = read_instances(self._file(rec, "instances"))
+        return _sample(rec, image, mask, instances, self.class_table)
+
+
+def _sample(rec, image, mask, instances, class_table, check_shape=True):
+    """The sample dict both layouts yield, from a record and its arrays."""
+    if check_shape:
         shape = (rec["height"], rec["width"])
         for name, a in (("image", image), ("mask", mask), ("instances", instances)):
             if a.shape[:2] != shape:
                 raise ValueError("record %s: %s is %dx%d, the record says %dx%d"
                                  % (rec["id"], rec[name], a.shape[1], a.shape[0], shape[1], shape[0]))
-        objects = rec.get("objects") or []
-        return {
-            "id": rec["id"],
-            "split": rec["split"],
-            "group": rec["group"],
-            "image": image,
-            "mask": mask,
-            "instances": instances,
-            "boxes": np.array([o["box_x0y0x1y1"] for o in objects], dtype=np.int64).reshape(-1, 4),
-            "classes": np.array([o["class"] for o in objects], dtype=np.int64),
-            "instance_ids": np.array([o["instance"] for o in objects], dtype=np.int64),
-            "targets": dict(rec.get("targets") or {}),
-            "class_table": self.class_table,
-            "record": rec,
-        }
+    objects = rec.get("objects") or []
+    return {
+        "id": rec["id"],
+        "split": rec["split"],
+        "group": rec["group"],
+        "image": image,
+        "mask": mask,
+        "instances": instances,
+        "boxes": np.array([o["box_x0y0x1y1"] for o in objects], dtype=np.int64).reshape(-1, 4),
+        "classes": np.array([o["class"] for o in objects], dtype=np.int64),
+        "instance_ids": np.array([o["instance"] for o in objects], dtype=np.int64),
+        "targets": dict(rec.get("targets") or {}),
+        "class_table": class_table,
+        "record": rec,
+    }
 
 
 def load_splits(root, **kwargs):
@@ -316,8 +350,279 @@ def dump_batch(path, ids, images, masks=None, compress=False, **targets):
     (np.savez_compressed if compress else np.savez)(path, **out)
 
 
+# The packed layout: each split as tar packs (POSIX pax), each sample's four
+# members consecutive and in index order: records/ID.json (its manifest line),
+# then its image, mask and instances PNGs under the record's own paths. Every
+# member carries the pax record TRUESET.sha256, the SHA-256 of its bytes.
+
+SHA256_PAX_KEY = "TRUESET.sha256"
+_FILE_KEYS = ("image", "mask", "instances")
+_BLOCK = 512
+
+
+class _Tail(object):
+    """A read-only stream that counts the bytes read through it, hashes them
+    if asked, and keeps the last ones: enough to check, once tarfile has read
+    the last member, what follows it (the end-of-archive marker)."""
+
+    KEEP = 1 << 16  # more than tarfile's read-ahead (tarfile.RECORDSIZE)
+
+    def __init__(self, f, hashed):
+        self.f = f
+        self.n = 0
+        self.h = hashlib.sha256() if hashed else None
+        self.kept = bytearray()
+
+    def read(self, size=-1):
+        b = self.f.read(size)
+        if b:
+            self.n += len(b)
+            if self.h is not None:
+                self.h.update(b)
+            self.kept += b
+            if len(self.kept) > 2 * self.KEEP:
+                del self.kept[:-self.KEEP]
+        return b
+
+    def rest(self, pos):
+        """Every byte from pos to the end of the stream (reading the rest)."""
+        start = self.n - len(self.kept)
+        if pos < start:
+            raise ValueError("internal: end-of-archive check lost its bytes")
+        out = bytes(self.kept[pos - start:])
+        while True:
+            b = self.read(1 << 16)
+            if not b:
+                return out
+            out += b
+            if len(out) > 2 * self.KEEP:  # zeros past a tar record are not a pack's
+                return out
+
+
+def _member_bytes(tf, ti, where):
+    """The member's bytes, checked against its pax record TRUESET.sha256."""
+    if not ti.isreg():
+        raise ValueError("%s: member %s is not a regular file" % (where, ti.name))
+    want = ti.pax_headers.get(SHA256_PAX_KEY)
+    if want is None:
+        raise ValueError("%s: member %s has no pax record %s" % (where, ti.name, SHA256_PAX_KEY))
+    try:
+        data = tf.extractfile(ti).read()
+    except (tarfile.TarError, EOFError, OSError) as e:
+        raise ValueError("%s: member %s: %s (the pack is truncated or damaged)" % (where, ti.name, e))
+    got = hashlib.sha256(data).hexdigest()
+    if got != want:
+        raise ValueError("%s: member %s has SHA-256 %s, its pax record %s says %s (the pack is damaged)"
+                         % (where, ti.name, got, SHA256_PAX_KEY, want))
+    return data
+
+
+def _pack_record(name, data, where):
+    """The record that starts a sample: member records/ID.json, its manifest line."""
+    parts = name.split("/")
+    if len(parts) != 2 or parts[0] != "records" or not parts[1].endswith(".json"):
+        raise ValueError("%s: member %s where a sample's first member, records/ID.json, should be"
+                         % (where, name))
+    try:
+        rec = json.loads(data.decode("utf-8"))
+    except ValueError as e:
+        raise ValueError("%s: member %s: %s" % (where, name, e))
+    if not isinstance(rec, dict) or not isinstance(rec.get("id"), str):
+        raise ValueError("%s: member %s is not a record with an \"id\"" % (where, name))
+    if parts[1] != rec["id"] + ".json":
+        raise ValueError("%s: member %s holds record %r" % (where, name, rec["id"]))
+    for key in _FILE_KEYS:
+        try:
+            _clean_parts(rec.get(key))
+        except ValueError as e:
+            raise ValueError("%s: member %s: %s: %s" % (where, name, key, e))
+    return rec
+
+
+def _decoded(rec, files, info, where):
+    def decode(key, fn):
+        try:
+            with Image.open(io.BytesIO(files[key])) as img:
+                return fn(img)
+        except (ValueError, OSError) as e:
+            raise ValueError("%s: member %s: %s" % (where, rec[key], e))
+    mode = info.get("mode") if info else None
+    image = decode("image", lambda img: image_array(img, mode))
+    mask = decode("mask", mask_ids)
+    instances = decode("instances", instance_ids)
+    try:
+        return _sample(rec, image, mask, instances, info.get("classes") if info else None)
+    except ValueError as e:
+        raise ValueError("%s: %s" % (where, e))
+
+
+def _iter_pack(f, where, split, decode, info, want=None, check_pack_sha256=False):
+    """Yield the samples of one pack, read from the binary stream f in one
+    pass. want: the pack's dataset.json entry (its split, samples, bytes and
+    sha256), when known."""
+    tail = _Tail(f, check_pack_sha256 and want is not None)
+    try:
+        tf = tarfile.open(fileobj=tail, mode="r|")
+    except tarfile.TarError as e:
+        raise ValueError("%s: not a tar archive: %s" % (where, e))
+    end, last, count = 0, None, 0
+    rec, files = None, {}
+    while True:
+        try:
+            ti = tf.next()
+        except tarfile.TarError as e:
+            raise ValueError("%s: after member %s: %s (truncated or damaged)" % (where, last, e))
+        if ti is None:
+            break
+        tf.members = []  # tarfile keeps every header read; a pack's can be many
+        data = _member_bytes(tf, ti, where)
+        last, end = ti.name, ti.offset_data + -(-ti.size // _BLOCK) * _BLOCK
+        if rec is None:
+            rec = _pack_record(ti.name, data, where)
+            if want is not None and rec.get("split") != want["split"]:
+                raise ValueError("%s: member %s is a sample of split %r in a pack of split %r"
+                                 % (where, ti.name, rec.get("split"), want["split"]))
+            continue
+        key = _FILE_KEYS[len(files)]
+        if ti.name != rec[key]:
+            raise ValueError("%s: member %s where record %s's %s, %s, should be (a sample's members: "
+                             "records/ID.json, image, mask, instances, in that order)"
+                             % (where, ti.name, rec["id"], key, rec[key]))
+        sha = (rec.get("sha256") or {}).get(key)
+        if sha is not None and sha != ti.pax_headers[SHA256_PAX_KEY]:
+            raise ValueError("%s: member %s has SHA-256 %s, record %s says %s"
+                             % (where, ti.name, ti.pax_headers[SHA256_PAX_KEY], rec["id"], sha))
+        files[key] = data
+        if len(files) < len(_FILE_KEYS):
+            continue
+        count += 1
+        if split is None or rec.get("split") == split:
+            if decode:
+                yield _decoded(rec, files, info, where)
+            else:
+                yield _sample(rec, files["image"], files["mask"], files["instances"],
+                              info.get("classes") if info else None, check_shape=False)
+        rec, files = None, {}
+    if rec is not None:
+        raise ValueError("%s: the pack ends inside sample %s: member %s is missing after %s "
+                         "(truncated or damaged)" % (where, rec["id"], rec[_FILE_KEYS[len(files)]], last))
+    # tarfile stops quietly at a header it cannot read after the first one:
+    # the pack must go on with the end-of-archive marker, two zero blocks
+    # (then only zeros), right after its last member.
+    rest = tail.rest(end)
+    if len(rest) < 2 * _BLOCK or rest.count(0) != len(rest):
+        what = "ends" if len(rest) < 2 * _BLOCK else "has bytes that are not a tar header"
+        raise ValueError("%s: the pack %s at byte %d, after member %s, where the end-of-archive marker "
+                         "should be (truncated or damaged)" % (where, what, end, last))
+    if want is not None:
+        if count != want["samples"]:
+            raise ValueError("%s: %d samples, dataset.json says %d" % (where, count, want["samples"]))
+        if tail.n != want["bytes"]:
+            raise ValueError("%s: %d bytes, dataset.json says %d" % (where, tail.n, want["bytes"]))
+        if tail.h is not None and tail.h.hexdigest() != want["sha256"]:
+            raise ValueError("%s: SHA-256 %s, dataset.json says %s" % (where, tail.h.hexdigest(), want["sha256"]))
+
+
+def pack_list(source, split=None):
+    """(packs, info): the packs to read and dataset.json (or None).
+
+    source: a packed dataset folder (its dataset.json's layout.packs, those
+    of split if one is given, in that order), or one pack, or a list of
+    packs, each a path or a binary file object open for reading. Each pack
+    is a dict: "name", "open" (the path or file object) and, from
+    dataset.json, "split", "samples", "bytes" and "sha256".
+    """
+    if isinstance(source, (str, os.PathLike)) and os.path.isdir(source):
+        dpath = os.path.join(source, "dataset.json")
+        if not os.path.exists(dpath):
+            raise FileNotFoundError("%s: missing: the dataset is incomplete or not a trueset dataset" % dpath)
+        with open(dpath, encoding="utf-8") as f:
+            info = json.load(f)
+        check_format(info, dpath)
+        layout = info.get("layout")
+        if not isinstance(layout, dict) or layout.get("kind") != "packed":
+            raise ValueError("%s: not a packed dataset (no packed \"layout\"); read it with TruesetDataset" % dpath)
+        names = list(info["splits"]["names"])
+        if split is not None and split not in names:
+            raise ValueError("no split %r in %s; it has %s" % (split, source, ", ".join(names)))
+        packs = []
+        for p in layout["packs"]:
+            if split is None or p["split"] == split:
+                packs.append(dict(p, open=safe_path(source, p["name"])))
+        return packs, info
+    if isinstance(source, (str, os.PathLike)) or hasattr(source, "read"):
+        source = [source]
+    packs = []
+    for s in source:
+        name = os.fspath(s) if isinstance(s, (str, os.PathLike)) else getattr(s, "name", repr(s))
+        packs.append({"name": name, "open": s})
+    return packs, None
+
+
+def _iter_packs(packs, info, split, decode, check_pack_sha256=False):
+    for p in packs:
+        where = p["name"] if not isinstance(p["open"], (str, os.PathLike)) else os.fspath(p["open"])
+        want = p if "samples" in p else None
+        if hasattr(p["open"], "read"):
+            yield from _iter_pack(p["open"], where, split, decode, info, want, check_pack_sha256)
+        else:
+            with open(p["open"], "rb") as f:
+                yield from _iter_pack(f, where, split, decode, info, want, check_pack_sha256)
+
+
+def iter_packed(source, split=None, decode=True, check_pack_sha256=False, info=None):
+    """Yield the sample dicts of a packed dataset, streaming its packs.
+
+    source: a packed dataset folder, or one or more packs (paths or binary
+    file objects: a pipe or an object-storage stream will do, nothing is
+    sought). split: only this split's samples (from a folder, only its
+    packs are opened). The samples come pack by pack in dataset.json's
+    order, so a split's come in index order. decode=False leaves image,
+    mask and instances as the PNG bytes. check_pack_sha256: compare each
+    pack with dataset.json's SHA-256, at its end. info: a dataset.json dict
+    for class_table and the image mode when source is packs alone.
+
+    Every member is checked against its pax SHA-256 and its place in the
+    sample; a damaged, truncated or misordered pack raises ValueError naming
+    the pack and member when the stream reaches the damage (the samples
+    before it have been yielded).
+    """
+    packs, found = pack_list(source, split)
+    return _iter_packs(packs, found or info, split, decode, check_pack_sha256)
+
+
+def shard_packs(packs, rank=0, world_size=1, worker=0, num_workers=1, shuffle=False, seed=0, epoch=0):
+    """The packs one reader takes: with shuffle, the list in the order of a
+    permutation drawn from (seed, epoch); then every world_size-th from
+    rank, and of those every num_workers-th from worker."""
+    packs = list(packs)
+    if shuffle:
+        random.Random("%d:%d" % (seed, epoch)).shuffle(packs)
+    return packs[rank::world_size][worker::num_workers]
+
+
+def shuffle_buffer(samples, size, seed):
+    """Yield samples in an order mixed through a buffer of size items: each
+    item out is drawn at random from the buffer (random.Random(seed)), then
+    replaced by the next one in. size <= 1: unchanged."""
+    if size <= 1:
+        yield from samples
+        return
+    rng = random.Random(seed)
+    buf = []
+    for s in samples:
+        if len(buf) < size:
+            buf.append(s)
+            continue
+        i = rng.randrange(size)
+        buf[i], s = s, buf[i]
+        yield s
+    rng.shuffle(buf)
+    yield from buf
+
+
 if torch is not None:
-    __all__ += ["TorchDataset", "torch_collate"]
+    __all__ += ["TorchDataset", "torch_collate", "PackedIterableDataset"]
 
     class TorchDataset(torch.utils.data.Dataset):
         """A torch.utils.data.Dataset over one split; items are the sample
@@ -349,3 +654,50 @@ if torch is not None:
             if all(isinstance(v, (int, float)) for v in vals):
                 b["targets"][n] = torch.tensor(vals, dtype=torch.float64)
         return b
+
+    class PackedIterableDataset(torch.utils.data.IterableDataset):
+        """A torch.utils.data.IterableDataset streaming a packed dataset.
+
+        source and split as for iter_packed (give paths, not file objects,
+        with num_workers > 0). The packs are shared out, whole: rank r of
+        world_size takes every world_size-th pack from r, and DataLoader
+        worker k of W (torch.utils.data.get_worker_info) every W-th of
+        those from k; a reader with no pack yields nothing. shuffle: a new
+        pack order each epoch (call set_epoch(e) before each, as with
+        DistributedSampler); buffer_size > 1 mixes samples through a buffer
+        of that many in each worker. Both draw from seed (and the epoch), so
+        the order is the same for the same seed, epoch, world and workers.
+        Items are the sample dicts, passed through transform if one is given.
+        """
+
+        def __init__(self, source, split=None, rank=0, world_size=1, shuffle=False, buffer_size=0, seed=0,
+                     transform=None, decode=True, check_pack_sha256=False):
+            if not 0 <= rank < world_size:
+                raise ValueError("rank %r is not in 0..%d" % (rank, world_size - 1))
+            self.packs, self.info = pack_list(source, split)
+            self.split, self.rank, self.world_size = split, rank, world_size
+            self.shuffle, self.buffer_size, self.seed, self.epoch = shuffle, buffer_size, seed, 0
+            self.transform, self.decode, self.check_pack_sha256 = transform, decode, check_pack_sha256
+
+        def set_epoch(self, epoch):
+            self.epoch = epoch
+
+        def __len__(self):
+            """This rank's sample count (needs dataset.json's pack entries)."""
+            mine = shard_packs(self.packs, self.rank, self.world_size, shuffle=self.shuffle, seed=self.seed,
+                               epoch=self.epoch)
+            if any("samples" not in p for p in mine):
+                raise TypeError("packs given without dataset.json have no known length")
+            return sum(p["samples"] for p in mine)
+
+        def __iter__(self):
+            w = torch.utils.data.get_worker_info()
+            worker, workers = (w.id, w.num_workers) if w is not None else (0, 1)
+            mine = shard_packs(self.packs, self.rank, self.world_size, worker, workers,
+                               shuffle=self.shuffle, seed=self.seed, epoch=self.epoch)
+            it = _iter_packs(mine, self.info, self.split, self.decode, self.check_pack_sha256)
+            if self.buffer_size > 1:
+                it = shuffle_buffer(it, self.buffer_size,
+                                    "%d:%d:%d:%d" % (self.seed, self.epoch, self.rank, worker))
+            for s in it:
+                yield self.transform(s) if self.transform is not None else s
