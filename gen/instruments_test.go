@@ -592,7 +592,7 @@ func TestInstrumentsReproducible(t *testing.T) {
 		shards = append(shards, runRecipe(t, r, 90, 2, 3, i, 3))
 	}
 	merged := filepath.Join(t.TempDir(), "merged")
-	if _, err := manifest.Merge(shards, merged, false); err != nil {
+	if _, err := manifest.Merge(shards, merged, manifest.MergeOptions{}); err != nil {
 		t.Fatal(err)
 	}
 	if got := tree(t, merged); got != want {

@@ -65,7 +65,7 @@ func TestMergeRefusesHostileShards(t *testing.T) {
 			t.Fatal(err)
 		}
 		out := filepath.Join(t.TempDir(), "merged")
-		_, err := manifest.Merge([]string{dirs[0], work}, out, false)
+		_, err := manifest.Merge([]string{dirs[0], work}, out, manifest.MergeOptions{})
 		if err == nil || !strings.Contains(err.Error(), "outside the dataset folder") {
 			t.Fatalf("got %v, want a refusal of the link", err)
 		}
@@ -84,7 +84,7 @@ func TestMergeRefusesHostileShards(t *testing.T) {
 			t.Fatal(err)
 		}
 		out := filepath.Join(t.TempDir(), "merged")
-		_, err := manifest.Merge([]string{dirs[0], work}, out, false)
+		_, err := manifest.Merge([]string{dirs[0], work}, out, manifest.MergeOptions{})
 		if err == nil || !strings.Contains(err.Error(), "SHA-256") || !strings.Contains(err.Error(), img) {
 			t.Fatalf("got %v, want a checksum refusal naming %s", err, img)
 		}
@@ -98,7 +98,7 @@ func TestMergeRefusesHostileShards(t *testing.T) {
 		"output is an input by a link": link(t, dirs[0]),
 	} {
 		t.Run(name, func(t *testing.T) {
-			_, err := manifest.Merge(dirs, out, true)
+			_, err := manifest.Merge(dirs, out, manifest.MergeOptions{Force: true})
 			if err == nil || !strings.Contains(err.Error(), "output folder") {
 				t.Fatalf("got %v, want a refusal", err)
 			}
@@ -109,7 +109,7 @@ func TestMergeRefusesHostileShards(t *testing.T) {
 	}
 
 	out := filepath.Join(t.TempDir(), "merged")
-	if _, err := manifest.Merge(dirs, out, false); err != nil {
+	if _, err := manifest.Merge(dirs, out, manifest.MergeOptions{}); err != nil {
 		t.Fatalf("clean merge: %v", err)
 	}
 }

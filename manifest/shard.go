@@ -77,7 +77,14 @@ func readShard(dir string) (*Shard, error) {
 // must come from the same recipe, seed, count, tool version and shard count,
 // and cover every shard exactly once; the result is byte-identical to a
 // single-machine run.
-func Merge(dirs []string, out string, force bool) (int64, error) {
+// MergeOptions configures Merge.
+type MergeOptions struct {
+	Force     bool
+	Layout    string // "" = the shards' layout (and pack bound)
+	PackBytes int64  // LayoutPacked: the bound on a pack (0 = the shards', else DefaultPackBytes)
+}
+
+func Merge(dirs []string, out string, o MergeOptions) (int64, error) {
 	if len(dirs) == 0 {
 		return 0, fmt.Errorf("no shard folders given")
 	}
@@ -126,7 +133,16 @@ func Merge(dirs []string, out string, force bool) (int64, error) {
 		return 0, fmt.Errorf("shards %v of %d are missing", missing, ref.Shards)
 	}
 	sort.Slice(shards, func(a, b int) bool { return shards[a].Shard < shards[b].Shard })
-	w, err := Create(out, force)
+	co := CreateOptions{Force: o.Force, Layout: o.Layout, PackBytes: o.PackBytes}
+	if l := ref.Dataset.Layout; l != nil {
+		if co.Layout == "" {
+			co.Layout = LayoutPacked
+		}
+		if co.PackBytes == 0 && co.Layout == LayoutPacked {
+			co.PackBytes = l.PackBytes
+		}
+	}
+	w, err := CreateWith(out, co)
 	if err != nil {
 		return 0, err
 	}
@@ -152,11 +168,14 @@ func Merge(dirs []string, out string, force bool) (int64, error) {
 				return fmt.Errorf("record %s has index %d, want %d", r.ID, r.Index, next)
 			}
 			for _, f := range [][2]string{{"image", r.Image}, {"mask", r.Mask}, {"instances", r.Instances}} {
-				n, err := copyChecked(dir, out, f[1], f[0], r)
+				b, err := readChecked(dir, f[1], f[0], r)
 				if err != nil {
 					return err
 				}
-				total += n
+				if err := w.WriteRaw(f[1], b); err != nil {
+					return err
+				}
+				total += int64(len(b))
 			}
 			next++
 			return w.Append(r)
@@ -175,25 +194,25 @@ func Merge(dirs []string, out string, force bool) (int64, error) {
 	return total + n, err
 }
 
-// copyChecked copies a record's file rel from a shard to out. The source is
+// readChecked reads a record's file rel from a shard, to be copied. It is
 // read through ReadSample (in the folder layout a regular file inside the
 // shard, a symbolic link out of it refused) and its SHA-256 must be the one
 // the record gives.
-func copyChecked(dir, out, rel, kind string, r *Record) (int64, error) {
+func readChecked(dir, rel, kind string, r *Record) ([]byte, error) {
 	src := filepath.Join(dir, rel)
 	b, err := ReadSample(dir, rel)
 	if err != nil {
 		var se *SampleError
 		if errors.As(err, &se) && se.Check == KindPath {
-			return 0, fmt.Errorf("record %s: %s: %s", r.ID, kind, se.Msg)
+			return nil, fmt.Errorf("record %s: %s: %s", r.ID, kind, se.Msg)
 		}
 		if errors.As(err, &se) {
-			return 0, fmt.Errorf("record %s: %s: %s", r.ID, src, se.Msg)
+			return nil, fmt.Errorf("record %s: %s: %s", r.ID, src, se.Msg)
 		}
-		return 0, fmt.Errorf("record %s: %w", r.ID, err)
+		return nil, fmt.Errorf("record %s: %w", r.ID, err)
 	}
 	if got, want := SHA256Hex(b), r.SHA256[kind]; got != want {
-		return 0, fmt.Errorf("record %s: %s: SHA-256 %s, the record says %q; the shard is damaged: generate it again", r.ID, src, got, want)
+		return nil, fmt.Errorf("record %s: %s: SHA-256 %s, the record says %q; the shard is damaged: generate it again", r.ID, src, got, want)
 	}
-	return int64(len(b)), WriteFileAtomic(filepath.Join(out, rel), b)
+	return b, nil
 }

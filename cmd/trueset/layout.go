@@ -15,7 +15,7 @@ type layoutFlags struct {
 
 func (l *layoutFlags) bind(f *pflag.FlagSet, def string) {
 	f.StringVar(&l.layout, "layout", def, "how samples are stored: folder (one PNG per file) or packed (tar archives per split, for streaming)")
-	f.StringVar(&l.packSize, "pack-size", "256MiB", "packed layout: the most bytes one pack (tar file) may take, e.g. 64MiB or 1GiB")
+	f.StringVar(&l.packSize, "pack-size", "", "packed layout: the most bytes one pack (tar file) may take, e.g. 64MiB or 1GiB (default 256MiB)")
 }
 
 // resolve checks the flags; it returns the layout and the pack bound (0
@@ -27,6 +27,9 @@ func (l *layoutFlags) resolve() (string, int64, error) {
 	case manifest.LayoutPacked:
 	default:
 		return "", 0, usagef("--layout %q: want %s or %s", l.layout, manifest.LayoutFolder, manifest.LayoutPacked)
+	}
+	if l.packSize == "" {
+		return l.layout, manifest.DefaultPackBytes, nil
 	}
 	n, err := manifest.ParseSize(l.packSize)
 	if err != nil {

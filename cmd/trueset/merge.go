@@ -16,6 +16,7 @@ type mergeOptions struct {
 	force bool
 	quiet bool
 	json  bool
+	to    layoutFlags
 }
 
 func newMergeCmd(stdout io.Writer) *cobra.Command {
@@ -26,9 +27,14 @@ func newMergeCmd(stdout io.Writer) *cobra.Command {
 		Long: `Join shard folders written by generate --shard I/N (or by a batch engine's
 array of them) into one dataset. Every shard of 0..N-1 must be given once,
 all from the same recipe, seed, count and tool version; the merged files,
-manifest.jsonl and dataset.json are byte-identical to a single-machine run.`,
+manifest.jsonl and dataset.json are byte-identical to a single-machine run.
+Shards may be in either layout; the merged set takes theirs (and their pack
+size) unless --layout says otherwise.`,
 		Example: `  trueset merge part-0 part-1 part-2 --out labels
-  trueset merge shards/* --out labels-2 && trueset verify labels-2`,
+  trueset merge shards/* --out labels-2 && trueset verify labels-2
+
+  # shards written with --layout packed, merged into one packed set
+  trueset merge part-0 part-1 part-2 --out labels-packed --layout packed`,
 		Args: func(c *cobra.Command, args []string) error {
 			if len(args) == 0 {
 				return usagef("merge needs the shard folders")
@@ -42,6 +48,7 @@ manifest.jsonl and dataset.json are byte-identical to a single-machine run.`,
 	f.BoolVar(&o.force, "force", false, "write into a folder that is not empty")
 	f.BoolVarP(&o.quiet, "quiet", "q", false, "no summary")
 	f.BoolVar(&o.json, "json", false, "print the summary as one JSON document on stdout instead of text (errors still go to stderr)")
+	o.to.bind(f, "")
 	return cmd
 }
 
@@ -75,8 +82,18 @@ func runMerge(dirs []string, o *mergeOptions, stdout io.Writer) error {
 			return usagef("--out %s is not empty; choose a new folder or pass --force", o.out)
 		}
 	}
+	mo := manifest.MergeOptions{Force: o.force}
+	if o.to.layout != "" {
+		var err error
+		if mo.Layout, mo.PackBytes, err = o.to.resolve(); err != nil {
+			return err
+		}
+		if o.to.packSize == "" {
+			mo.PackBytes = 0 // the shards' own
+		}
+	}
 	start := time.Now()
-	n, err := manifest.Merge(dirs, o.out, o.force)
+	n, err := manifest.Merge(dirs, o.out, mo)
 	if err != nil {
 		return err
 	}

@@ -192,3 +192,27 @@ func (c *countingReader) Read(b []byte) (int, error) {
 	c.n += int64(n)
 	return n, err
 }
+
+// TestMergePackedShards: shards written in the packed layout merge into
+// the packs a single packed run writes, byte for byte, or into its folder
+// twin with --layout folder.
+func TestMergePackedShards(t *testing.T) {
+	tmp := t.TempDir()
+	args := []string{"generate", "--count", "90", "--seed", "3", "--quiet", "--layout", "packed", "--pack-size", "64KiB"}
+	single := filepath.Join(tmp, "single")
+	wantCode(t, exitOK, append(args, "--out", single)...)
+	folder := filepath.Join(tmp, "folder")
+	wantCode(t, exitOK, "generate", "--count", "90", "--seed", "3", "--quiet", "--out", folder)
+	var parts []string
+	for i := 0; i < 3; i++ {
+		p := filepath.Join(tmp, "part-"+string(rune('0'+i)))
+		wantCode(t, exitOK, append(args, "--shard", string(rune('0'+i))+"/3", "--out", p)...)
+		parts = append(parts, p)
+	}
+	merged := filepath.Join(tmp, "merged")
+	wantCode(t, exitOK, append([]string{"merge", "--quiet", "--out", merged}, parts...)...)
+	killSameTree(t, single, merged)
+	asFolder := filepath.Join(tmp, "as-folder")
+	wantCode(t, exitOK, append([]string{"merge", "--quiet", "--layout", "folder", "--out", asFolder}, parts...)...)
+	killSameTree(t, folder, asFolder)
+}
