@@ -3,6 +3,7 @@ package gen
 import (
 	"bytes"
 	"context"
+	"fmt"
 	"image"
 	"image/png"
 	"testing"
@@ -165,4 +166,45 @@ func BenchmarkRun2Workers(b *testing.B) {
 		}
 	}
 	b.ReportMetric(float64(n*b.N)/b.Elapsed().Seconds(), "samples/s")
+}
+
+// canvasRecipe returns the default preset (side 64) or its scaled twin in
+// bench/recipes (side 512 or 1024).
+func canvasRecipe(b *testing.B, side int) *Recipe {
+	if side == 64 {
+		return benchRecipe(b)
+	}
+	r, err := LoadRecipe(fmt.Sprintf("../bench/recipes/canvas-%d.yaml", side))
+	if err != nil {
+		b.Fatal(err)
+	}
+	return r
+}
+
+// BenchmarkGenerateCanvas: render one sample and PNG-encode its three
+// images (no file I/O), at the default preset's 64² and its scaled twins at
+// 512² and 1024² (bench/recipes).
+func BenchmarkGenerateCanvas(b *testing.B) {
+	for _, side := range []int{64, 512, 1024} {
+		b.Run(fmt.Sprint(side), func(b *testing.B) {
+			rd := NewRenderer(canvasRecipe(b, side))
+			enc := manifest.NewEncoder()
+			total := 0
+			b.ReportAllocs()
+			for i := 0; b.Loop(); i++ {
+				s, err := rd.Generate(1, i%64)
+				if err != nil {
+					b.Fatal(err)
+				}
+				for _, m := range []image.Image{s.Image, s.Mask, s.Instances} {
+					out, err := enc.Encode(m)
+					if err != nil {
+						b.Fatal(err)
+					}
+					total += len(out)
+				}
+			}
+			b.ReportMetric(float64(total)/float64(b.N), "B/sample")
+		})
+	}
 }

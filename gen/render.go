@@ -30,6 +30,7 @@ type Renderer struct {
 	local   Path
 	world   Path
 	alone   []int
+	bg      bgPainter
 	splitOf func(index int) string // the split a sample was dealt to, for the instruments; nil = unknown
 }
 
@@ -143,7 +144,7 @@ func (rd *Renderer) Render(p *Plan) (*Sample, error) {
 		m := image.NewGray(rect)
 		pix, stride, bpp, img = m.Pix, m.Stride, 1, m
 	}
-	paintBackground(&p.Background, pix, stride, bpp, W, H)
+	rd.bg.paint(&p.Background, pix, stride, bpp, W, H)
 	if p.Cue {
 		rd.paintCue(0, pix, stride, bpp, W, H)
 	}
