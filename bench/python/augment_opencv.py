@@ -173,8 +173,9 @@ def source(args):
                 winst[gone] = 0
                 wcls[gone] = 0
         sigma = 2 + 4 * rng.random()
-        noisy = wimg + rng.normal(0, sigma, wimg.shape)
-        wimg = np.clip(np.rint(noisy), 0, 255).astype(np.uint8)
+        noise = rng.standard_normal(wimg.shape, dtype=np.float32)
+        noise *= sigma
+        wimg = cv2.add(wimg, noise, dtype=cv2.CV_8U)  # rounded and saturated to 0..255
         lineage["pixels"] = [{"do": "gaussian-noise", "sigma": sigma}]
         lineage["matrix"] = m[:2].ravel().tolist()
         lineage["source"] = rec["id"]

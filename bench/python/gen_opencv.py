@@ -267,17 +267,18 @@ def background(r, rng, W, H):
         return np.full((H, W), a, np.uint8)
     cell = uni(rng, bg["cell"])
     gw, gh = int(math.ceil(W / cell)) + 2, int(math.ceil(H / cell)) + 2
-    lat = rng.random((gh, gw))
-    fx = (np.arange(W) + 0.5) / cell
-    ix = fx.astype(np.intp)
-    u = smooth(fx - ix)
-    fy = (np.arange(H) + 0.5) / cell
-    iy = fy.astype(np.intp)
-    v = smooth(fy - iy)[:, None]
-    rows = lat[:, ix] + u * (lat[:, ix + 1] - lat[:, ix])  # each lattice row blended along x
-    top, bot = rows[iy], rows[iy + 1]
-    t = top + v * (bot - top)
-    return np.rint(a + t * (b - a)).astype(np.uint8)
+    lat = rng.random((gh, gw)).astype(np.float32)
+    # Blending the lattice in x and then in y is a product of two small
+    # matrices with two weights a row: t = Wy · lattice · Wxᵀ.
+    wx, wy = np.zeros((W, gw), np.float32), np.zeros((H, gh), np.float32)
+    for wm, n in ((wx, W), (wy, H)):
+        f = (np.arange(n) + 0.5) / cell
+        i = f.astype(np.intp)
+        u = smooth(f - i)
+        wm[np.arange(n), i] = 1 - u
+        wm[np.arange(n), i + 1] = u
+    t = wy @ (lat @ wx.T)
+    return cv2.convertScaleAbs(t, alpha=b - a, beta=a)  # a + t·(b − a), rounded to uint8
 
 
 def render(r, rng, objs):
