@@ -46,8 +46,13 @@ type RunOptions struct {
 	// copies are drawn again (within cuts.tries) and otherwise not written.
 	AcceptStale bool
 	FS          manifest.FS // nil = the real file system
-	Version     string
-	Progress    func(done, total int)
+	// Layout of the output: manifest.LayoutFolder ("" too) or
+	// manifest.LayoutPacked, whose packs hold at most PackBytes (0 =
+	// manifest.DefaultPackBytes).
+	Layout    string
+	PackBytes int64
+	Version   string
+	Progress  func(done, total int)
 }
 
 // DefaultMaxPixels bounds one input image (width × height).
@@ -194,7 +199,7 @@ func Run(ctx context.Context, o RunOptions) (Summary, error) {
 	if err != nil {
 		return Summary{}, err
 	}
-	co := manifest.CreateOptions{Force: o.Force, FS: o.FS, Marker: marker}
+	co := manifest.CreateOptions{Force: o.Force, FS: o.FS, Marker: marker, Layout: packedLayout(o), PackBytes: packBytes(o)}
 	var w *manifest.Writer
 	startJob, resumed := 0, 0
 	if o.Resume {
@@ -339,7 +344,9 @@ func (in *input) marker(o RunOptions) ([]byte, error) {
 		OnError     string   `json:"on_error"`
 		Allow       bool     `json:"allow_label_change"`
 		AcceptStale bool     `json:"accept_stale_columns,omitempty"`
-	}{"augment", o.Version, hex.EncodeToString(plan[:]), hex.EncodeToString(h.Sum(nil)), o.Seed, o.Copies, o.Splits, o.OnError, o.AllowLabelChange, o.AcceptStale})
+		Layout      string   `json:"layout,omitempty"` // "" = folder
+		PackBytes   int64    `json:"pack_bytes,omitempty"`
+	}{"augment", o.Version, hex.EncodeToString(plan[:]), hex.EncodeToString(h.Sum(nil)), o.Seed, o.Copies, o.Splits, o.OnError, o.AllowLabelChange, o.AcceptStale, packedLayout(o), packBytes(o)})
 }
 
 // RunPixels is the pixel budget of a whole run given the budget of one input
@@ -1184,3 +1191,22 @@ func CheckInvariance(p *Plan, classes []manifest.Class, defs []manifest.TargetDe
 }
 
 func fmtDeg(f float64) string { return fmt.Sprintf("%g", manifest.Round(f, 3)) }
+
+// packedLayout is the output layout a run marker names: "" for folder.
+func packedLayout(o RunOptions) string {
+	if o.Layout == manifest.LayoutPacked {
+		return o.Layout
+	}
+	return ""
+}
+
+// packBytes is the pack bound of a packed run (0 for the folder layout).
+func packBytes(o RunOptions) int64 {
+	if o.Layout != manifest.LayoutPacked {
+		return 0
+	}
+	if o.PackBytes <= 0 {
+		return manifest.DefaultPackBytes
+	}
+	return o.PackBytes
+}

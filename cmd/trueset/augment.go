@@ -37,6 +37,7 @@ type augmentOptions struct {
 	resume        bool
 	json          bool
 	acceptStale   bool
+	to            layoutFlags
 }
 
 func newAugmentCmd(stdout, stderr io.Writer) *cobra.Command {
@@ -92,6 +93,7 @@ A plan that would break a class's declared invariance (a flipped glyph, a
 	f.StringVar(&o.strat, "stratify", "", "plain folders: stratify by a labels.csv column, count_<class>, class:NAME or classes")
 	f.BoolVar(&o.acceptStale, "accept-stale-columns", false, "plain folders: write copies that lost, cut or dropped objects even though labels.csv has columns columns.json does not declare; their records list those columns in stale_targets (default: such copies are drawn again within cuts.tries, else not written)")
 	f.BoolVar(&o.json, "json", false, "print the summary as one JSON document on stdout instead of text (errors still go to stderr)")
+	o.to.bind(f, "")
 	return cmd
 }
 
@@ -192,7 +194,12 @@ func runAugment(ctx context.Context, o *augmentOptions, stdout, stderr io.Writer
 			splits = append(splits, s)
 		}
 	}
+	layout, packBytes, err := augmentLayout(o)
+	if err != nil {
+		return err
+	}
 	opts := augment.RunOptions{
+		Layout: layout, PackBytes: packBytes,
 		In: o.in, Out: o.out, Plan: plan, Copies: o.copies, Seed: o.seed, Splits: splits,
 		Workers: o.workers, AllowLabelChange: o.allow, Force: o.force, MaxPixels: o.maxPixels,
 		SplitSpec: o.ratios, Stratify: o.strat, OnError: o.onError, Resume: o.resume, Version: version, AcceptStale: o.acceptStale,
@@ -341,4 +348,22 @@ func printFallbacks(w io.Writer, sum augment.Summary, acceptStale bool) {
 	for _, note := range sum.NotWritten {
 		fmt.Fprintf(w, "    %s\n", note)
 	}
+}
+
+// augmentLayout is the output's layout: --layout if given, else the
+// input's (a packed trueset set gives packs of its own bound; a plain
+// folder gives the folder layout).
+func augmentLayout(o *augmentOptions) (string, int64, error) {
+	if o.to.layout != "" {
+		return o.to.resolve()
+	}
+	d, err := manifest.ReadDataset(o.in)
+	if err != nil || d.Layout == nil {
+		return manifest.LayoutFolder, 0, nil // a plain folder, or one the run refuses with its own message
+	}
+	if o.to.packSize != "" {
+		o.to.layout = manifest.LayoutPacked
+		return o.to.resolve()
+	}
+	return manifest.LayoutPacked, d.Layout.PackBytes, nil
 }

@@ -216,3 +216,25 @@ func TestMergePackedShards(t *testing.T) {
 	wantCode(t, exitOK, append([]string{"merge", "--quiet", "--layout", "folder", "--out", asFolder}, parts...)...)
 	killSameTree(t, folder, asFolder)
 }
+
+// TestAugmentPacked: augmenting a packed set writes packs (the input's
+// layout and bound by default) equal to augmenting its folder twin and
+// packing the result; stats reads both the same.
+func TestAugmentPacked(t *testing.T) {
+	tmp := t.TempDir()
+	folder, packed := filepath.Join(tmp, "folder"), filepath.Join(tmp, "packed")
+	wantCode(t, exitOK, "generate", "--count", "60", "--quiet", "--out", folder)
+	wantCode(t, exitOK, "convert", "--in", folder, "--out", packed, "--layout", "packed", "--pack-size", "64KiB", "--quiet")
+	plan := filepath.Join("..", "..", "testdata", "plans", "every-step.yaml")
+	augF, augP, augFP := filepath.Join(tmp, "aug-folder"), filepath.Join(tmp, "aug-packed"), filepath.Join(tmp, "aug-folder-packed")
+	wantCode(t, exitOK, "augment", "--in", folder, "--out", augF, "--plan", plan, "--copies", "2", "--quiet")
+	wantCode(t, exitOK, "augment", "--in", packed, "--out", augP, "--plan", plan, "--copies", "2", "--quiet")
+	wantCode(t, exitOK, "convert", "--in", augF, "--out", augFP, "--layout", "packed", "--pack-size", "64KiB", "--quiet")
+	killSameTree(t, augFP, augP)
+	wantCode(t, exitOK, "verify", augP)
+	sf, _ := wantCode(t, exitOK, "stats", "--json", augF)
+	sp, _ := wantCode(t, exitOK, "stats", "--json", augP)
+	if sf != strings.ReplaceAll(sp, augP, augF) {
+		t.Errorf("stats --json differs between the layouts:\nfolder: %s\npacked: %s", sf, sp)
+	}
+}
