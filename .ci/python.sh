@@ -2,7 +2,7 @@
 # CI for the Python loader (examples/python): installs Debian's numpy,
 # Pillow and PyTorch if they are missing, builds trueset, generates a small
 # set of every preset, an augmented set, an augmented plain folder and
-# packed twins of two presets, and checks the loader against all of them.
+# packed twins of four of them, and checks the loader against all of them.
 # Runs the same locally (`bash .ci/python.sh`) and in CI (root on Debian).
 set -euo pipefail
 
@@ -62,16 +62,24 @@ dirs+=("$work/plain-aug")
 echo "== $PY examples/python/test_loader.py"
 "$PY" examples/python/test_loader.py "${dirs[@]}"
 
-# The packed layout (issue 15): packed twins (same preset, count and seed,
-# 64KiB packs: several per split) of an rgb and a gray preset, streamed by
-# iter_packed and PackedIterableDataset and compared with the folder loader
-# sample for sample; test_packed.py also writes packs of its own with
-# tarfile to read, and damages copies of both to be refused.
+# The packed layout (issue 15): packed twins (64KiB packs: several per
+# split) of an rgb and a gray preset (generate, same count and seed) and of
+# two augmented sets (convert), streamed by iter_packed and
+# PackedIterableDataset and compared with the folder loader sample for
+# sample; test_packed.py also writes packs of its own with tarfile to read,
+# and damages copies of both to be refused.
 for p in tabletop-dice workshop-parts; do
 	echo "== generate $p --layout packed ($COUNT samples), then $PY examples/python/test_packed.py"
 	"$work/trueset" generate --preset "$p" --count "$COUNT" --seed 1 --out "$work/$p-packed" \
 		--layout packed --pack-size 64KiB --quiet
 	"$PY" examples/python/test_packed.py "$work/$p" "$work/$p-packed"
+done
+# and packed by trueset convert: the augmented dice set (ignore pixels,
+# lineage) and the augmented plain folder (gray and color images, mode mixed)
+for d in "$aug-aug" plain-aug; do
+	echo "== convert $d --layout packed, then $PY examples/python/test_packed.py"
+	"$work/trueset" convert --in "$work/$d" --out "$work/$d-packed" --layout packed --pack-size 64KiB --quiet
+	"$PY" examples/python/test_packed.py "$work/$d" "$work/$d-packed"
 done
 
 # trueset readback (issue 13): planted pipeline bugs over an augmented dice
