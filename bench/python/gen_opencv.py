@@ -357,14 +357,18 @@ def render(r, rng, objs):
     return img, cls, inst, out
 
 
-R = None  # the recipe, set in each worker
-SPLITS = None  # index -> split name, set before the workers fork
+R = None  # the recipe, set before the workers fork
 OUT = None
 SEED = 1
 
 
-def sample(index):
+def stratum_at(index):
+    return stratum_of(R, content(R, np.random.default_rng([SEED, index, 0])))
+
+
+def sample(job):
     """Render, encode and write sample index; returns its manifest line."""
+    index, split = job
     r = R
     objs = content(r, np.random.default_rng([SEED, index, 0]))
     stratum = stratum_of(r, objs)
@@ -380,7 +384,7 @@ def sample(index):
         raise RuntimeError("sample %d: no layout in %d attempts" % (index, MAX_ATTEMPTS))
     img, cls, inst, labels = got
     sid = "%06d" % index
-    rec = {"id": sid, "index": index, "split": SPLITS[index], "group": sid, "stratum": stratum,
+    rec = {"id": sid, "index": index, "split": split, "group": sid, "stratum": stratum,
            "width": img.shape[1], "height": img.shape[0],
            "image": "images/%s.png" % sid, "mask": "masks/%s.png" % sid, "instances": "instances/%s.png" % sid,
            "sha256": {}}
@@ -401,8 +405,8 @@ def sample(index):
     return json.dumps(rec, separators=(",", ":"))
 
 
-def allocate(r, count, seed):
-    """Deals the samples to splits per stratum (largest remainder, seeded shuffle)."""
+def allocate(r, keys, seed):
+    """Deals the samples to splits per stratum (keys: each sample's; largest remainder, seeded shuffle)."""
     spec = (r.get("split") or {}).get("ratios") or "train=0.8,val=0.1,test=0.1"
     names, ratios = [], []
     for part in spec.split(","):
@@ -410,9 +414,9 @@ def allocate(r, count, seed):
         names.append(n)
         ratios.append(float(v))
     strata = {}
-    for i in range(count):
-        strata.setdefault(stratum_of(r, content(r, np.random.default_rng([seed, i, 0]))), []).append(i)
-    out = [None] * count
+    for i, k in enumerate(keys):
+        strata.setdefault(k, []).append(i)
+    out = [None] * len(keys)
     for k in sorted(strata):
         members = strata[k]
         np.random.default_rng([seed, 0x5011, len(members)]).shuffle(members)
@@ -429,7 +433,7 @@ def allocate(r, count, seed):
 
 
 def main():
-    global R, SPLITS, OUT, SEED
+    global R, OUT, SEED
     ap = argparse.ArgumentParser(description=__doc__.split("\n")[0])
     ap.add_argument("--recipe-json", required=True, help="a trueset dataset.json (its normalized recipe) or a recipe as JSON")
     ap.add_argument("--count", type=int, default=20000)
@@ -446,13 +450,14 @@ def main():
     for d in ("images", "masks", "instances"):
         os.mkdir(os.path.join(OUT, d))
     cv2.setNumThreads(1)  # one process per core; no thread pool inside each
-    SPLITS, names = allocate(R, a.count, a.seed)
-    with multiprocessing.get_context("fork").Pool(a.workers) as pool, \
-            open(os.path.join(OUT, "manifest.jsonl"), "w") as mf:
-        for line in pool.imap(sample, range(a.count), chunksize=16):
-            mf.write(line)
-            mf.write("\n")
-    counts = {n: SPLITS.count(n) for n in names}
+    with multiprocessing.get_context("fork").Pool(a.workers) as pool:
+        # The split first, from every sample's content draw (as trueset does).
+        splits, names = allocate(R, pool.map(stratum_at, range(a.count), chunksize=256), a.seed)
+        with open(os.path.join(OUT, "manifest.jsonl"), "w") as mf:
+            for line in pool.imap(sample, zip(range(a.count), splits), chunksize=16):
+                mf.write(line)
+                mf.write("\n")
+    counts = {n: splits.count(n) for n in names}
     with open(os.path.join(OUT, "dataset.json"), "w") as f:
         json.dump({"writer": "bench/python/gen_opencv.py", "recipe": R, "seed": a.seed, "count": a.count,
                    "width": R["canvas"]["width"], "height": R["canvas"]["height"], "mode": "gray",
