@@ -21,7 +21,8 @@ PACKED:
 - a flipped byte (in a member's data, in a header) and a pack cut short (in
   data, in a header, between samples, before the end marker) are refused,
   naming the pack (and the member where there is one);
-- without PyTorch, iter_packed works and PackedIterableDataset is absent.
+- without PyTorch, iter_packed works and PackedIterableDataset is absent;
+- streaming 2,000 samples of one pack peaks at no more heap than 200.
 Only on packs written here (trueset never writes them): members out of
 order, a missing member, names that are not the record's paths, a missing
 or wrong pax SHA-256, a directory member. Only on PACKED: dataset.json is
@@ -43,6 +44,7 @@ import subprocess
 import sys
 import tarfile
 import tempfile
+import tracemalloc
 import traceback
 
 import numpy as np
@@ -409,6 +411,37 @@ def check_crafted(folder, tmp):
                                  "in a pack of split %r" % first["split"]))
 
 
+def check_flat_memory(tmp):
+    """Streaming holds one sample at a time: the peak Python heap (tracemalloc)
+    over 2,000 samples of one pack is within 1.5x of that over the first 200.
+    (tarfile keeps every header it reads in stream mode unless told not to.)"""
+    def run():
+        members = []
+        for i in range(2000):
+            sid = "%06d" % i
+            rec = {"id": sid, "split": "train", "group": sid, "width": 1, "height": 1, "objects": [],
+                   "targets": {}, "image": "images/%s.png" % sid, "mask": "masks/%s.png" % sid,
+                   "instances": "instances/%s.png" % sid}
+            members.append(("records/%s.json" % sid, json.dumps(rec).encode(), None))
+            members += [(rec[k], (k + sid).encode() * 20, None) for k in KEYS]
+        p = os.path.join(tmp, "many.tar")
+        write_pack(p, members)
+        del members
+        peaks = []
+        tracemalloc.start()
+        try:
+            for n in (200, 2000):
+                tracemalloc.reset_peak()
+                base = tracemalloc.get_traced_memory()[0]
+                got = sum(1 for _, _ in zip(range(n), tl.iter_packed(p, decode=False)))
+                assert got == n, "%d samples of %d" % (got, n)
+                peaks.append(tracemalloc.get_traced_memory()[1] - base)
+        finally:
+            tracemalloc.stop()
+        assert peaks[1] <= 1.5 * peaks[0], "peak heap %d bytes over 2,000 samples, %d over 200" % (peaks[1], peaks[0])
+    check("streaming 2,000 samples takes no more heap than 200 (within 1.5x)", run)
+
+
 def check_helpers():
     """shard_packs and shuffle_buffer on plain lists."""
     packs = list(range(23))
@@ -530,6 +563,7 @@ def main(args):
     tmp = tempfile.mkdtemp(prefix="trueset-packed-")
     try:
         check_helpers()
+        check_flat_memory(tmp)
         fixture = os.path.join(tmp, "fixture")
         write_packed(folder, fixture, 48 << 10)  # 48 KiB: several packs per split
         check_against_folder("packs written here", fixture, folder)
