@@ -395,7 +395,7 @@ class _Tail(object):
             if not b:
                 return out
             out += b
-            if len(out) > 2 * self.KEEP:  # zeros past a tar record are not a pack's
+            if len(out) > 2 * self.KEEP:  # far past an end marker and its padding: enough to judge
                 return out
 
 
