@@ -244,7 +244,7 @@ func (px *packIndex) open(rel string) (*SampleFile, error) {
 	}
 	f, err := safefile.Open(p)
 	if err != nil {
-		return nil, &SampleError{Rel: rel, Check: KindMissing, Msg: "in " + name + ", which " + safefile.Msg(err)}
+		return nil, &SampleError{Rel: rel, Check: KindMissing, Msg: name + ": " + safefile.Msg(err)}
 	}
 	st, err := f.Stat()
 	if err != nil {

@@ -1,6 +1,7 @@
 package main
 
 import (
+	"bytes"
 	"crypto/sha256"
 	"encoding/hex"
 	"fmt"
@@ -148,6 +149,18 @@ var badCases = []badCase{
 		want: []string{"{in}/manifest.jsonl:1:", `image path "dataset.json" is not a file under images/`}},
 	{file: "datasets/path-dataset-json", run: "augment", code: exitFailure, wrong: `a record's image is "dataset.json"`,
 		want: []string{"{in}/manifest.jsonl:1:", `image path "dataset.json" is not a file under images/`}},
+
+	// Issue 15: packed sets (made in the test with generate --layout packed).
+	{file: "packed-link-out (made in the test)", run: "verify", code: exitFailure, wrong: "a packed set whose first pack is a symbolic link to a copy of itself beside the dataset folder",
+		want: []string{`packs/train-00000.tar: path "packs/train-00000.tar" is a symbolic link to`, "outside the dataset folder"}, prepare: badPackedLinkOut},
+	{file: "packed-link-out (made in the test)", run: "augment", code: exitFailure, wrong: "a packed set whose first pack is a symbolic link to a copy of itself beside the dataset folder",
+		want: []string{"packs/train-00000.tar:", "outside the dataset folder"}, prepare: badPackedLinkOut},
+	{file: "packed-fifo (made in the test)", run: "verify", code: exitFailure, wrong: "a packed set whose first pack is a named pipe with no writer",
+		want: []string{"packs/train-00000.tar: a named pipe, not a regular file"}, prepare: badPackedFIFO},
+	{file: "packed-fifo (made in the test)", run: "augment", code: exitFailure, wrong: "a packed set whose first pack is a named pipe with no writer",
+		want: []string{".png: packs/train-00000.tar: a named pipe, not a regular file"}, prepare: badPackedFIFO},
+	{file: "packed-index-past-end (made in the test)", run: "augment", code: exitFailure, wrong: "packs/index.jsonl puts sample 000000's image 1 TB into a 70 kB pack",
+		want: []string{"{in}/packs/index.jsonl:1:", "is not inside the sample's"}, prepare: badPackedIndex},
 
 	// Augmentation plans and flags, through augment.
 	{file: "plans/steps-201.yaml", run: "plan", code: exitUsage, wrong: "201 steps",
@@ -319,6 +332,56 @@ func badSymlinkDataset(t *testing.T, tmp string) string {
 	if err := os.Symlink(filepath.Join("..", "..", "sibling", "000000.png"), img); err != nil {
 		t.Fatalf("symbolic link: %v", err)
 	}
+	return in
+}
+
+// badPacked generates a small packed set in TMP/in.
+func badPacked(t *testing.T, tmp string) string {
+	in := filepath.Join(tmp, "in")
+	wantCode(t, exitOK, "generate", "--out", in, "--count", "6", "--quiet", "--layout", "packed")
+	return in
+}
+
+// badPackedLinkOut: the first pack moved beside the set, a link left.
+func badPackedLinkOut(t *testing.T, tmp string) string {
+	in := badPacked(t, tmp)
+	p := filepath.Join(in, "packs", "train-00000.tar")
+	b, err := os.ReadFile(p)
+	if err != nil {
+		t.Fatal(err)
+	}
+	badWrite(t, filepath.Join(tmp, "sibling", "train-00000.tar"), b)
+	os.Remove(p)
+	if err := os.Symlink(filepath.Join("..", "..", "sibling", "train-00000.tar"), p); err != nil {
+		t.Fatal(err)
+	}
+	return in
+}
+
+// badPackedFIFO: the first pack replaced by a named pipe.
+func badPackedFIFO(t *testing.T, tmp string) string {
+	in := badPacked(t, tmp)
+	p := filepath.Join(in, "packs", "train-00000.tar")
+	os.Remove(p)
+	if err := syscall.Mkfifo(p, 0o644); err != nil {
+		t.Fatal(err)
+	}
+	return in
+}
+
+// badPackedIndex: the index says sample 000000's image is 1 TB long.
+func badPackedIndex(t *testing.T, tmp string) string {
+	in := badPacked(t, tmp)
+	p := filepath.Join(in, "packs", "index.jsonl")
+	b, err := os.ReadFile(p)
+	if err != nil {
+		t.Fatal(err)
+	}
+	i := bytes.Index(b, []byte(`["images/000000.png",`))
+	j := i + bytes.IndexByte(b[i:], ']')
+	k := bytes.LastIndexByte(b[:j], ',')
+	b = append(append(append([]byte{}, b[:k+1]...), []byte("1000000000000")...), b[j:]...)
+	badWrite(t, p, b)
 	return in
 }
 
