@@ -166,22 +166,47 @@ func readObjects(objs []manifest.Object, defs []manifest.TargetDef) (map[int]boo
 // frame ("fully inside": all of the object's pixels) and some of it shows,
 // lost when they do but the warp shows none of it, out when none maps inside
 // and none shows, cut otherwise. stats are the warped instance mask's.
+//
+// Each pixel center is mapped by m with Mat.Apply's own expression, its
+// terms m[0]·(x+½), m[3]·(x+½) taken from a table per column and m[1]·(y+½),
+// m[4]·(y+½) once per row, so every sum is the one Apply rounds; pixels are
+// counted in slices indexed by the objects' instance ids (ids no object has
+// are not counted). frameFatesRef (apply_fast_test.go) is the per-pixel
+// reference it is held to.
 func frameFates(objs []manifest.Object, src *image.Gray16, stats map[int]*manifest.InstanceStats, m Mat, w, h int) map[int]int {
-	inside, total := map[int]int{}, map[int]int{}
+	maxID := 0
+	for _, o := range objs {
+		if o.Area != 0 && o.Instance > maxID && o.Instance <= 0xffff {
+			maxID = o.Instance
+		}
+	}
+	counts := make([]int32, 2*(maxID+1))
+	inside, total := counts[:maxID+1], counts[maxID+1:]
 	b := src.Bounds()
-	fw, fh := float64(w), float64(h)
-	for y := b.Min.Y; y < b.Max.Y; y++ {
-		row := src.Pix[(y-b.Min.Y)*src.Stride:]
-		for x := b.Min.X; x < b.Max.X; x++ {
-			i := 2 * (x - b.Min.X)
-			id := int(row[i])<<8 | int(row[i+1])
-			if id == 0 {
-				continue
-			}
-			total[id]++
-			X, Y := m.Apply(float64(x)+0.5, float64(y)+0.5)
-			if X >= 0 && X < fw && Y >= 0 && Y < fh {
-				inside[id]++
+	bw := b.Dx()
+	if maxID > 0 && bw > 0 {
+		cx, cy := make([]float64, bw), make([]float64, bw)
+		for i := range cx {
+			xc := float64(b.Min.X+i) + 0.5
+			cx[i], cy[i] = m[0]*xc, m[3]*xc
+		}
+		fw, fh := float64(w), float64(h)
+		for y := b.Min.Y; y < b.Max.Y; y++ {
+			row := src.Pix[(y-b.Min.Y)*src.Stride:]
+			row = row[:2*bw]
+			yc := float64(y) + 0.5
+			tx, ty := float64(m[1]*yc), float64(m[4]*yc)
+			for i := range cx {
+				id := int(row[2*i])<<8 | int(row[2*i+1])
+				if id == 0 || id > maxID {
+					continue
+				}
+				total[id]++
+				X := cx[i] + tx + m[2]
+				Y := cy[i] + ty + m[5]
+				if X >= 0 && X < fw && Y >= 0 && Y < fh {
+					inside[id]++
+				}
 			}
 		}
 	}
@@ -190,19 +215,27 @@ func frameFates(objs []manifest.Object, src *image.Gray16, stats map[int]*manife
 		if o.Area == 0 {
 			continue
 		}
-		shows := stats[o.Instance] != nil
-		switch n := inside[o.Instance]; {
-		case n == total[o.Instance] && shows:
-			out[o.Instance] = fateWhole
-		case n == total[o.Instance]:
-			out[o.Instance] = fateLost
-		case n == 0 && !shows:
-			out[o.Instance] = fateOut
-		default:
-			out[o.Instance] = fateCut
+		in, tot := int32(0), int32(0)
+		if o.Instance > 0 && o.Instance <= maxID {
+			in, tot = inside[o.Instance], total[o.Instance]
 		}
+		out[o.Instance] = fate(int(in), int(tot), stats[o.Instance] != nil)
 	}
 	return out
+}
+
+// fate is an object's fate from how many of its pixel centers map inside
+// the frame, how many it has and whether the warp shows any of it.
+func fate(inside, total int, shows bool) int {
+	switch {
+	case inside == total && shows:
+		return fateWhole
+	case inside == total:
+		return fateLost
+	case inside == 0 && !shows:
+		return fateOut
+	}
+	return fateCut
 }
 
 // cutoutHides reports whether a cutout step of d that marks its pixels

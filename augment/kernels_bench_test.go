@@ -56,18 +56,62 @@ func BenchmarkKernels(b *testing.B) {
 	}
 }
 
+// kernelPartSizes are the canvases BenchmarkKernelParts times: the figure's
+// two and the large one of the speed issue's large canvases.
+var kernelPartSizes = []int{64, 512, 1024}
+
+// grayInput is c's source with its image reduced to one channel (the red
+// one), as the generated gray scenes are: the gray paths of the kernels.
+func grayInput(c *kernels.Case) *augment.Input {
+	in := *c.In
+	rgb := c.In.Image
+	g := augment.NewImage(rgb.W, rgb.H, 1)
+	for i := range g.Pix {
+		g.Pix[i] = rgb.Pix[3*i]
+	}
+	in.Image = g
+	return &in
+}
+
 // BenchmarkKernelParts times each step of the ours path on its own, for
-// profiling: the three warps, the noise and the rounding to 8 bits.
+// profiling: the three warps, the noise and the rounding to 8 bits, for the
+// RGB image and (suffix -gray) the gray one, and a whole Plan.Copy of the
+// gray source (warps, cuts check, noise, labels measured again).
+//
+//	go test -run '^$' -bench 'KernelParts' -cpuprofile cpu.out ./augment/
 func BenchmarkKernelParts(b *testing.B) {
-	for _, n := range kernelSizes {
+	for _, n := range kernelPartSizes {
 		c := kernelCase(b, n)
 		d := c.Copies[0].D
 		in := c.In
-		b.Run(fmt.Sprintf("%dx%d/warp-image", n, n), func(b *testing.B) {
-			for i := 0; i < b.N; i++ {
-				augment.WarpImage(in.Image, d.M, d.W, d.H, augment.Bilinear, augment.Fill{})
+		gray := grayInput(c)
+		for _, src := range []*augment.Input{in, gray} {
+			sfx := ""
+			if src.Image.C == 1 {
+				sfx = "-gray"
 			}
-		})
+			b.Run(fmt.Sprintf("%dx%d/warp-image%s", n, n, sfx), func(b *testing.B) {
+				for i := 0; i < b.N; i++ {
+					augment.WarpImage(src.Image, d.M, d.W, d.H, augment.Bilinear, augment.Fill{})
+				}
+			})
+			b.Run(fmt.Sprintf("%dx%d/warp-image-bicubic%s", n, n, sfx), func(b *testing.B) {
+				for i := 0; i < b.N; i++ {
+					augment.WarpImage(src.Image, d.M, d.W, d.H, augment.Bicubic, augment.Fill{})
+				}
+			})
+			img := augment.WarpImage(src.Image, d.M, d.W, d.H, augment.Bilinear, augment.Fill{})
+			b.Run(fmt.Sprintf("%dx%d/noise%s", n, n, sfx), func(b *testing.B) {
+				for i := 0; i < b.N; i++ {
+					augment.GaussianNoise(img, manifest.RNG(uint64(i)), 4)
+				}
+			})
+			b.Run(fmt.Sprintf("%dx%d/to-image%s", n, n, sfx), func(b *testing.B) {
+				for i := 0; i < b.N; i++ {
+					img.ToImage()
+				}
+			})
+		}
 		b.Run(fmt.Sprintf("%dx%d/warp-mask", n, n), func(b *testing.B) {
 			for i := 0; i < b.N; i++ {
 				augment.WarpMask(in.Mask, d.M, d.W, d.H, 0)
@@ -78,22 +122,19 @@ func BenchmarkKernelParts(b *testing.B) {
 				augment.WarpInstances(in.Inst, d.M, d.W, d.H)
 			}
 		})
-		img := augment.WarpImage(in.Image, d.M, d.W, d.H, augment.Bilinear, augment.Fill{})
-		b.Run(fmt.Sprintf("%dx%d/noise", n, n), func(b *testing.B) {
-			for i := 0; i < b.N; i++ {
-				augment.GaussianNoise(img, manifest.RNG(uint64(i)), 4)
-			}
-		})
-		b.Run(fmt.Sprintf("%dx%d/to-image", n, n), func(b *testing.B) {
-			for i := 0; i < b.N; i++ {
-				img.ToImage()
-			}
-		})
 		quarter, qw, qh := augment.RotateCanvas(float64(n), float64(n), 90, true)
 		quarter = augment.FlipH(float64(n)).Then(quarter)
 		b.Run(fmt.Sprintf("%dx%d/warp-image-quarter-turn", n, n), func(b *testing.B) {
 			for i := 0; i < b.N; i++ {
 				augment.WarpImage(in.Image, quarter, qw, qh, augment.Bilinear, augment.Fill{})
+			}
+		})
+		b.Run(fmt.Sprintf("%dx%d/plan-copy-gray", n, n), func(b *testing.B) {
+			b.ReportAllocs()
+			for i := 0; i < b.N; i++ {
+				if _, err := c.Plan.Copy(gray, kernels.Seed, 0, c.Copies[i%len(c.Copies)].K, nil); err != nil {
+					b.Fatal(err)
+				}
 			}
 		})
 	}
