@@ -28,9 +28,12 @@ func newSplitCmd(stdout, stderr io.Writer) *cobra.Command {
 together) is dealt to a split (--ratios), stratified by --stratify, with the
 strata × splits table rounded so every cell and every split total is within
 ±1 of its exact share (--require-coverage: coverage first, as generate
---help says). Only manifest.jsonl and dataset.json are rewritten;
-dataset.json is removed first and written last, so an interrupted split
-leaves a folder that is visibly incomplete rather than a mix. The shuffle
+--help says). In the folder layout only manifest.jsonl and dataset.json
+are rewritten; in the packed layout the packs are too (each holds one
+split and its samples' records), written beside the old ones first, so
+split needs room for a second copy of them while it runs. dataset.json is
+removed first and written last, so an interrupted split leaves a folder
+that is visibly incomplete rather than a mix. The shuffle
 uses the dataset's own seed, so the same flags give the same split as
 generate did.
 

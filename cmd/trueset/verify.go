@@ -47,8 +47,8 @@ Exit code 1 if anything is wrong.
 Each problem names the kind of check that failed, one of: ` + strings.Join(manifest.ProblemKinds, ", ") + `.
 
 --regenerate also re-renders the dataset from the recipe and seed stored in
-dataset.json into a temporary folder and compares every byte, naming the
-first file that differs. The folder is trueset-regenerate-* under the
+dataset.json into a temporary folder, in the dataset's layout (and pack
+size), and compares every byte, naming the first file that differs. The folder is trueset-regenerate-* under the
 system's temporary folder ($TMPDIR, else /tmp); it is removed when verify
 ends, fails or is interrupted (Ctrl-C, SIGTERM). A killed verify (SIGKILL,
 which no program can catch) leaves it behind; the next verify --regenerate
@@ -216,8 +216,13 @@ func regenerateAndCompare(ctx context.Context, dir string, workers int, stderr i
 	if r.CheckStratify(key) != nil {
 		planKey = ""
 	}
+	// The same layout, and pack bound, as the dataset's.
+	layout, packBytes := manifest.LayoutFolder, int64(0)
+	if d.Layout != nil {
+		layout, packBytes = manifest.LayoutPacked, d.Layout.PackBytes
+	}
 	_, err = gen.Run(ctx, gen.RunOptions{Recipe: r, Out: out, Count: d.Count, Seed: d.Seed, Workers: workers,
-		Splits: d.Splits.Spec, Stratify: planKey, Version: version})
+		Splits: d.Splits.Spec, Stratify: planKey, Version: version, Layout: layout, PackBytes: packBytes})
 	if err != nil {
 		return "", fmt.Errorf("regenerate: %w", err)
 	}
