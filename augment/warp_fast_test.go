@@ -207,3 +207,59 @@ func TestU8(t *testing.T) {
 		check(v)
 	}
 }
+
+// TestKeys4 holds keys4 to keys at the four tap offsets the reference
+// forms (f+1, f, f−1, f−2): at the ends of [0, 1), where f+1 rounds to 1 or
+// 2, at the neighbours of ½ and of small powers of two, and at random f.
+func TestKeys4(t *testing.T) {
+	fs := []float64{0, math.SmallestNonzeroFloat64, 1e-300, 0x1p-54, 0x1p-53, 0x1p-52, 0.25, 0.5, 0.75,
+		math.Nextafter(0.5, 0), math.Nextafter(0.5, 1), math.Nextafter(1, 0), math.Nextafter(math.Nextafter(1, 0), 0)}
+	rng := rand.New(rand.NewPCG(3, 9))
+	for i := 0; i < 200000; i++ {
+		fs = append(fs, rng.Float64())
+	}
+	for _, f := range fs {
+		k0, k1, k2, k3 := keys4(f)
+		got := [4]float64{k0, k1, k2, k3}
+		for k := range got {
+			want := keys(f - float64(k-1))
+			if math.Float64bits(got[k]) != math.Float64bits(want) {
+				t.Fatalf("keys4(%v)[%d] = %v (%#x), keys(%v) = %v (%#x)", f, k, got[k], math.Float64bits(got[k]), f-float64(k-1), want, math.Float64bits(want))
+			}
+		}
+	}
+}
+
+// TestWarpFastTiles compares fast and reference warps on canvases larger
+// than warpTile, so that rows are cut into several blocks and runs start
+// and end inside blocks.
+func TestWarpFastTiles(t *testing.T) {
+	rng := rand.New(rand.NewPCG(4, 8))
+	const w, h = 150, 137
+	mask, inst := fastTestMasks(w, h, rng)
+	maps := []Mat{
+		About(Rotate(13), w/2, h/2, w/2+1.5, h/2-2),
+		About(Rotate(-71).Then(Scale(0.8, 1.3)), w/2, h/2, w/2, h/2),
+		FlipH(w).Then(About(Rotate(90), w/2, h/2, h/2, w/2)),
+		CropResize(10.3, 7.7, 97.1, 88.4, 160, 171),
+	}
+	for _, c := range []int{1, 3} {
+		src := fastTestImage(w, h, c, rng, false)
+		for mi, m := range maps {
+			for _, ip := range []Interp{Bilinear, Bicubic} {
+				for _, f := range []Fill{{Mode: "tone", Value: [3]float32{3, 4, 5}}, {Mode: "mirror"}} {
+					what := fmt.Sprintf("%d×%d→160×171, %d channel(s), map %d %v, interp %d, fill %+v", w, h, c, mi, m, ip, f)
+					fastSameImage(t, what, WarpImage(src, m, 160, 171, ip, f), warpImageRef(src, m, 160, 171, ip, f))
+				}
+			}
+		}
+	}
+	for mi, m := range maps {
+		if got, want := WarpMask(mask, m, 160, 171, 255), warpMaskRef(mask, m, 160, 171, 255); !bytes.Equal(got.Pix, want.Pix) {
+			t.Errorf("map %d %v: class mask differs from the reference", mi, m)
+		}
+		if got, want := WarpInstances(inst, m, 160, 171), warpInstancesRef(inst, m, 160, 171); !bytes.Equal(got.Pix, want.Pix) {
+			t.Errorf("map %d %v: instance mask differs from the reference", mi, m)
+		}
+	}
+}
