@@ -452,13 +452,13 @@ func applyPhoto(img *Image, mask *image.Paletted, inst *image.Gray16, op *manife
 	rng := manifest.RNG(uint64(op.Num("seed")))
 	switch op.Do {
 	case "gaussian-noise":
-		GaussianNoise(img, rng, op.Num("sigma"))
+		gaussianNoise(img, manifest.PCG(uint64(op.Num("seed"))), op.Num("sigma"))
 	case "salt-and-pepper":
 		SaltPepper(img, rng, op.Num("fraction"))
 	case "shot-noise":
 		ShotNoise(img, rng, op.Num("photons"))
 	case "speckle":
-		Speckle(img, rng, op.Num("sigma"))
+		speckle(img, manifest.PCG(uint64(op.Num("seed"))), op.Num("sigma"))
 	case "blur":
 		GaussianBlur(img, op.Num("sigma"))
 	case "brightness":

@@ -27,6 +27,13 @@ func Key(seed uint64, parts ...uint64) uint64 {
 // only: no global state and no clock, so the same inputs give the same stream
 // on every machine.
 func RNG(seed uint64, parts ...uint64) *rand.Rand {
+	return rand.New(PCG(seed, parts...))
+}
+
+// PCG returns the generator RNG(seed, parts...) draws from, for loops that
+// call it directly rather than through rand.Rand's interface (augment's
+// noise steps): rand.New(PCG(…)) gives the same stream as RNG(…).
+func PCG(seed uint64, parts ...uint64) *rand.PCG {
 	k := Key(seed, parts...)
-	return rand.New(rand.NewPCG(k, SplitMix64(k)))
+	return rand.NewPCG(k, SplitMix64(k))
 }
