@@ -197,3 +197,31 @@ func readIndex(t *testing.T, dir string) []manifest.IndexEntry {
 	}
 	return out
 }
+
+// split reads every member of a packed set to write the packs again: a
+// member whose bytes differ from its record stops it before anything in
+// the set changes (the folder layout's split does not read sample files).
+func TestSplitPackedDamagedChangesNothing(t *testing.T) {
+	tmp := twinSets(t)
+	set := filepath.Join(tmp, "packed", "dice7")
+	e := readIndex(t, set)[5]
+	img := e.Files[1]
+	p := filepath.Join(set, e.Pack)
+	b := mustRead(t, p)
+	b[img.Off+img.Size-20] ^= 0xff
+	if err := os.WriteFile(p, b, 0o644); err != nil {
+		t.Fatal(err)
+	}
+	before := filepath.Join(tmp, "before")
+	killCopyTree(t, set, before)
+	code, _, stderr := runBounded(t, "split", set, "--ratios", "train=0.5,val=0.25,test=0.25")
+	if code != exitFailure {
+		t.Fatalf("exit %d, want %d\n%s", code, exitFailure, stderr)
+	}
+	for _, w := range []string{"record " + e.ID + ": ", img.Name + ": SHA-256", "nothing was changed"} {
+		if !strings.Contains(stderr, w) {
+			t.Errorf("stderr %q lacks %q", stderr, w)
+		}
+	}
+	killSameTree(t, before, set)
+}
