@@ -191,6 +191,7 @@ func BenchmarkGenerateCanvas(b *testing.B) {
 			enc := manifest.NewEncoder()
 			total := 0
 			b.ReportAllocs()
+			defer cpuPerOp(b)()
 			for i := 0; b.Loop(); i++ {
 				s, err := rd.Generate(1, i%64)
 				if err != nil {

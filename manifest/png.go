@@ -2,16 +2,21 @@ package manifest
 
 import (
 	"bytes"
+	"fmt"
 	"image"
 	"image/color"
 	"image/png"
+
+	"github.com/klauspost/compress/flate"
 )
 
 // Encoder encodes images, semantic masks and instance masks as PNG
 // (ISO/IEC 15948). The images trueset writes (8-bit gray, opaque RGBA,
 // indexed masks, 16-bit instance maps) take a fast path (png_fast.go) with a
-// row filter and deflate level chosen per kind and buffers kept between
-// calls, so a hot loop allocates nothing; any other image goes through
+// row filter and deflate level chosen per kind — and for gray and RGB
+// images by their content, from a sample of rows — and buffers kept between
+// calls, so a hot loop allocates nothing. The choice depends on the pixels
+// alone, so the same image always gives the same bytes; any other image goes through
 // image/png (encodeReference). Both give standard PNGs that decode to the
 // same pixels. An Encoder is not safe for concurrent use; give each worker
 // its own.
@@ -36,10 +41,36 @@ func NewEncoder() *Encoder {
 
 // Encode returns the PNG bytes of m. The slice is valid until the next call.
 func (e *Encoder) Encode(m image.Image) ([]byte, error) {
-	if b, ok, err := e.encodeFast(m); ok {
+	if b, ok, err := e.encodeFast(m, nil); ok {
 		return b, err
 	}
 	return e.encodeReference(m)
+}
+
+// PNGChoice is a row filter type (ISO/IEC 15948 §9.2: 0 None, 1 Sub, 2 Up,
+// 3 Average, 4 Paeth) and a deflate level of github.com/klauspost/compress/flate
+// (0 stored, 1–9, −1 default, −2 Huffman-only coding).
+type PNGChoice struct {
+	Filter int
+	Level  int
+}
+
+// EncodeWith is Encode with the filter and level of gray and RGB images
+// fixed to c instead of chosen by content (masks and instance maps keep
+// theirs), for benchmarks that compare choices. Other images, a filter
+// outside 0–4 and a level outside −2–9 give an error.
+func (e *Encoder) EncodeWith(m image.Image, c PNGChoice) ([]byte, error) {
+	if c.Filter < filterNone || c.Filter > filterPaeth {
+		return nil, fmt.Errorf("png: filter type %d, want 0 to 4", c.Filter)
+	}
+	if c.Level < flate.HuffmanOnly || c.Level > flate.BestCompression {
+		return nil, fmt.Errorf("png: deflate level %d, want -2 to 9", c.Level)
+	}
+	b, ok, err := e.encodeFast(m, &c)
+	if !ok {
+		return nil, fmt.Errorf("png: EncodeWith takes the gray, RGB, indexed and 16-bit images of the fast path, not %T", m)
+	}
+	return b, err
 }
 
 // encodeReference is the simple path: image/png at its default settings

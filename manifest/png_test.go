@@ -8,11 +8,13 @@ import (
 	"image"
 	"image/color"
 	"image/png"
+	"math"
 	"math/rand/v2"
 	"os"
 	"os/exec"
 	"path/filepath"
 	"reflect"
+	"sort"
 	"strings"
 	"testing"
 )
@@ -127,7 +129,7 @@ func decodeSame(t *testing.T, name string, a, b []byte) {
 func fastAndReference(t *testing.T, name string, m image.Image) (fast, ref []byte) {
 	t.Helper()
 	e := NewEncoder()
-	b, ok, err := e.encodeFast(m)
+	b, ok, err := e.encodeFast(m, nil)
 	if !ok || err != nil {
 		t.Fatalf("%s: fast path refused (%v, %v)", name, ok, err)
 	}
@@ -226,7 +228,7 @@ func TestFastEncoderDeclines(t *testing.T) {
 		"NRGBA": image.NewNRGBA(r), "empty": image.NewGray(image.Rect(0, 0, 0, 0)),
 	} {
 		e := NewEncoder()
-		if _, ok, _ := e.encodeFast(m); ok {
+		if _, ok, _ := e.encodeFast(m, nil); ok {
 			t.Fatalf("%s: fast path took it", name)
 		}
 		got, gerr := e.Encode(m)
@@ -300,8 +302,235 @@ func TestFastEncoderPngcheck(t *testing.T) {
 		}
 		files = append(files, f)
 	}
+	// Content-chosen and forced filters and levels on smooth and noisy images.
+	e := NewEncoder()
+	for name, m := range choiceImages() {
+		for f := -1; f <= filterPaeth; f++ {
+			var b []byte
+			var err error
+			if f < 0 {
+				b, err = e.Encode(m)
+			} else {
+				b, err = e.EncodeWith(m, PNGChoice{Filter: f, Level: []int{levelHuffman, 1, 4, 9, 0}[f]})
+			}
+			if err != nil {
+				t.Fatal(err)
+			}
+			p := filepath.Join(dir, fmt.Sprintf("%s_f%d.png", strings.ReplaceAll(name, " ", "_"), f))
+			if err := os.WriteFile(p, b, 0o644); err != nil {
+				t.Fatal(err)
+			}
+			files = append(files, p)
+		}
+	}
 	out, err := exec.Command(bin, append([]string{"-q"}, files...)...).CombinedOutput()
 	if err != nil {
 		t.Fatalf("pngcheck: %v\n%s", err, out)
+	}
+}
+
+// filterRowReference filters one row byte by byte with the formulas of
+// ISO/IEC 15948 §9.2–9.4 (x the byte, a the byte bpp to its left, b the
+// byte above, c the byte above a, each 0 where it falls outside the image),
+// with the Paeth predictor written as the specification's pseudocode.
+func filterRowReference(f byte, dst, cur, prev []byte, bpp int) {
+	for i := range cur {
+		var a, b, c int
+		if i >= bpp {
+			a, c = int(cur[i-bpp]), int(prev[i-bpp])
+		}
+		b = int(prev[i])
+		var pred int
+		switch f {
+		case filterNone:
+			pred = 0
+		case filterSub:
+			pred = a
+		case filterUp:
+			pred = b
+		case filterAvg:
+			pred = (a + b) / 2 // floor((a + b) / 2), computed without overflow
+		case filterPaeth:
+			p := a + b - c
+			pa, pb, pc := iabs(p-a), iabs(p-b), iabs(p-c)
+			switch {
+			case pa <= pb && pa <= pc:
+				pred = a
+			case pb <= pc:
+				pred = b
+			default:
+				pred = c
+			}
+		}
+		dst[i] = uint8(int(cur[i]) - pred) // modulo 256
+	}
+}
+
+func iabs(v int) int {
+	if v < 0 {
+		return -v
+	}
+	return v
+}
+
+// filterRow gives the bytes of the specification's formulas
+// (filterRowReference) for every filter type, 1 to 8 bytes a pixel, random
+// rows (every Paeth tie and branch comes up), constant rows, and the first
+// row (no row above).
+func TestFilterRowMatchesReference(t *testing.T) {
+	rng := rand.New(rand.NewPCG(9, 9))
+	for it := 0; it < 3000; it++ {
+		bpp := []int{1, 2, 3, 4, 6, 8}[it%6]
+		n := bpp * (1 + rng.IntN(40))
+		cur, prev := make([]byte, n), make([]byte, n)
+		span := []int{256, 4, 1}[it%3] // full range, near-ties, constant
+		for i := range cur {
+			cur[i], prev[i] = byte(rng.IntN(span)), byte(rng.IntN(span))
+			if span == 1 {
+				cur[i], prev[i] = 200, 100
+			}
+		}
+		if it%7 == 0 {
+			clear(prev)
+		}
+		for f := byte(filterNone); f <= filterPaeth; f++ {
+			got, want := make([]byte, n), make([]byte, n)
+			filterRow(f, got, cur, prev, bpp)
+			filterRowReference(f, want, cur, prev, bpp)
+			if !bytes.Equal(got, want) {
+				t.Fatalf("filter %d, bpp %d: got % x, want % x (cur % x prev % x)", f, bpp, got, want, cur, prev)
+			}
+		}
+	}
+}
+
+// choiceImages are gray and RGB images for the content choice: smooth
+// (a gradient with a few flat shapes, as a generated scene), noisy (the same
+// with Gaussian noise of σ 5 added, as an augmented copy), and random.
+func choiceImages() map[string]image.Image {
+	out := map[string]image.Image{}
+	rng := rand.New(rand.NewPCG(3, 4))
+	for _, side := range []int{8, 64, 200} {
+		g := image.NewGray(image.Rect(0, 0, side, side))
+		c := image.NewRGBA(image.Rect(0, 0, side, side))
+		gn := image.NewGray(image.Rect(0, 0, side, side))
+		cn := image.NewRGBA(image.Rect(0, 0, side, side))
+		noisy := func(v int) uint8 {
+			return uint8(min(255, max(0, v+int(math.Round(5*rng.NormFloat64())))))
+		}
+		for y := 0; y < side; y++ {
+			for x := 0; x < side; x++ {
+				v := 40 + 60*y/side
+				if (x-side/3)*(x-side/3)+(y-side/2)*(y-side/2) < side*side/25 {
+					v = 220
+				}
+				g.Pix[y*side+x] = uint8(v)
+				gn.Pix[y*side+x] = noisy(v)
+				for k := 0; k < 3; k++ {
+					c.Pix[(y*side+x)*4+k] = uint8(v - 30*k)
+					cn.Pix[(y*side+x)*4+k] = noisy(v - 30*k)
+				}
+				c.Pix[(y*side+x)*4+3], cn.Pix[(y*side+x)*4+3] = 255, 255
+			}
+		}
+		n := fmt.Sprint(side)
+		out["gray smooth "+n], out["rgb smooth "+n], out["gray noisy "+n], out["rgb noisy "+n] = g, c, gn, cn
+	}
+	return out
+}
+
+// Every filter type and a range of deflate levels, forced with EncodeWith
+// on gray and RGB images, decode with image/png to the pixels of the
+// reference path; and the content choice, over smooth and noisy images,
+// comes to both filters and both kinds of level it can pick, so those paths
+// are exercised by the tests above.
+func TestEncodeWithEveryChoice(t *testing.T) {
+	ims := choiceImages()
+	for name, m := range testImages() {
+		if _, ok := m.(*image.Gray); ok {
+			ims[name] = m
+		}
+		if _, ok := m.(*image.RGBA); ok {
+			ims[name] = m
+		}
+	}
+	e := NewEncoder()
+	for name, m := range ims {
+		_, ref := fastAndReference(t, name, m)
+		for f := filterNone; f <= filterPaeth; f++ {
+			for _, lv := range []int{levelHuffman, 0, 1, 4, 9} {
+				b, err := e.EncodeWith(m, PNGChoice{Filter: f, Level: lv})
+				if err != nil {
+					t.Fatal(err)
+				}
+				decodeSame(t, fmt.Sprintf("%s, filter %d, level %d", name, f, lv), b, ref)
+			}
+		}
+	}
+	seen := map[[2]int]bool{}
+	for _, m := range ims {
+		var s fastState
+		r := m.Bounds()
+		var row rowFunc
+		n, bpp := r.Dx(), 1
+		switch m := m.(type) {
+		case *image.Gray:
+			row = func(y int, _ []byte) []byte { o := m.PixOffset(r.Min.X, r.Min.Y+y); return m.Pix[o : o+n] }
+		case *image.RGBA:
+			n, bpp = 3*r.Dx(), 3
+			row = func(y int, conv []byte) []byte {
+				o := m.PixOffset(r.Min.X, r.Min.Y+y)
+				for i := 0; i < r.Dx(); i++ {
+					copy(conv[3*i:3*i+3], m.Pix[o+4*i:])
+				}
+				return conv
+			}
+		}
+		f, lv := s.chooseImage(r.Dy(), n, bpp, row)
+		seen[[2]int{int(f), lv}] = true
+	}
+	for _, want := range [][2]int{{filterAvg, levelHuffman}, {filterPaeth, levelHuffman}, {filterPaeth, imageLevel}} {
+		if !seen[want] {
+			t.Errorf("no test image is encoded with filter %d, level %d (seen %v)", want[0], want[1], seen)
+		}
+	}
+	if _, err := e.EncodeWith(ims["gray smooth 8"], PNGChoice{Filter: 5}); err == nil {
+		t.Error("filter type 5 accepted")
+	}
+	if _, err := e.EncodeWith(ims["gray smooth 8"], PNGChoice{Level: 10}); err == nil {
+		t.Error("level 10 accepted")
+	}
+}
+
+// The same image gives the same bytes from a fresh Encoder and from one
+// that has just encoded other images at other levels and sizes, so the
+// bytes do not depend on which worker, and after what, encodes it.
+func TestEncoderBytesIndependentOfHistory(t *testing.T) {
+	ims := choiceImages()
+	for name, m := range testImages() {
+		ims[name] = m
+	}
+	names := make([]string, 0, len(ims))
+	for n := range ims {
+		names = append(names, n)
+	}
+	sort.Strings(names)
+	used := NewEncoder()
+	for _, n := range names {
+		used.Encode(ims[n])
+	}
+	for i := len(names) - 1; i >= 0; i-- {
+		m := ims[names[i]]
+		fresh, err := NewEncoder().Encode(m)
+		if err != nil {
+			t.Fatal(err)
+		}
+		again, err := used.Encode(m)
+		if err != nil {
+			t.Fatal(err)
+		}
+		if !bytes.Equal(fresh, again) {
+			t.Fatalf("%s: a used encoder gives other bytes than a fresh one", names[i])
+		}
 	}
 }
