@@ -76,7 +76,8 @@ func (p *Plan) CopyWith(in *Input, seed uint64, src, k int, defs []manifest.Targ
 		d    *Drawn
 		inst *image.Gray16
 		frac map[int]float64
-		lost bool // some object lost, cut or dropped
+		st   map[int]*manifest.InstanceStats // inst's
+		lost bool                            // some object lost, cut or dropped
 	}
 	var chosen, best *drawn
 	why := ""
@@ -113,7 +114,7 @@ func (p *Plan) CopyWith(in *Input, seed uint64, src, k int, defs []manifest.Targ
 			why = hard
 			continue
 		}
-		best = &drawn{d, inst, frac, lost}
+		best = &drawn{d, inst, frac, stats, lost}
 		if !(cuts.Policy == "redraw" && short) {
 			chosen = best
 			break
@@ -125,9 +126,10 @@ func (p *Plan) CopyWith(in *Input, seed uint64, src, k int, defs []manifest.Targ
 	if chosen == nil {
 		return &Output{NotWritten: why, Redraws: tries - 1}, nil
 	}
-	// The chosen draw's warped instance mask and kept fractions are what
-	// render would compute again from the same matrix; it takes them over.
-	out, err := p.render(in, chosen.d, defs, chosen.inst, chosen.frac)
+	// The chosen draw's warped instance mask, its measures and the kept
+	// fractions are what render would compute again from the same matrix;
+	// it takes them over.
+	out, err := p.render(in, chosen.d, defs, chosen.inst, chosen.st, chosen.frac)
 	if err != nil {
 		return nil, err
 	}
@@ -274,7 +276,7 @@ func (p *Plan) Rebuild(in *Input, lin *manifest.Lineage, w, h int, defs []manife
 	if lin.Cuts != nil {
 		d.Redraws = lin.Cuts.Redraws
 	}
-	return p.render(in, d, defs, nil, nil)
+	return p.render(in, d, defs, nil, nil, nil)
 }
 
 // cloneOps copies lineage steps so that render's notes (skipped_gray) do
@@ -292,13 +294,16 @@ func cloneOps(ops []manifest.LineageOp) []manifest.LineageOp {
 // outside, masks by nearest neighbour with the same matrix; objects cut
 // below cuts.least_shown are erased (to "ignore") unless the policy is keep
 // (under redraw, only a copy that ran out of tries still has such objects);
-// then the pixel steps run in order. inst and frac, when not nil, are the
-// instance mask already warped by d.M and its keptFractions (render owns
-// inst from then on).
-func (p *Plan) render(in *Input, d *Drawn, defs []manifest.TargetDef, inst *image.Gray16, frac map[int]float64) (*Output, error) {
+// then the pixel steps run in order. inst, stats and frac, when inst is not
+// nil, are the instance mask already warped by d.M, its
+// manifest.MeasureInstances and its keptFractions (render owns inst from
+// then on). The labels are measured from inst as the pixel steps leave it:
+// stats serve as they are unless an object was erased or a cutout ran.
+func (p *Plan) render(in *Input, d *Drawn, defs []manifest.TargetDef, inst *image.Gray16, stats map[int]*manifest.InstanceStats, frac map[int]float64) (*Output, error) {
 	if inst == nil {
 		inst = WarpInstances(in.Inst, d.M, d.W, d.H)
-		frac = keptFractions(in.Record.Objects, manifest.MeasureInstances(inst), d.M)
+		stats = manifest.MeasureInstances(inst)
+		frac = keptFractions(in.Record.Objects, stats, d.M)
 	}
 	g := &p.Geometry
 	min := *g.Cuts.LeastShown
@@ -335,6 +340,9 @@ func (p *Plan) render(in *Input, d *Drawn, defs []manifest.TargetDef, inst *imag
 			erase(mask, inst, id)
 		}
 		dropped = len(ids)
+		if dropped > 0 {
+			stats = nil
+		}
 	}
 	for i := range d.Pixels {
 		op := &d.Pixels[i]
@@ -342,6 +350,9 @@ func (p *Plan) render(in *Input, d *Drawn, defs []manifest.TargetDef, inst *imag
 			// Color steps do nothing to a gray image; the lineage says so.
 			op.Set("skipped_gray", true)
 			continue
+		}
+		if op.Do == "cutout" {
+			stats = nil // it may hide instance pixels
 		}
 		if err := applyPhoto(img, mask, inst, op); err != nil {
 			return nil, fmt.Errorf("%s: %w", in.Record.ID, err)
@@ -351,7 +362,10 @@ func (p *Plan) render(in *Input, d *Drawn, defs []manifest.TargetDef, inst *imag
 	rec := &out.Record
 	*rec = in.Record
 	rec.Width, rec.Height = d.W, d.H
-	rec.Objects = relabel(in.Record.Objects, inst, d.M, frac)
+	if stats == nil {
+		stats = manifest.MeasureInstances(inst)
+	}
+	rec.Objects = relabel(in.Record.Objects, stats, d.M, frac)
 	rec.Targets = recompute(defs, rec.Objects, in.Record.Targets)
 	// Planted noise, held-out marks and bait cues belong to the source's
 	// record: the copy's labels are measured from its own masks, and moves
@@ -399,13 +413,12 @@ func erase(mask *image.Paletted, inst *image.Gray16, id int) {
 	}
 }
 
-// relabel measures the warped instance mask: objects that left the frame (or
+// relabel reads the measures of the warped instance mask (stats): objects that left the frame (or
 // were dropped) disappear, the rest get their new box, area and visible
 // share, and their factors mapped by m: center through m, size by √|det m|,
 // angle as the direction m gives the object's own x axis. A part whose parent
 // is gone loses its parent reference.
-func relabel(objs []manifest.Object, inst *image.Gray16, m Mat, frac map[int]float64) []manifest.Object {
-	stats := manifest.MeasureInstances(inst)
+func relabel(objs []manifest.Object, stats map[int]*manifest.InstanceStats, m Mat, frac map[int]float64) []manifest.Object {
 	kept := map[int]bool{}
 	out := []manifest.Object{} // [] in the record, not null, when none is left
 	s := math.Sqrt(math.Abs(m.Det()))
