@@ -132,7 +132,7 @@ func (rd *Renderer) Render(p *Plan) (*Sample, error) {
 	W, H := r.Canvas.Width, r.Canvas.Height
 	rect := image.Rect(0, 0, W, H)
 	inst := image.NewGray16(rect)
-	mask := image.NewPaletted(rect, manifest.Palette(rd.palette))
+	mask := image.NewPaletted(rect, manifest.MaskPalette(rd.palette))
 	rgb := r.Canvas.Mode == "rgb"
 	var pix []uint8
 	var stride, bpp int

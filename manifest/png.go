@@ -90,7 +90,8 @@ const IgnoreID = 255
 // Palette returns the mask palette for a class table: entry i is class i's
 // color, so an indexed mask is viewable as is. It always has 256 entries so
 // that image/png writes an 8-bit indexed PNG (it picks 1, 2 or 4 bits for
-// smaller palettes); unused entries are black and IgnoreID is white.
+// smaller palettes) and every index is valid; unused entries are black and
+// IgnoreID is white.
 func Palette(classes []Class) color.Palette {
 	p := make(color.Palette, 256)
 	for i := range p {
@@ -101,4 +102,17 @@ func Palette(classes []Class) color.Palette {
 		p[c.ID] = color.RGBA{c.Color[0], c.Color[1], c.Color[2], 255}
 	}
 	return p
+}
+
+// MaskPalette is Palette cut after the largest class id: one entry per id
+// of the class table, which is all a mask file needs to carry (5 entries
+// instead of 256 for classes 0–4). Give it to masks encoded with an Encoder,
+// which writes any larger index a pixel uses (IgnoreID) with Palette's
+// color for it; image/png would write a short palette at 1, 2 or 4 bits.
+func MaskPalette(classes []Class) color.Palette {
+	n := 1
+	for _, c := range classes {
+		n = max(n, c.ID+1)
+	}
+	return Palette(classes)[:n:n]
 }

@@ -10,13 +10,16 @@ import (
 	"github.com/klauspost/compress/flate"
 )
 
-// The fast PNG path. It writes the same kind of file image/png writes for
-// the images trueset makes (8-bit gray, opaque RGBA as 8-bit RGB, 8-bit
-// indexed with an opaque palette of more than 16 entries, 16-bit gray) —
-// IHDR, PLTE for indexed images, one IDAT, IEND (ISO/IEC 15948 §5.6) — with
-// a row filter and a deflate level chosen per kind of image, and for gray
-// and RGB images by their content (chooseImage), and reused buffers so that
-// encoding allocates nothing. Deflate is
+// The fast PNG path. It writes the images trueset makes (8-bit gray, opaque
+// RGBA as 8-bit RGB, indexed with an opaque palette, 16-bit gray) as
+// IHDR, PLTE for indexed images, one IDAT, IEND (ISO/IEC 15948 §5.6), like
+// image/png but for two things: indexed images are always 8-bit (image/png
+// packs palettes of up to 16 entries into 1, 2 or 4 bits) and their PLTE
+// reaches every index used, even beyond the image's palette (plte); and
+// the row filter and deflate
+// level are chosen per kind of image, and for gray and RGB images by their
+// content (chooseImage). Buffers are reused so that encoding allocates
+// nothing. Deflate is
 // github.com/klauspost/compress/flate, a well-kept, widely used pure-Go
 // implementation whose fast levels are several times quicker than
 // compress/flate's; its output is a plain RFC 1951 stream. Any other image
@@ -110,9 +113,8 @@ func (e *Encoder) encodeFast(m image.Image, choice *PNGChoice) (b []byte, ok boo
 			return conv
 		}
 	case *image.Paletted:
-		// image/png writes palettes of up to 16 entries at 1, 2 or 4 bits
-		// and any translucent entry in a tRNS chunk; those go the reference way.
-		if len(m.Palette) <= 16 || len(m.Palette) > 256 || !opaquePalette(m.Palette) {
+		// A translucent entry needs a tRNS chunk; that goes the reference way.
+		if len(m.Palette) == 0 || len(m.Palette) > 256 || !opaquePalette(m.Palette) {
 			return nil, false, nil
 		}
 		ctype, depth, bpp, n, filter, level = 3, 8, 1, w, filterNone, maskLevel
@@ -120,12 +122,7 @@ func (e *Encoder) encodeFast(m image.Image, choice *PNGChoice) (b []byte, ok boo
 			o := m.PixOffset(r.Min.X, r.Min.Y+y)
 			return m.Pix[o : o+w]
 		}
-		pal = s.pal[:0]
-		for _, c := range m.Palette {
-			cr, cg, cb, _ := c.RGBA()
-			pal = append(pal, uint8(cr>>8), uint8(cg>>8), uint8(cb>>8))
-		}
-		s.pal = pal
+		pal = s.plte(m.Palette, h, row)
 	case *image.Gray16:
 		ctype, depth, bpp, n, filter, level = 0, 16, 2, 2*w, filterNone, instLevel
 		row = func(y int, _ []byte) []byte {
@@ -171,6 +168,35 @@ func (e *Encoder) encodeFast(m image.Image, choice *PNGChoice) (b []byte, ok boo
 	out = appendChunk(out, "IEND", nil)
 	s.out.b = out
 	return out, true, nil
+}
+
+// plte returns the PLTE data of an indexed image: its palette, extended
+// to the largest index a pixel uses when that is beyond it (ISO/IEC 15948
+// §11.2.3: a pixel index outside the palette is an error), the added
+// entries as Palette fills them: white for IgnoreID, black for any other.
+// A mask made with MaskPalette for classes 0–4 thus carries 5 entries, and
+// 256 only when it holds IgnoreID.
+func (s *fastState) plte(p color.Palette, h int, row rowFunc) []byte {
+	n := len(p)
+	for y := 0; y < h && n < 256; y++ {
+		for _, v := range row(y, nil) {
+			n = max(n, int(v)+1)
+		}
+	}
+	out := s.pal[:0]
+	for i := 0; i < n; i++ {
+		switch {
+		case i < len(p):
+			cr, cg, cb, _ := p[i].RGBA()
+			out = append(out, uint8(cr>>8), uint8(cg>>8), uint8(cb>>8))
+		case i == IgnoreID:
+			out = append(out, 255, 255, 255)
+		default:
+			out = append(out, 0, 0, 0)
+		}
+	}
+	s.pal = out
+	return out
 }
 
 // chooseImage picks the row filter and deflate level of an image (gray or

@@ -114,8 +114,13 @@ func decodeSame(t *testing.T, name string, a, b []byte) {
 		pa, pb = ma.Pix, mb.(*image.Gray16).Pix
 	case *image.Paletted:
 		pa, pb = ma.Pix, mb.(*image.Paletted).Pix
-		if !reflect.DeepEqual(ma.Palette, mb.(*image.Paletted).Palette) {
-			t.Fatalf("%s: palettes differ", name)
+		// The fast path writes the palette up to the largest index used:
+		// every pixel must show the same color.
+		pal := mb.(*image.Paletted).Palette
+		for _, v := range ma.Pix {
+			if !reflect.DeepEqual(ma.Palette[v], pal[v]) {
+				t.Fatalf("%s: index %d is %v, reference %v", name, v, ma.Palette[v], pal[v])
+			}
 		}
 	default:
 		t.Fatalf("%s: unexpected decoded type %T", name, ma)
@@ -221,10 +226,9 @@ func TestFastEncoderDeclines(t *testing.T) {
 	r := image.Rect(0, 0, 4, 4)
 	translucent := image.NewRGBA(r)
 	translucent.Pix[3] = 128
-	small := image.NewPaletted(r, color.Palette{color.Black, color.White})
 	seeThrough := image.NewPaletted(r, append(Palette(nil)[:255:255], color.RGBA{}))
 	for name, m := range map[string]image.Image{
-		"translucent RGBA": translucent, "2-entry palette": small, "translucent palette entry": seeThrough,
+		"translucent RGBA": translucent, "translucent palette entry": seeThrough,
 		"NRGBA": image.NewNRGBA(r), "empty": image.NewGray(image.Rect(0, 0, 0, 0)),
 	} {
 		e := NewEncoder()
@@ -322,6 +326,21 @@ func TestFastEncoderPngcheck(t *testing.T) {
 			}
 			files = append(files, p)
 		}
+	}
+	// Masks whose PLTE is the class table, or extended to an index beyond it.
+	short := MaskPalette([]Class{{ID: 0, Name: "background"}, {ID: 1, Name: "a", Color: [3]uint8{255, 0, 0}}, {ID: 2, Name: "b", Color: [3]uint8{0, 255, 0}}})
+	for i, pix := range [][]uint8{{0, 1, 2, 0}, {0, 0, 0, 0}, {0, 1, IgnoreID, 2}, {0, 9, 1, 1}} {
+		m := image.NewPaletted(image.Rect(0, 0, 2, 2), short)
+		copy(m.Pix, pix)
+		b, err := e.Encode(m)
+		if err != nil {
+			t.Fatal(err)
+		}
+		p := filepath.Join(dir, fmt.Sprintf("short_palette_%d.png", i))
+		if err := os.WriteFile(p, b, 0o644); err != nil {
+			t.Fatal(err)
+		}
+		files = append(files, p)
 	}
 	out, err := exec.Command(bin, append([]string{"-q"}, files...)...).CombinedOutput()
 	if err != nil {
@@ -531,6 +550,71 @@ func TestEncoderBytesIndependentOfHistory(t *testing.T) {
 		}
 		if !bytes.Equal(fresh, again) {
 			t.Fatalf("%s: a used encoder gives other bytes than a fresh one", names[i])
+		}
+	}
+}
+
+// A mask's PLTE is its palette — MaskPalette(classes) has an entry per
+// class id, up to the largest, each Palette's — extended to the largest index a pixel uses when
+// that is beyond it (ISO/IEC 15948 §11.2.3: the palette must cover every
+// index used), black but for IgnoreID, which is white; the file stays
+// 8-bit indexed whatever the palette's length (the design's mask format).
+// Checked by reading the PLTE chunk's length and decoding with image/png.
+func TestMaskPalette(t *testing.T) {
+	classes := []Class{{ID: 0, Name: "background"}, {ID: 1, Name: "a", Color: [3]uint8{255, 0, 0}}, {ID: 2, Name: "b", Color: [3]uint8{0, 255, 0}}, {ID: 3, Name: "c", Color: [3]uint8{0, 0, 255}}, {ID: 4, Name: "d", Color: [3]uint8{9, 9, 9}}}
+	pal := MaskPalette(classes)
+	if len(pal) != 5 || !reflect.DeepEqual(pal, Palette(classes)[:5]) {
+		t.Fatalf("MaskPalette of classes 0-4 has %d entries: %v", len(pal), pal)
+	}
+	gap := MaskPalette([]Class{{ID: 0, Name: "background"}, {ID: 3, Name: "x", Color: [3]uint8{1, 2, 3}}})
+	for _, tc := range []struct {
+		name    string
+		pal     color.Palette
+		pix     []uint8
+		entries int
+	}{
+		{"background only", pal, []uint8{0, 0, 0, 0}, 5},
+		{"classes up to 2", pal, []uint8{0, 2, 1, 0}, 5},
+		{"class 4", pal, []uint8{4, 0, 0, 0}, 5},
+		{"ignore", pal, []uint8{0, 1, IgnoreID, 0}, 256},
+		{"beyond the palette", pal, []uint8{0, 1, 7, 0}, 8},
+		{"ids 0 and 3", gap, []uint8{0, 3, 3, 0}, 4},
+		{"2-entry palette", color.Palette{color.Black, color.White}, []uint8{0, 1, 1, 0}, 2},
+	} {
+		m := image.NewPaletted(image.Rect(0, 0, 2, 2), tc.pal)
+		copy(m.Pix, tc.pix)
+		b, err := NewEncoder().Encode(m)
+		if err != nil {
+			t.Fatal(err)
+		}
+		if _, _, depth, ctype := ihdr(t, b); depth != 8 || ctype != 3 {
+			t.Fatalf("%s: depth %d color type %d, want 8-bit indexed", tc.name, depth, ctype)
+		}
+		// PLTE follows IHDR (8 signature + 25 IHDR bytes).
+		if string(b[37:41]) != "PLTE" || int(binary.BigEndian.Uint32(b[33:])) != 3*tc.entries {
+			t.Fatalf("%s: PLTE %q of %d bytes, want %d entries", tc.name, b[37:41], binary.BigEndian.Uint32(b[33:]), tc.entries)
+		}
+		d, err := png.Decode(bytes.NewReader(b))
+		if err != nil {
+			t.Fatal(err)
+		}
+		pm := d.(*image.Paletted)
+		if !bytes.Equal(pm.Pix, m.Pix) {
+			t.Fatalf("%s: indices %v, want %v", tc.name, pm.Pix, m.Pix)
+		}
+		for _, v := range m.Pix {
+			want := color.Color(color.RGBA{0, 0, 0, 255})
+			switch {
+			case int(v) < len(tc.pal):
+				want = tc.pal[v]
+			case v == IgnoreID:
+				want = color.RGBA{255, 255, 255, 255}
+			}
+			r1, g1, b1, a1 := pm.Palette[v].RGBA()
+			r2, g2, b2, a2 := want.RGBA()
+			if [4]uint32{r1, g1, b1, a1} != [4]uint32{r2, g2, b2, a2} {
+				t.Fatalf("%s: index %d decodes to %v, want %v", tc.name, v, pm.Palette[v], want)
+			}
 		}
 	}
 }
