@@ -23,13 +23,17 @@ import (
 // in a sequence of POSIX tar archives of the pax format, PacksDir/
 // <split>-<NNNNN>.tar, each at most Layout.PackBytes (a pack holds whole
 // samples; a single sample larger than the bound gets a pack of its own).
-// A sample is four consecutive members, in this order: records/<id>.json
-// (its manifest line without the newline), then the record's image, mask
-// and instances paths. Every member is a regular file with mode 0644,
-// owner 0:0, no owner names, mtime 0 and one pax record
-// TRUESET.sha256=<hex of its bytes>. PacksDir/index.jsonl has one
-// IndexEntry per sample in manifest order. manifest.jsonl is the folder
-// layout's, byte for byte.
+// A pack starts with a pax global extended header whose one record is a
+// comment naming the layout and the pack (PackComment), so the archive is
+// pax whatever its members need. A sample is four consecutive members, in
+// this order: records/<id>.json (its manifest line without the newline),
+// then the record's image, mask and instances paths. Every member is a
+// regular file with mode 0644, owner 0:0, no owner names and mtime 0, in a
+// ustar header (a pax extended header only where a name needs one). The
+// record's SHA-256s check the PNG members; verify checks the record member
+// against manifest.jsonl. PacksDir/index.jsonl has one IndexEntry per
+// sample in manifest order. manifest.jsonl is the folder layout's, byte
+// for byte.
 
 // Layout names, the values of Layout.Kind and of the --layout flags.
 const (
@@ -51,8 +55,13 @@ const DefaultPackBytes = 256 << 20
 // MinPackBytes is the least bound a pack may be given.
 const MinPackBytes = 64 << 10
 
-// SHA256PAXKey is the pax record every member carries.
-const SHA256PAXKey = "TRUESET.sha256"
+// PackComment is the comment record of a pack's global header.
+func PackComment(name string) string { return "trueset packed layout: " + name }
+
+// globalHeader is the pax global extended header a pack starts with.
+func globalHeader(name string) *tar.Header {
+	return &tar.Header{Typeflag: tar.TypeXGlobalHeader, PAXRecords: map[string]string{"comment": PackComment(name)}}
+}
 
 // tarTrailer is the end-of-archive marker: two zero 512-byte blocks
 // (POSIX.1-2017, pax, "ustar Interchange Format").
@@ -215,29 +224,33 @@ var epoch = time.Unix(0, 0).UTC()
 
 // header is the fixed tar header of a member.
 func header(name string, b []byte) *tar.Header {
-	sum := sha256.Sum256(b)
-	return &tar.Header{
-		Typeflag:   tar.TypeReg,
-		Name:       name,
-		Size:       int64(len(b)),
-		Mode:       0o644,
-		ModTime:    epoch,
-		Format:     tar.FormatPAX,
-		PAXRecords: map[string]string{SHA256PAXKey: hex.EncodeToString(sum[:])},
-	}
+	return &tar.Header{Typeflag: tar.TypeReg, Name: name, Size: int64(len(b)), Mode: 0o644, ModTime: epoch, Format: tar.FormatPAX}
 }
 
-// memberBytes is the exact size a member takes in a pack: its pax header
-// (an extended header block plus its records, padded), its ustar header
-// and its data padded to 512 bytes. Computed by writing the headers to a
-// counter, so it is exactly what archive/tar writes.
+// memberBytes is the exact size a member takes in a pack: its ustar header
+// (and a pax extended header where its name needs one) and its data
+// padded to 512 bytes. Short names, the usual case, take one block;
+// others are measured by writing the headers to a counter, so it is
+// exactly what archive/tar writes.
 func memberBytes(name string, b []byte) (int64, error) {
+	if len(name) <= 100 && isASCII(name) {
+		return 512 + (int64(len(b))+511)/512*512, nil
+	}
 	c := &countOnly{}
 	tw := tar.NewWriter(c)
 	if err := tw.WriteHeader(header(name, b)); err != nil {
 		return 0, err
 	}
 	return c.n + (int64(len(b))+511)/512*512, nil
+}
+
+func isASCII(s string) bool {
+	for i := 0; i < len(s); i++ {
+		if s[i] == 0 || s[i] >= 0x80 {
+			return false
+		}
+	}
+	return true
 }
 
 type countOnly struct{ n int64 }
@@ -269,7 +282,7 @@ func (p *packer) appendSample(rec *Record, line []byte) error {
 		size += n
 	}
 	op := p.open[rec.Split]
-	if op != nil && op.cw.n > 0 && op.cw.n+size+tarTrailer > p.bound {
+	if op != nil && op.info.Samples > 0 && op.cw.n+size+tarTrailer > p.bound {
 		if err := p.close(op); err != nil {
 			return err
 		}
@@ -325,6 +338,14 @@ func (p *packer) start(split string) (*openPack, error) {
 	op := &openPack{info: PackInfo{Name: name, Split: split}, num: n, f: f}
 	op.cw = &countWriter{w: bufio.NewWriterSize(f, 1<<20), sum: sha256.New()}
 	op.tw = tar.NewWriter(op.cw)
+	err = op.tw.WriteHeader(globalHeader(name))
+	if err == nil {
+		err = op.tw.Flush() // its records' padding, so the first sample starts on a block
+	}
+	if err != nil {
+		f.Close()
+		return nil, fmt.Errorf("write %s: %w", filepath.Join(p.dir, name), unwrapPath(err))
+	}
 	p.open[split] = op
 	return op, nil
 }

@@ -12,6 +12,7 @@ import (
 	"os"
 	"path/filepath"
 	"sort"
+	"strings"
 
 	"github.com/trueset/trueset/internal/safefile"
 )
@@ -20,16 +21,16 @@ import (
 type packMember struct {
 	id, name  string
 	off, size int64
-	sum       string // the record line's SHA-256 for records/<id>.json; "" = the pax record's own
+	sum       string // the manifest line's SHA-256 for records/<id>.json, the record's own for the PNGs
 }
 
 // checkPacks does the packed layout's checks (KindPack): the index is the
 // one dataset.json records and lists the manifest's samples in order, each
 // in a pack of its split; every pack is the file dataset.json describes
 // (bytes, SHA-256, samples), a pax tar archive holding exactly the members
-// the index gives, in order, at the index's offsets, each with the fixed
-// header fields and a TRUESET.sha256 record equal to its bytes' SHA-256,
-// the record member equal to its manifest line, then the end-of-archive
+// the index gives, in order, after the pax global header naming the pack,
+// at the index's offsets, each with the fixed header fields, the record
+// member equal to its manifest line, then the end-of-archive
 // blocks and nothing after them; packs/ holds nothing else. The members'
 // contents are checked against the records by the per-record checks,
 // which read them through the index.
@@ -74,8 +75,9 @@ func (v *verifier) checkPacks() {
 			return
 		}
 		var r struct {
-			ID    string `json:"id"`
-			Split string `json:"split"`
+			ID     string            `json:"id"`
+			Split  string            `json:"split"`
+			SHA256 map[string]string `json:"sha256"`
 		}
 		if json.Unmarshal(line, &r) != nil {
 			return // the record checks report it
@@ -106,6 +108,7 @@ func (v *verifier) checkPacks() {
 		sum := sha256.Sum256(line)
 		for i, m := range e.Files {
 			pm := packMember{id: e.ID, name: m.Name, off: m.Off, size: m.Size}
+			pm.sum = r.SHA256[[4]string{"", "image", "mask", "instances"}[i]]
 			if i == 0 {
 				pm.sum = hex.EncodeToString(sum[:])
 			}
@@ -173,6 +176,18 @@ func (v *verifier) checkPack(pi PackInfo, want []packMember, bad func(file, form
 	h := sha256.New()
 	cr := &countReader{r: bufio.NewReaderSize(io.TeeReader(io.LimitReader(f, st.Size()), h), 64<<10)}
 	tr := tar.NewReader(cr)
+	// The global header first, naming the pack.
+	g, err := tr.Next()
+	if err != nil || g.Typeflag != tar.TypeXGlobalHeader || g.PAXRecords["comment"] != PackComment(pi.Name) {
+		got := "no header"
+		if err != nil {
+			got = err.Error()
+		} else if g != nil {
+			got = fmt.Sprintf("a header of type %q (%s) with comment %q", g.Typeflag, g.Name, g.PAXRecords["comment"])
+		}
+		bad(pi.Name, "%s: does not start with the pax global header whose comment is %q: %s", pi.Name, PackComment(pi.Name), got)
+		return
+	}
 	k := 0
 	for {
 		hdr, err := tr.Next()
@@ -194,8 +209,8 @@ func (v *verifier) checkPack(pi PackInfo, want []packMember, bad func(file, form
 		case hdr.Name != m.name:
 			bad(pi.Name, "%s: member %d is %s, the index says %s", pi.Name, k, hdr.Name, m.name)
 			return
-		case hdr.Typeflag != tar.TypeReg || hdr.Format != tar.FormatPAX:
-			bad(pi.Name, "%s: %s is not a regular file in a pax header", pi.Name, hdr.Name)
+		case hdr.Typeflag != tar.TypeReg:
+			bad(pi.Name, "%s: %s is not a regular file (type %q)", pi.Name, hdr.Name, hdr.Typeflag)
 		case hdr.Mode != 0o644 || hdr.Uid != 0 || hdr.Gid != 0 || hdr.Uname != "" || hdr.Gname != "" || !hdr.ModTime.Equal(epoch):
 			bad(pi.Name, "%s: %s has mode %o, owner %d:%d (%q:%q), mtime %v; the packed layout fixes 644, 0:0, no names, 1970-01-01", pi.Name, hdr.Name, hdr.Mode, hdr.Uid, hdr.Gid, hdr.Uname, hdr.Gname, hdr.ModTime.UTC())
 		case at != m.off || hdr.Size != m.size:
@@ -208,11 +223,12 @@ func (v *verifier) checkPack(pi PackInfo, want []packMember, bad func(file, form
 			return
 		}
 		got := hex.EncodeToString(ms.Sum(nil))
-		if hdr.PAXRecords[SHA256PAXKey] != got {
-			bad(pi.Name, "%s: %s: its bytes' SHA-256 is %s; its %s record says %q", pi.Name, hdr.Name, got, SHA256PAXKey, hdr.PAXRecords[SHA256PAXKey])
-		}
-		if m.sum != "" && m.sum != got {
-			bad(pi.Name, "%s: %s is not record %s's manifest line", pi.Name, hdr.Name, m.id)
+		if m.sum != got {
+			if strings.HasPrefix(hdr.Name, RecordsDir+"/") {
+				bad(pi.Name, "%s: %s is not record %s's manifest line", pi.Name, hdr.Name, m.id)
+			} else {
+				bad(pi.Name, "%s: %s: SHA-256 %s, record %s says %q", pi.Name, hdr.Name, got, m.id, m.sum)
+			}
 		}
 	}
 	if k < len(want) {

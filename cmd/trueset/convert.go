@@ -33,10 +33,9 @@ against its record's SHA-256 and copied byte for byte, and manifest.jsonl is
 kept as it is, so a folder converted to packed and back is the same folder,
 file for file (dataset.json included), and a packed set converted to folder
 and back with the same --pack-size is the same packs.`,
-		Example: `  # pack a set for streaming, in archives of at most 64 MiB
+		Example: `  # pack a set for streaming, in archives of at most 64 MiB, and back
+  # (demo-again holds the same files as demo)
   trueset convert --in demo --out demo-packed --layout packed --pack-size 64MiB
-
-  # and back: the same files as demo
   trueset convert --in demo-packed --out demo-again --layout folder`,
 		Args: cobra.NoArgs,
 		RunE: func(cmd *cobra.Command, args []string) error { return runConvert(o, stdout, stderr) },

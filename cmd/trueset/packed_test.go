@@ -131,7 +131,7 @@ func TestPackedVerifyRefuses(t *testing.T) {
 			b := mustRead(t, p)
 			b[imageAt(dir)+40] ^= 0xff
 			os.WriteFile(p, b, 0o644)
-		}, []string{"pack", first, "TRUESET.sha256"}},
+		}, []string{"[pack]", first + ": images/", "SHA-256", "[sha256]"}},
 		{"truncated-pack", func(dir string) {
 			p := filepath.Join(dir, first)
 			os.Truncate(p, imageAt(dir)+10)
@@ -147,7 +147,11 @@ func TestPackedVerifyRefuses(t *testing.T) {
 		{"index-offset-moved", func(dir string) {
 			p := filepath.Join(dir, "packs", "index.jsonl")
 			b := mustRead(t, p)
-			b = bytes.Replace(b, []byte(`"at":[0,`), []byte(`"at":[1,`), 1)
+			n := len(b)
+			b = bytes.Replace(b, []byte(`"at":[1024,`), []byte(`"at":[1025,`), 1)
+			if len(b) != n+0 || !bytes.Contains(b, []byte(`"at":[1025,`)) {
+				t.Fatal("no sample starts at 1024 (after the pack's global header)")
+			}
 			os.WriteFile(p, b, 0o644)
 		}, []string{"pack", "packs/index.jsonl"}},
 		{"missing-pack", func(dir string) {
