@@ -177,6 +177,12 @@ func gaussKernel(sigma float64) []float64 {
 // the edge pixel (replicate). Sums are taken in float64. Not clamped (a
 // convex combination of values stays within their range anyway). sigma ≤ 0,
 // NaN or +Inf leaves the image unchanged.
+//
+// Each sum runs over i = −r..r in order, as gaussianBlurRef
+// (photometric_fast_test.go) computes it, so the values are the same bit for
+// bit; the taps of pixels at least r from the edge are read without clamping
+// their index, and both passes run along rows, tap by tap, so that the sums
+// of neighbouring values proceed side by side.
 func GaussianBlur(m *Image, sigma float64) {
 	if !(sigma > 0) || math.IsInf(sigma, 1) || m.W == 0 || m.H == 0 {
 		return
@@ -185,31 +191,55 @@ func GaussianBlur(m *Image, sigma float64) {
 	r := (len(w) - 1) / 2
 	W, H, C := m.W, m.H, m.C
 	tmp := make([]float64, len(m.Pix))
-	// Horizontal pass: m.Pix → tmp.
+	// Horizontal pass: m.Pix → tmp. Pixels within r of the left or right
+	// edge clamp their taps; the others, values k of the row from r·C on,
+	// take tap i from k + (i−r)·C: tap by tap over the whole run, each
+	// value's sum still in the order i = −r..r.
+	n := W * C
 	for y := 0; y < H; y++ {
-		row := y * W
+		src := m.Pix[y*n : (y+1)*n]
+		dst := tmp[y*n : (y+1)*n]
 		for x := 0; x < W; x++ {
+			if x == r && x+r < W {
+				x = W - r - 1 // the run
+				continue
+			}
 			for c := 0; c < C; c++ {
 				s := 0.0
 				for i := -r; i <= r; i++ {
 					xx := min(max(x+i, 0), W-1)
-					s += w[i+r] * float64(m.Pix[(row+xx)*C+c])
+					s += w[i+r] * float64(src[xx*C+c])
 				}
-				tmp[(row+x)*C+c] = s
+				dst[x*C+c] = s
+			}
+		}
+		if lo, hi := r*C, (W-r)*C; lo < hi {
+			acc := dst[lo:hi]
+			clear(acc)
+			for i, wi := range w {
+				tap := src[i*C : i*C+len(acc)]
+				for k, v := range tap {
+					acc[k] += wi * float64(v)
+				}
 			}
 		}
 	}
-	// Vertical pass: tmp → m.Pix.
+	// Vertical pass: tmp → m.Pix, a row at a time; sum[k] accumulates the
+	// taps of value k of the row in the order i = −r..r.
+	sum := make([]float64, n)
 	for y := 0; y < H; y++ {
-		for x := 0; x < W; x++ {
-			for c := 0; c < C; c++ {
-				s := 0.0
-				for i := -r; i <= r; i++ {
-					yy := min(max(y+i, 0), H-1)
-					s += w[i+r] * tmp[(yy*W+x)*C+c]
-				}
-				m.Pix[(y*W+x)*C+c] = float32(s)
+		clear(sum)
+		for i := -r; i <= r; i++ {
+			yy := min(max(y+i, 0), H-1)
+			wi := w[i+r]
+			row := tmp[yy*n : (yy+1)*n]
+			for k, v := range row {
+				sum[k] += wi * v
 			}
+		}
+		out := m.Pix[y*n : (y+1)*n]
+		for k, s := range sum {
+			out[k] = float32(s)
 		}
 	}
 }
