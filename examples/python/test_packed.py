@@ -63,7 +63,6 @@ except ImportError:
 passed = 0
 failed = 0
 KEYS = ("image", "mask", "instances")
-SHA_KEY = "TRUESET.sha256"
 
 
 def check(name, fn):
@@ -80,10 +79,14 @@ def check(name, fn):
 
 # ---- a pack writer, from the layout's description -------------------------
 
-def write_pack(path, members):
-    """A pax tar of members, each (name, bytes, pax records or None for the
-    default TRUESET.sha256) or a ready tarfile.TarInfo with its bytes."""
-    with tarfile.open(path, "w", format=tarfile.PAX_FORMAT) as tf:
+def write_pack(path, members, comment=None):
+    """A pax tar of members, each (name, bytes, pax records or None for
+    none) or a ready tarfile.TarInfo with its bytes, after a pax global
+    header with the layout's comment (comment=False: none)."""
+    if comment is None:
+        comment = "trueset packed layout: packs/" + os.path.basename(path)
+    glob = {"comment": comment} if comment else None
+    with tarfile.open(path, "w", format=tarfile.PAX_FORMAT, pax_headers=glob) as tf:
         for m in members:
             if isinstance(m[0], tarfile.TarInfo):
                 tf.addfile(m[0], io.BytesIO(m[1]) if m[1] is not None else None)
@@ -91,7 +94,7 @@ def write_pack(path, members):
             name, data, pax = m
             ti = tarfile.TarInfo(name)
             ti.size, ti.mode, ti.mtime, ti.uid, ti.gid, ti.uname, ti.gname = len(data), 0o644, 0, 0, 0, "", ""
-            ti.pax_headers = {SHA_KEY: hashlib.sha256(data).hexdigest()} if pax is None else pax
+            ti.pax_headers = pax or {}
             tf.addfile(ti, io.BytesIO(data))
 
 
@@ -111,7 +114,7 @@ def sample_members(folder, line, rec):
 
 def write_packed(folder, out, pack_bytes):
     """A packed twin of folder: packs of whole samples of at most
-    pack_bytes (estimated per member: two headers, the pax block, the data),
+    pack_bytes (estimated per member: its header and its data),
     dataset.json with "layout" (no index.jsonl: the reader does not use it)."""
     with open(os.path.join(folder, "dataset.json"), encoding="utf-8") as f:
         info = json.load(f)
@@ -125,7 +128,7 @@ def write_packed(folder, out, pack_bytes):
             if rec["split"] != split:
                 continue
             ms = sample_members(folder, line, rec)
-            n = sum(3 * 512 + -(-len(d) // 512) * 512 for _, d, _ in ms)
+            n = sum(512 + -(-len(d) // 512) * 512 for _, d, _ in ms)
             if not groups or size + n > pack_bytes:
                 groups.append([])
                 size = 0
@@ -389,10 +392,20 @@ def check_crafted(folder, tmp):
           refused("leaves", [(a[0][0], bad, None)] + a[1:], a[0][0], "leaves the dataset folder"))
     check("crafted: an image named otherwise than its record says is refused",
           refused("renamed", [a[0], ("images/other.png", a[1][1], None)] + a[2:], "images/other.png", a[1][0]))
-    check("crafted: a member without its pax SHA-256 is refused",
-          refused("no-sha", a[:2] + [(a[2][0], a[2][1], {})] + a[3:], a[2][0], SHA_KEY))
-    check("crafted: a wrong pax SHA-256 is refused",
-          refused("bad-sha", a[:2] + [(a[2][0], a[2][1], {SHA_KEY: "0" * 64})] + a[3:], a[2][0], "SHA-256"))
+    flipped = bytearray(a[2][1])
+    flipped[len(flipped) // 2] ^= 0xFF
+    check("crafted: a mask whose bytes are not the record's SHA-256 is refused",
+          refused("bad-sha", a[:2] + [(a[2][0], bytes(flipped), None)] + a[3:], a[2][0], "SHA-256"))
+    def no_global():
+        p = os.path.join(tmp, "crafted-no-global.tar")
+        write_pack(p, a, comment=False)
+        try:
+            list(tl.iter_packed(p))
+        except ValueError as e:
+            assert "global header" in str(e), str(e)
+            return
+        raise AssertionError("a pack without the layout's global header was read")
+    check("crafted: a pack without the layout's pax global header is refused", no_global)
     d = tarfile.TarInfo("images/dir")
     d.type = tarfile.DIRTYPE
     check("crafted: a directory member is refused",
@@ -422,8 +435,10 @@ def check_flat_memory(tmp):
             rec = {"id": sid, "split": "train", "group": sid, "width": 1, "height": 1, "objects": [],
                    "targets": {}, "image": "images/%s.png" % sid, "mask": "masks/%s.png" % sid,
                    "instances": "instances/%s.png" % sid}
+            files = {k: (k + sid).encode() * 20 for k in KEYS}
+            rec["sha256"] = {k: hashlib.sha256(b).hexdigest() for k, b in files.items()}
             members.append(("records/%s.json" % sid, json.dumps(rec).encode(), None))
-            members += [(rec[k], (k + sid).encode() * 20, None) for k in KEYS]
+            members += [(rec[k], files[k], None) for k in KEYS]
         p = os.path.join(tmp, "many.tar")
         write_pack(p, members)
         del members
@@ -526,8 +541,8 @@ def check_trueset_packed(packed, folder):
             for ti, b in ms:
                 got = (ti.type, ti.mode, ti.uid, ti.gid, ti.uname, ti.gname, ti.mtime)
                 assert got == (tarfile.REGTYPE, 0o644, 0, 0, "", "", 0), "%s %s: header %s" % (p["name"], ti.name, got)
-                assert ti.pax_headers.get(SHA_KEY) == hashlib.sha256(b).hexdigest(), \
-                    "%s %s: pax %s" % (p["name"], ti.name, ti.pax_headers)
+                assert ti.pax_headers == {"comment": "trueset packed layout: " + p["name"]}, \
+                    "%s %s: pax %s (want only the pack's global comment)" % (p["name"], ti.name, ti.pax_headers)
     check("trueset packed: pack names, sizes, SHA-256 and member headers", packs)
 
     def index():

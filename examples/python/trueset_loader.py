@@ -350,12 +350,14 @@ def dump_batch(path, ids, images, masks=None, compress=False, **targets):
     (np.savez_compressed if compress else np.savez)(path, **out)
 
 
-# The packed layout: each split as tar packs (POSIX pax), each sample's four
-# members consecutive and in index order: records/ID.json (its manifest line),
-# then its image, mask and instances PNGs under the record's own paths. Every
-# member carries the pax record TRUESET.sha256, the SHA-256 of its bytes.
+# The packed layout: each split as tar packs (POSIX pax), each starting with a
+# pax global header whose comment names it ("trueset packed layout: packs/
+# SPLIT-NNNNN.tar"), each sample's four members consecutive and in index
+# order: records/ID.json (its manifest line), then its image, mask and
+# instances PNGs under the record's own paths, each checked against the
+# record's sha256.
 
-SHA256_PAX_KEY = "TRUESET.sha256"
+PACK_COMMENT = "trueset packed layout: "
 _FILE_KEYS = ("image", "mask", "instances")
 _BLOCK = 512
 
@@ -400,20 +402,15 @@ class _Tail(object):
 
 
 def _member_bytes(tf, ti, where):
-    """The member's bytes, checked against its pax record TRUESET.sha256."""
+    """The member's bytes (a regular file's, read in full)."""
     if not ti.isreg():
         raise ValueError("%s: member %s is not a regular file" % (where, ti.name))
-    want = ti.pax_headers.get(SHA256_PAX_KEY)
-    if want is None:
-        raise ValueError("%s: member %s has no pax record %s" % (where, ti.name, SHA256_PAX_KEY))
     try:
         data = tf.extractfile(ti).read()
     except (tarfile.TarError, EOFError, OSError) as e:
         raise ValueError("%s: member %s: %s (the pack is truncated or damaged)" % (where, ti.name, e))
-    got = hashlib.sha256(data).hexdigest()
-    if got != want:
-        raise ValueError("%s: member %s has SHA-256 %s, its pax record %s says %s (the pack is damaged)"
-                         % (where, ti.name, got, SHA256_PAX_KEY, want))
+    if len(data) != ti.size:
+        raise ValueError("%s: member %s: %d of its %d bytes (the pack is truncated)" % (where, ti.name, len(data), ti.size))
     return data
 
 
@@ -475,6 +472,9 @@ def _iter_pack(f, where, split, decode, info, want=None, check_pack_sha256=False
         if ti is None:
             break
         tf.members = []  # tarfile keeps every header read; a pack's can be many
+        if last is None and not str(tf.pax_headers.get("comment", "")).startswith(PACK_COMMENT):
+            raise ValueError("%s: no pax global header with the comment %r...: not a pack of trueset's packed layout"
+                             % (where, PACK_COMMENT))
         data = _member_bytes(tf, ti, where)
         last, end = ti.name, ti.offset_data + -(-ti.size // _BLOCK) * _BLOCK
         if rec is None:
@@ -489,9 +489,10 @@ def _iter_pack(f, where, split, decode, info, want=None, check_pack_sha256=False
                              "records/ID.json, image, mask, instances, in that order)"
                              % (where, ti.name, rec["id"], key, rec[key]))
         sha = (rec.get("sha256") or {}).get(key)
-        if sha is not None and sha != ti.pax_headers[SHA256_PAX_KEY]:
-            raise ValueError("%s: member %s has SHA-256 %s, record %s says %s"
-                             % (where, ti.name, ti.pax_headers[SHA256_PAX_KEY], rec["id"], sha))
+        got = hashlib.sha256(data).hexdigest()
+        if got != sha:
+            raise ValueError("%s: member %s has SHA-256 %s, record %s says %s (the pack is damaged)"
+                             % (where, ti.name, got, rec["id"], sha))
         files[key] = data
         if len(files) < len(_FILE_KEYS):
             continue
