@@ -1,6 +1,9 @@
 package manifest
 
-import "image"
+import (
+	"encoding/binary"
+	"image"
+)
 
 // InstanceStats is what an instance mask says about one instance id.
 type InstanceStats struct {
@@ -23,6 +26,12 @@ func MeasureInstances(m *image.Gray16) map[int]*InstanceStats {
 		row := m.Pix[(y-b.Min.Y)*m.Stride:]
 		for x := b.Min.X; x < b.Max.X; x++ {
 			i := 2 * (x - b.Min.X)
+			// Most of a mask is background: skip it four pixels (8 zero
+			// bytes) at a time.
+			if x+4 <= b.Max.X && binary.LittleEndian.Uint64(row[i:]) == 0 {
+				x += 3
+				continue
+			}
 			id := int(row[i])<<8 | int(row[i+1])
 			if id == 0 {
 				continue

@@ -179,7 +179,16 @@ func (e *Encoder) encodeFast(m image.Image, choice *PNGChoice) (b []byte, ok boo
 func (s *fastState) plte(p color.Palette, h int, row rowFunc) []byte {
 	n := len(p)
 	for y := 0; y < h && n < 256; y++ {
-		for _, v := range row(y, nil) {
+		r := row(y, nil)
+		for ; len(r) >= 8; r = r[8:] {
+			if binary.LittleEndian.Uint64(r) == 0 {
+				continue // background, eight pixels at a time
+			}
+			for _, v := range r[:8] {
+				n = max(n, int(v)+1)
+			}
+		}
+		for _, v := range r {
 			n = max(n, int(v)+1)
 		}
 	}

@@ -581,7 +581,9 @@ func TestMaskPalette(t *testing.T) {
 		{"ids 0 and 3", gap, []uint8{0, 3, 3, 0}, 4},
 		{"2-entry palette", color.Palette{color.Black, color.White}, []uint8{0, 1, 1, 0}, 2},
 	} {
-		m := image.NewPaletted(image.Rect(0, 0, 2, 2), tc.pal)
+		tc.pix = append(tc.pix, make([]uint8, 4*37)...) // 4×38: rows longer than 8 bytes
+		tc.pix[len(tc.pix)-5], tc.pix[len(tc.pix)-13] = tc.pix[1], tc.pix[2]
+		m := image.NewPaletted(image.Rect(0, 0, 38, 4), tc.pal)
 		copy(m.Pix, tc.pix)
 		b, err := NewEncoder().Encode(m)
 		if err != nil {
