@@ -75,6 +75,7 @@ func (p *Plan) CopyWith(in *Input, seed uint64, src, k int, defs []manifest.Targ
 	type drawn struct {
 		d    *Drawn
 		inst *image.Gray16
+		mask *image.Paletted // warped with inst when only one draw can be taken, else nil
 		frac map[int]float64
 		st   map[int]*manifest.InstanceStats // inst's
 		lost bool                            // some object lost, cut or dropped
@@ -87,7 +88,14 @@ func (p *Plan) CopyWith(in *Input, seed uint64, src, k int, defs []manifest.Targ
 			return nil, fmt.Errorf("%s copy %d: %w", in.Record.ID, k, err)
 		}
 		d.Redraws = try
-		inst := WarpInstances(in.Inst, d.M, d.W, d.H)
+		var inst *image.Gray16
+		var mask *image.Paletted
+		if tries == 1 {
+			// This draw is the copy: warp the class mask with it.
+			mask, inst = WarpMasks(in.Mask, in.Inst, d.M, d.W, d.H, p.fillID())
+		} else {
+			inst = WarpInstances(in.Inst, d.M, d.W, d.H)
+		}
 		stats := manifest.MeasureInstances(inst)
 		frac := keptFractions(in.Record.Objects, stats, d.M)
 		fates := frameFates(in.Record.Objects, in.Inst, stats, d.M, d.W, d.H)
@@ -114,7 +122,7 @@ func (p *Plan) CopyWith(in *Input, seed uint64, src, k int, defs []manifest.Targ
 			why = hard
 			continue
 		}
-		best = &drawn{d, inst, frac, stats, lost}
+		best = &drawn{d, inst, mask, frac, stats, lost}
 		if !(cuts.Policy == "redraw" && short) {
 			chosen = best
 			break
@@ -129,7 +137,7 @@ func (p *Plan) CopyWith(in *Input, seed uint64, src, k int, defs []manifest.Targ
 	// The chosen draw's warped instance mask, its measures and the kept
 	// fractions are what render would compute again from the same matrix;
 	// it takes them over.
-	out, err := p.render(in, chosen.d, defs, chosen.inst, chosen.st, chosen.frac)
+	out, err := p.render(in, chosen.d, defs, chosen.inst, chosen.mask, chosen.st, chosen.frac)
 	if err != nil {
 		return nil, err
 	}
@@ -276,7 +284,7 @@ func (p *Plan) Rebuild(in *Input, lin *manifest.Lineage, w, h int, defs []manife
 	if lin.Cuts != nil {
 		d.Redraws = lin.Cuts.Redraws
 	}
-	return p.render(in, d, defs, nil, nil, nil)
+	return p.render(in, d, defs, nil, nil, nil, nil)
 }
 
 // cloneOps copies lineage steps so that render's notes (skipped_gray) do
@@ -296,10 +304,10 @@ func cloneOps(ops []manifest.LineageOp) []manifest.LineageOp {
 // (under redraw, only a copy that ran out of tries still has such objects);
 // then the pixel steps run in order. inst, stats and frac, when inst is not
 // nil, are the instance mask already warped by d.M, its
-// manifest.MeasureInstances and its keptFractions (render owns inst from
-// then on). The labels are measured from inst as the pixel steps leave it:
+// manifest.MeasureInstances and its keptFractions, and mask, when not nil,
+// the class mask warped by d.M (render owns them from then on). The labels are measured from inst as the pixel steps leave it:
 // stats serve as they are unless an object was erased or a cutout ran.
-func (p *Plan) render(in *Input, d *Drawn, defs []manifest.TargetDef, inst *image.Gray16, stats map[int]*manifest.InstanceStats, frac map[int]float64) (*Output, error) {
+func (p *Plan) render(in *Input, d *Drawn, defs []manifest.TargetDef, inst *image.Gray16, mask *image.Paletted, stats map[int]*manifest.InstanceStats, frac map[int]float64) (*Output, error) {
 	if inst == nil {
 		inst = WarpInstances(in.Inst, d.M, d.W, d.H)
 		stats = manifest.MeasureInstances(inst)
@@ -307,11 +315,9 @@ func (p *Plan) render(in *Input, d *Drawn, defs []manifest.TargetDef, inst *imag
 	}
 	g := &p.Geometry
 	min := *g.Cuts.LeastShown
-	fillID := uint8(0)
-	if g.Outside.Classes == "ignore" {
-		fillID = manifest.IgnoreID
+	if mask == nil {
+		mask = WarpMask(in.Mask, d.M, d.W, d.H, p.fillID())
 	}
-	mask := WarpMask(in.Mask, d.M, d.W, d.H, fillID)
 	fill := Fill{Mode: g.Outside.Image}
 	if t := g.Outside.Tone; t.RGB != nil {
 		for c := 0; c < 3; c++ {
@@ -382,6 +388,14 @@ func (p *Plan) render(in *Input, d *Drawn, defs []manifest.TargetDef, inst *imag
 		rec.Lineage.Cuts = &manifest.LineageCuts{Redraws: d.Redraws, Dropped: dropped}
 	}
 	return out, nil
+}
+
+// fillID is the class id of mask pixels whose preimage leaves the source.
+func (p *Plan) fillID() uint8 {
+	if p.Geometry.Outside.Classes == "ignore" {
+		return manifest.IgnoreID
+	}
+	return 0
 }
 
 // keptFractions returns, for each object of the source, the share of its

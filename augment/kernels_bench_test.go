@@ -122,6 +122,11 @@ func BenchmarkKernelParts(b *testing.B) {
 				augment.WarpInstances(in.Inst, d.M, d.W, d.H)
 			}
 		})
+		b.Run(fmt.Sprintf("%dx%d/warp-masks", n, n), func(b *testing.B) {
+			for i := 0; i < b.N; i++ {
+				augment.WarpMasks(in.Mask, in.Inst, d.M, d.W, d.H, 0)
+			}
+		})
 		quarter, qw, qh := augment.RotateCanvas(float64(n), float64(n), 90, true)
 		quarter = augment.FlipH(float64(n)).Then(quarter)
 		b.Run(fmt.Sprintf("%dx%d/warp-image-quarter-turn", n, n), func(b *testing.B) {

@@ -239,6 +239,24 @@ func WarpInstances(src *image.Gray16, m Mat, ow, oh int) *image.Gray16 {
 	return dst
 }
 
+// WarpMasks is WarpMask(mask, m, ow, oh, fillID) and WarpInstances(inst,
+// m, ow, oh) at once: the same pixels, with each preimage computed once for
+// both planes where they have the same size.
+func WarpMasks(mask *image.Paletted, inst *image.Gray16, m Mat, ow, oh int, fillID uint8) (*image.Paletted, *image.Gray16) {
+	inv, ok := m.Invert()
+	if !ok || !fastWarpOK(inv, ow, oh) || mask.Rect != inst.Rect ||
+		!fastPlaneOK(mask.Rect, mask.Stride, 1, len(mask.Pix)) || !fastPlaneOK(inst.Rect, inst.Stride, 2, len(inst.Pix)) {
+		return WarpMask(mask, m, ow, oh, fillID), WarpInstances(inst, m, ow, oh)
+	}
+	if _, q := quarterOf(inv); q {
+		return WarpMask(mask, m, ow, oh, fillID), WarpInstances(inst, m, ow, oh)
+	}
+	dm := image.NewPaletted(image.Rect(0, 0, ow, oh), mask.Palette)
+	di := image.NewGray16(image.Rect(0, 0, ow, oh))
+	nearestPair(dm.Pix, dm.Stride, di.Pix, di.Stride, ow, oh, mask.Pix, mask.Stride, inst.Pix, inst.Stride, mask.Rect.Dx(), mask.Rect.Dy(), inv, fillID)
+	return dm, di
+}
+
 // warpInstancesRef is the reference instance warp: nearest for every pixel.
 func warpInstancesRef(src *image.Gray16, m Mat, ow, oh int) *image.Gray16 {
 	dst := image.NewGray16(image.Rect(0, 0, ow, oh))

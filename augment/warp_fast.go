@@ -410,6 +410,55 @@ func nearest2(out []byte, ru, rv []float64, tu, tv, c2, c5 float64, sp []byte, s
 	}
 }
 
+// nearestPair is nearestPlane for a class mask (1 byte a pixel, fill
+// fillID) and an instance mask (2 bytes, fill 0) of the same w×h size at
+// once: one preimage per pixel, read in both.
+func nearestPair(dm []byte, dmStride int, di []byte, diStride int, ow, oh int, sm []byte, smStride int, si []byte, siStride int, w, h int, inv Mat, fillID uint8) {
+	au, av := columnTerms(inv, ow)
+	runs := insideRuns(au, av, inv, oh, 0, 0, float64(w), float64(h))
+	for y := 0; y < oh; y++ {
+		rm := dm[y*dmStride : y*dmStride+ow]
+		ri := di[y*diStride : y*diStride+2*ow]
+		for x := 0; x < runs[2*y]; x++ {
+			rm[x], ri[2*x], ri[2*x+1] = fillID, 0, 0
+		}
+		for x := runs[2*y+1]; x < ow; x++ {
+			rm[x], ri[2*x], ri[2*x+1] = fillID, 0, 0
+		}
+	}
+	c2, c5 := inv[2], inv[5]
+	for ty := 0; ty < oh; ty += warpTile {
+		for tx := 0; tx < ow; tx += warpTile {
+			for y := ty; y < min(ty+warpTile, oh); y++ {
+				x0, x1 := tileRun(runs, y, tx)
+				if x0 >= x1 {
+					continue
+				}
+				yc := float64(y) + 0.5
+				tu, tv := float64(inv[1]*yc), float64(inv[4]*yc)
+				nearestBoth(dm[y*dmStride+x0:y*dmStride+x1], di[y*diStride+2*x0:y*diStride+2*x1], au[x0:x1], av[x0:x1], tu, tv, c2, c5, sm, smStride, si, siStride)
+			}
+		}
+	}
+}
+
+// nearestBoth is nearest1 and nearest2 in one loop.
+func nearestBoth(om, oi []byte, ru, rv []float64, tu, tv, c2, c5 float64, sm []byte, smStride int, si []byte, siStride int) {
+	rv = rv[:len(ru)]
+	om = om[:len(ru)]
+	oi = oi[:2*len(ru)]
+	for k := range ru {
+		u := ru[k] + tu + c2
+		v := rv[k] + tv + c5
+		i, j := int(u), int(v)
+		om[k] = sm[j*smStride+i]
+		s := j*siStride + 2*i
+		p := si[s : s+2 : s+2]
+		o := oi[2*k : 2*k+2 : 2*k+2]
+		o[0], o[1] = p[0], p[1]
+	}
+}
+
 // quarterPlane is nearestPlane for an exact flip or quarter turn: the
 // reference's preimages are then pixel centers i + ½, whose floor is i.
 // Blocks of warpTile rows and columns, as warpImageQuarter.

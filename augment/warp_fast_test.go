@@ -263,3 +263,33 @@ func TestWarpFastTiles(t *testing.T) {
 		}
 	}
 }
+
+// TestWarpMasksMatchesReference holds WarpMasks (both masks in one pass) to
+// warpMaskRef and warpInstancesRef over the maps and sizes of the tests
+// above, both fill ids, and a pair of masks of different sizes (warped one
+// by one).
+func TestWarpMasksMatchesReference(t *testing.T) {
+	rng := rand.New(rand.NewPCG(8, 5))
+	sizes := [][4]int{{1, 1, 3, 2}, {7, 5, 7, 5}, {5, 7, 9, 6}, {64, 64, 64, 64}, {150, 137, 160, 171}}
+	for _, sz := range sizes {
+		w, h := sz[0], sz[1]
+		mask, inst := fastTestMasks(w, h, rng)
+		_, other := fastTestMasks(w+1, h, rng)
+		maps, _ := fastTestMaps(w, h, rng)
+		for mi, m := range maps {
+			for _, o := range [][2]int{{sz[2], sz[3]}, {h, w}} {
+				for _, fid := range []uint8{0, 255} {
+					gm, gi := WarpMasks(mask, inst, m, o[0], o[1], fid)
+					wm, wi := warpMaskRef(mask, m, o[0], o[1], fid), warpInstancesRef(inst, m, o[0], o[1])
+					if !bytes.Equal(gm.Pix, wm.Pix) || gm.Rect != wm.Rect || !bytes.Equal(gi.Pix, wi.Pix) || gi.Rect != wi.Rect {
+						t.Errorf("%d×%d→%d×%d map %d %v fill %d: masks differ from the references", w, h, o[0], o[1], mi, m, fid)
+					}
+				}
+				gm, gi := WarpMasks(mask, other, m, o[0], o[1], 3)
+				if !bytes.Equal(gm.Pix, warpMaskRef(mask, m, o[0], o[1], 3).Pix) || !bytes.Equal(gi.Pix, warpInstancesRef(other, m, o[0], o[1]).Pix) {
+					t.Errorf("%d×%d (instances %d wide)→%d×%d map %d %v: masks differ from the references", w, h, w+1, o[0], o[1], mi, m)
+				}
+			}
+		}
+	}
+}
