@@ -199,7 +199,8 @@ func Run(ctx context.Context, o RunOptions) (Summary, error) {
 	if err != nil {
 		return Summary{}, err
 	}
-	co := manifest.CreateOptions{Force: o.Force, FS: o.FS, Marker: marker, Layout: packedLayout(o), PackBytes: packBytes(o)}
+	co := manifest.CreateOptions{Force: o.Force, FS: o.FS, Marker: marker}
+	co.Layout, co.PackBytes = manifest.RunLayout(o.Layout, o.PackBytes)
 	var w *manifest.Writer
 	startJob, resumed := 0, 0
 	if o.Resume {
@@ -333,6 +334,7 @@ func (in *input) marker(o RunOptions) ([]byte, error) {
 		}
 	}
 	plan := sha256.Sum256(o.Plan.JSON())
+	layout, packBytes := manifest.RunLayout(o.Layout, o.PackBytes)
 	return json.Marshal(struct {
 		Run         string   `json:"run"`
 		ToolVersion string   `json:"tool_version"`
@@ -346,7 +348,7 @@ func (in *input) marker(o RunOptions) ([]byte, error) {
 		AcceptStale bool     `json:"accept_stale_columns,omitempty"`
 		Layout      string   `json:"layout,omitempty"` // "" = folder
 		PackBytes   int64    `json:"pack_bytes,omitempty"`
-	}{"augment", o.Version, hex.EncodeToString(plan[:]), hex.EncodeToString(h.Sum(nil)), o.Seed, o.Copies, o.Splits, o.OnError, o.AllowLabelChange, o.AcceptStale, packedLayout(o), packBytes(o)})
+	}{"augment", o.Version, hex.EncodeToString(plan[:]), hex.EncodeToString(h.Sum(nil)), o.Seed, o.Copies, o.Splits, o.OnError, o.AllowLabelChange, o.AcceptStale, layout, packBytes})
 }
 
 // RunPixels is the pixel budget of a whole run given the budget of one input
@@ -1191,22 +1193,3 @@ func CheckInvariance(p *Plan, classes []manifest.Class, defs []manifest.TargetDe
 }
 
 func fmtDeg(f float64) string { return fmt.Sprintf("%g", manifest.Round(f, 3)) }
-
-// packedLayout is the output layout a run marker names: "" for folder.
-func packedLayout(o RunOptions) string {
-	if o.Layout == manifest.LayoutPacked {
-		return o.Layout
-	}
-	return ""
-}
-
-// packBytes is the pack bound of a packed run (0 for the folder layout).
-func packBytes(o RunOptions) int64 {
-	if o.Layout != manifest.LayoutPacked {
-		return 0
-	}
-	if o.PackBytes <= 0 {
-		return manifest.DefaultPackBytes
-	}
-	return o.PackBytes
-}

@@ -191,6 +191,7 @@ func Run(ctx context.Context, o RunOptions) (Summary, error) {
 		Mode: r.Canvas.Mode, Classes: r.ClassTable(), Targets: tnames, TargetDefs: defs, Splits: table,
 	}
 
+	layout, packBytes := manifest.RunLayout(o.Layout, o.PackBytes)
 	marker, _ := json.Marshal(struct {
 		Run         string `json:"run"`
 		ToolVersion string `json:"tool_version"`
@@ -204,13 +205,13 @@ func Run(ctx context.Context, o RunOptions) (Summary, error) {
 		Cover       bool   `json:"require_coverage,omitempty"` // another allocation: not the same run
 		Layout      string `json:"layout,omitempty"`
 		PackBytes   int64  `json:"pack_bytes,omitempty"`
-	}{"generate", o.Version, recipeHash, o.Seed, o.Count, table.Spec, o.Stratify, o.Shard, o.Shards, o.RequireCoverage, packedOnly(o.Layout), packBytes(o)})
+	}{"generate", o.Version, recipeHash, o.Seed, o.Count, table.Spec, o.Stratify, o.Shard, o.Shards, o.RequireCoverage, layout, packBytes})
 	// A layout no sample can meet fails here, before the folder is touched,
 	// rather than after the run has started (and invited a --resume).
 	if _, err := NewRenderer(r).Generate(o.Seed, first); err != nil {
 		return Summary{Splits: table}, r.layoutRecipeError(err)
 	}
-	co := manifest.CreateOptions{Force: o.Force, FS: o.FS, Marker: marker, Layout: o.Layout, PackBytes: packBytes(o)}
+	co := manifest.CreateOptions{Force: o.Force, FS: o.FS, Marker: marker, Layout: layout, PackBytes: packBytes}
 	var w *manifest.Writer
 	resumed := 0
 	if o.Resume {
@@ -292,24 +293,4 @@ func (r *Recipe) layoutRecipeError(err error) error {
 	}
 	return &RecipeError{File: file, Path: le.Path(),
 		Msg: fmt.Sprintf("sample %d cannot be laid out: %s (gave up after %d attempts); loosen the layout: fewer or smaller objects, a larger region, more overlap or lower least_pixels/least_shown", le.Index, le.Constraint, MaxAttempts)}
-}
-
-// packedOnly is the layout a run marker names: "" for the folder layout,
-// so markers of folder runs read as before.
-func packedOnly(layout string) string {
-	if layout == manifest.LayoutPacked {
-		return layout
-	}
-	return ""
-}
-
-// packBytes is the pack bound of a packed run (0 for the folder layout).
-func packBytes(o RunOptions) int64 {
-	if o.Layout != manifest.LayoutPacked {
-		return 0
-	}
-	if o.PackBytes <= 0 {
-		return manifest.DefaultPackBytes
-	}
-	return o.PackBytes
 }

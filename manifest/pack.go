@@ -125,6 +125,19 @@ func (f *IndexedFile) UnmarshalJSON(b []byte) error {
 	return nil
 }
 
+// RunLayout is a run's layout and pack bound as its run marker and
+// CreateOptions take them: ("", 0) for the folder layout ("" or
+// LayoutFolder), else LayoutPacked and the bound (DefaultPackBytes for 0).
+func RunLayout(layout string, bound int64) (string, int64) {
+	if layout != LayoutPacked {
+		return "", 0
+	}
+	if bound <= 0 {
+		bound = DefaultPackBytes
+	}
+	return layout, bound
+}
+
 // PackName is the name of split's pack number n.
 func PackName(split string, n int) string {
 	return fmt.Sprintf("%s/%s-%05d.tar", PacksDir, split, n)
