@@ -641,10 +641,15 @@ func (in *input) carryOver(rec *manifest.Record, decodeImage bool, w *manifest.W
 // (background or ignore where there is none), every mask value a class of
 // the table or 255, and every count target the number of such objects.
 func checkLabels(rec *manifest.Record, mask *image.Paletted, inst *image.Gray16, classes []manifest.Class, defs []manifest.TargetDef) error {
-	known := map[int]bool{manifest.IgnoreID: true}
+	// Tables, not maps: the pixel loop below looks both up for every pixel.
+	var knownTab [256]bool
+	knownTab[manifest.IgnoreID] = true
+	known := func(c int) bool { return c >= 0 && c < len(knownTab) && knownTab[c] }
 	byName := map[string]int{}
 	for _, c := range classes {
-		known[c.ID] = true
+		if c.ID >= 0 && c.ID < len(knownTab) {
+			knownTab[c.ID] = true
+		}
 		byName[c.Name] = c.ID
 	}
 	stats := manifest.MeasureInstances(inst)
@@ -655,7 +660,7 @@ func checkLabels(rec *manifest.Record, mask *image.Paletted, inst *image.Gray16,
 			return fmt.Errorf("instance %d has two objects in the record", o.Instance)
 		}
 		byID[o.Instance] = o
-		if !known[o.Class] || o.Class == manifest.IgnoreID {
+		if !known(o.Class) || o.Class == manifest.IgnoreID {
 			return fmt.Errorf("object %d has class %d, which is not in dataset.json's class table", o.Instance, o.Class)
 		}
 		st := stats[o.Instance]
@@ -676,18 +681,28 @@ func checkLabels(rec *manifest.Record, mask *image.Paletted, inst *image.Gray16,
 			return fmt.Errorf("%s: instance %d is in the instance mask but not in the record", rec.Instances, id)
 		}
 	}
+	// Every object is in the instance mask (checked above), so its id is
+	// 1..65535; classOf[id] is its class, 0 where no object has the id.
+	maxID := 0
+	for i := range rec.Objects {
+		maxID = max(maxID, rec.Objects[i].Instance)
+	}
+	classOf := make([]int, maxID+1)
+	for i := range rec.Objects {
+		classOf[rec.Objects[i].Instance] = rec.Objects[i].Class
+	}
 	w := rec.Width
 	for y := 0; y < rec.Height; y++ {
 		for x := 0; x < w; x++ {
 			c := int(mask.Pix[y*mask.Stride+x])
 			o := inst.Pix[y*inst.Stride+2*x:]
 			id := int(o[0])<<8 | int(o[1])
-			if !known[c] {
+			if !knownTab[c] {
 				return fmt.Errorf("%s: pixel (%d, %d) has value %d, which is no class of dataset.json and not 255 (ignore)", rec.Mask, x, y, c)
 			}
 			want := 0
-			if ob := byID[id]; ob != nil {
-				want = ob.Class
+			if id <= maxID {
+				want = classOf[id]
 			}
 			if c != want && !(id == 0 && c == manifest.IgnoreID) {
 				return fmt.Errorf("%s: pixel (%d, %d) has class %d, its instance %d is class %d", rec.Mask, x, y, c, id, want)
