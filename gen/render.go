@@ -32,6 +32,59 @@ type Renderer struct {
 	alone   []int
 	bg      bgPainter
 	splitOf func(index int) string // the split a sample was dealt to, for the instruments; nil = unknown
+
+	// reuse: Render draws into the same four images every time (kept in
+	// out), so a sample is valid only until the next Render; set by
+	// ReuseSamples for callers that encode each sample before the next.
+	reuse bool
+	out   struct {
+		gray *image.Gray
+		rgba *image.RGBA
+		mask *image.Paletted
+		inst *image.Gray16
+	}
+}
+
+// ReuseSamples makes Render (and Generate) draw into the same images on
+// every call instead of new ones, so a run allocates nothing per sample
+// that grows with the canvas: each Sample returned is valid only until the
+// next call. gen.Run's workers, which encode a sample before drawing the
+// next, use it.
+func (rd *Renderer) ReuseSamples() { rd.reuse = true }
+
+// images returns the sample's four images: new ones, or the kept ones
+// cleared to zero.
+func (rd *Renderer) images(rect image.Rectangle, rgb bool) (*image.Gray, *image.RGBA, *image.Paletted, *image.Gray16) {
+	if !rd.reuse {
+		mask := image.NewPaletted(rect, manifest.MaskPalette(rd.palette))
+		if rgb {
+			return nil, image.NewRGBA(rect), mask, image.NewGray16(rect)
+		}
+		return image.NewGray(rect), nil, mask, image.NewGray16(rect)
+	}
+	o := &rd.out
+	if o.mask == nil || o.mask.Rect != rect {
+		o.mask = image.NewPaletted(rect, manifest.MaskPalette(rd.palette))
+		o.inst = image.NewGray16(rect)
+		o.gray, o.rgba = nil, nil
+	} else {
+		clear(o.mask.Pix)
+		clear(o.inst.Pix)
+	}
+	if rgb {
+		if o.rgba == nil {
+			o.rgba = image.NewRGBA(rect)
+		} else {
+			clear(o.rgba.Pix)
+		}
+		return nil, o.rgba, o.mask, o.inst
+	}
+	if o.gray == nil {
+		o.gray = image.NewGray(rect)
+	} else {
+		clear(o.gray.Pix)
+	}
+	return o.gray, nil, o.mask, o.inst
 }
 
 // NewRenderer returns a Renderer for a validated recipe.
@@ -131,18 +184,15 @@ func (rd *Renderer) Render(p *Plan) (*Sample, error) {
 	r := rd.r
 	W, H := r.Canvas.Width, r.Canvas.Height
 	rect := image.Rect(0, 0, W, H)
-	inst := image.NewGray16(rect)
-	mask := image.NewPaletted(rect, manifest.MaskPalette(rd.palette))
 	rgb := r.Canvas.Mode == "rgb"
+	gray, rgba, mask, inst := rd.images(rect, rgb)
 	var pix []uint8
 	var stride, bpp int
 	var img image.Image
 	if rgb {
-		m := image.NewRGBA(rect)
-		pix, stride, bpp, img = m.Pix, m.Stride, 4, m
+		pix, stride, bpp, img = rgba.Pix, rgba.Stride, 4, rgba
 	} else {
-		m := image.NewGray(rect)
-		pix, stride, bpp, img = m.Pix, m.Stride, 1, m
+		pix, stride, bpp, img = gray.Pix, gray.Stride, 1, gray
 	}
 	rd.bg.paint(&p.Background, pix, stride, bpp, W, H)
 	if p.Cue {

@@ -225,6 +225,7 @@ func Run(ctx context.Context, o RunOptions) (Summary, error) {
 	lo += resumed
 	newProduce := func() manifest.Produce {
 		rd := NewRenderer(r)
+		rd.ReuseSamples() // produce encodes each sample before the next
 		rd.splitOf = func(i int) string { return splits.Names[alloc.Split[i]] }
 		enc := manifest.NewEncoder()
 		return func(i int) ([]*manifest.Record, int64, error) {

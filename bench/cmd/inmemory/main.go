@@ -73,6 +73,7 @@ func run(count, workers int, preset, recipe string, seed uint64) error {
 		go func(w int) {
 			defer wg.Done()
 			rd := gen.NewRenderer(r)
+			rd.ReuseSamples() // as gen.Run's workers do
 			enc := manifest.NewEncoder()
 			for i := w; i < count; i += workers {
 				s, err := rd.Generate(seed, i)
