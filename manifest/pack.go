@@ -138,6 +138,52 @@ func RunLayout(layout string, bound int64) (string, int64) {
 	return layout, bound
 }
 
+// appendJSON appends the entry as json.Marshal writes it (keys in field
+// order, no spaces), without reflection: the ordered writer does this once
+// per sample. TestIndexEntryJSON holds it to json.Marshal.
+func (e *IndexEntry) appendJSON(b []byte) []byte {
+	b = append(b, `{"id":`...)
+	b = appendJSONString(b, e.ID)
+	b = append(b, `,"split":`...)
+	b = appendJSONString(b, e.Split)
+	b = append(b, `,"pack":`...)
+	b = appendJSONString(b, e.Pack)
+	b = append(b, `,"at":[`...)
+	b = strconv.AppendInt(b, e.At[0], 10)
+	b = append(b, ',')
+	b = strconv.AppendInt(b, e.At[1], 10)
+	b = append(b, `],"files":[`...)
+	for i, f := range e.Files {
+		if i > 0 {
+			b = append(b, ',')
+		}
+		b = append(b, '[')
+		b = appendJSONString(b, f.Name)
+		b = append(b, ',')
+		b = strconv.AppendInt(b, f.Off, 10)
+		b = append(b, ',')
+		b = strconv.AppendInt(b, f.Size, 10)
+		b = append(b, ']')
+	}
+	return append(b, "]}"...)
+}
+
+// appendJSONString appends s as a JSON string as json.Marshal writes it;
+// names here are safe names (no quote, backslash or control character), so
+// only the HTML characters json.Marshal escapes need care: those go
+// through json.Marshal itself.
+func appendJSONString(b []byte, s string) []byte {
+	for i := 0; i < len(s); i++ {
+		if c := s[i]; c < 0x20 || c == '"' || c == '\\' || c == '<' || c == '>' || c == '&' || c >= 0x80 {
+			q, _ := json.Marshal(s)
+			return append(b, q...)
+		}
+	}
+	b = append(b, '"')
+	b = append(b, s...)
+	return append(b, '"')
+}
+
 // PackName is the name of split's pack number n.
 func PackName(split string, n int) string {
 	return fmt.Sprintf("%s/%s-%05d.tar", PacksDir, split, n)
@@ -208,6 +254,7 @@ type packer struct {
 
 	mu     sync.Mutex
 	staged map[string][]byte // record path -> bytes, from WriteFiles/WriteRaw until Append
+	line   []byte            // the index line being written, reused
 }
 
 func newPacker(dir string, bound int64, fsys FS) *packer {
@@ -324,11 +371,9 @@ func (p *packer) appendSample(rec *Record, line []byte) error {
 	}
 	e.At[1] = op.cw.n
 	op.info.Samples++
-	b, err := json.Marshal(e)
-	if err != nil {
-		return err
-	}
-	b = append(b, '\n')
+	p.line = e.appendJSON(p.line[:0])
+	b := append(p.line, '\n')
+	p.line = b
 	p.isum.Write(b)
 	if _, err := p.ibw.Write(b); err != nil {
 		return fmt.Errorf("write %s: %w", filepath.Join(p.dir, PacksDir, IndexFile), unwrapPath(err))

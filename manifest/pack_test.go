@@ -2,6 +2,7 @@ package manifest
 
 import (
 	"archive/tar"
+	"encoding/json"
 	"strings"
 	"testing"
 )
@@ -30,6 +31,25 @@ func TestMemberBytes(t *testing.T) {
 			if got != c.n {
 				t.Errorf("name of %d bytes, %d bytes of data: memberBytes %d, archive/tar writes %d", len(name), size, got, c.n)
 			}
+		}
+	}
+}
+
+// TestIndexEntryJSON holds the index line's hand-written encoder to
+// encoding/json (the reference), for plain ids and ids with characters
+// json.Marshal escapes or writes as UTF-8.
+func TestIndexEntryJSON(t *testing.T) {
+	for _, id := range []string{"000001", "a&b", "x<y>z", "é-ü", "seed-7_copy 3", "000001-c02"} {
+		e := IndexEntry{ID: id, Split: "train", Pack: PackName("train", 3), At: [2]int64{1024, 99999999999}}
+		for i, n := range MemberNames(id) {
+			e.Files[i] = IndexedFile{Name: n, Off: int64(1536 + i*512), Size: int64(i * 1000)}
+		}
+		want, err := json.Marshal(&e)
+		if err != nil {
+			t.Fatal(err)
+		}
+		if got := e.appendJSON(nil); string(got) != string(want) {
+			t.Errorf("id %q:\n got %s\nwant %s", id, got, want)
 		}
 	}
 }

@@ -53,6 +53,14 @@ func RunOrdered(ctx context.Context, lo, hi, workers int, newProduce func() Prod
 			produce := newProduce()
 			for i := range jobs {
 				recs, n, err := produce(i)
+				// Each record's line is marshaled here, in parallel, so
+				// the one goroutine that appends in order only copies it.
+				for _, rec := range recs {
+					if err != nil {
+						break
+					}
+					rec.line, err = MarshalRecord(rec)
+				}
 				select {
 				case results <- jobResult{i, recs, n, err}:
 				case <-ctx.Done():

@@ -37,6 +37,11 @@ type Record struct {
 	// false (undeclared labels.csv columns, accepted with
 	// --accept-stale-columns). Absent otherwise.
 	StaleTargets []string `json:"stale_targets,omitempty"`
+
+	// line is the record's manifest line, marshaled by a worker
+	// (RunOrdered) so the ordered writer only copies it; nil = marshal
+	// in Append.
+	line []byte
 }
 
 // Object is one instance in a sample. Instance, Class, Parent, Box, Area,

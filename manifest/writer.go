@@ -398,9 +398,12 @@ func (w *Writer) WriteFiles(rec *Record, enc *Encoder, img, mask, inst image.Ima
 
 // Append adds one record to manifest.jsonl; call in index order.
 func (w *Writer) Append(rec *Record) error {
-	b, err := MarshalRecord(rec)
-	if err != nil {
-		return err
+	b := rec.line
+	if b == nil {
+		var err error
+		if b, err = MarshalRecord(rec); err != nil {
+			return err
+		}
 	}
 	if len(b) > MaxRecordBytes {
 		return fmt.Errorf("record %s is %d bytes of JSON; a manifest line may hold at most %d (too many objects, or names too long)", rec.ID, len(b), MaxRecordBytes)
