@@ -168,6 +168,41 @@ func tileRun(runs []int, y, tx int) (int, int) {
 	return max(runs[2*y], tx), min(runs[2*y+1], tx+warpTile)
 }
 
+// eachTiledRun visits every row's inside run (runs, from insideRuns) of an
+// ow×oh output in warpTile×warpTile blocks, so a turned map reads its
+// source block by block; fn gets the row, the run's part in the block and
+// the row's terms inv[1]·(y+½) and inv[4]·(y+½), rounded as the reference
+// rounds them.
+func eachTiledRun(runs []int, ow, oh int, inv Mat, fn func(y, x0, x1 int, tu, tv float64)) {
+	for ty := 0; ty < oh; ty += warpTile {
+		for tx := 0; tx < ow; tx += warpTile {
+			for y := ty; y < min(ty+warpTile, oh); y++ {
+				x0, x1 := tileRun(runs, y, tx)
+				if x0 >= x1 {
+					continue
+				}
+				yc := float64(y) + 0.5
+				fn(y, x0, x1, float64(inv[1]*yc), float64(inv[4]*yc))
+			}
+		}
+	}
+}
+
+// sampleOutsideRuns computes the pixels left and right of each row's
+// inside run with the reference sampler.
+func sampleOutsideRuns(dst, src *Image, inv Mat, runs []int, interp Interp, fill Fill) {
+	C := src.C
+	for y := 0; y < dst.H; y++ {
+		row := dst.Pix[y*dst.W*C : (y+1)*dst.W*C]
+		for x := 0; x < runs[2*y]; x++ {
+			sampleRef(src, inv, x, y, interp, fill, row[x*C:x*C+C])
+		}
+		for x := runs[2*y+1]; x < dst.W; x++ {
+			sampleRef(src, inv, x, y, interp, fill, row[x*C:x*C+C])
+		}
+	}
+}
+
 // warpBilinear is the bilinear warp for a general map. A pixel whose
 // preimage (u, v) (less ½) has 0 ≤ u < W−1 and 0 ≤ v < H−1 has all four taps
 // inside: its floor is then the integer truncation and its weights and sums
@@ -178,37 +213,19 @@ func warpBilinear(dst, src *Image, inv Mat, fill Fill) {
 	W, C := src.W, src.C
 	au, av := columnTerms(inv, dst.W)
 	runs := insideRuns(au, av, inv, dst.H, 0.5, 0, float64(src.W-1), float64(src.H-1))
-	for y := 0; y < dst.H; y++ {
-		row := dst.Pix[y*dst.W*C : (y+1)*dst.W*C]
-		for x := 0; x < runs[2*y]; x++ {
-			sampleRef(src, inv, x, y, Bilinear, fill, row[x*C:x*C+C])
-		}
-		for x := runs[2*y+1]; x < dst.W; x++ {
-			sampleRef(src, inv, x, y, Bilinear, fill, row[x*C:x*C+C])
-		}
-	}
+	sampleOutsideRuns(dst, src, inv, runs, Bilinear, fill)
 	c2, c5 := inv[2], inv[5]
 	sp := src.Pix
 	stride := W * C
-	for ty := 0; ty < dst.H; ty += warpTile {
-		for tx := 0; tx < dst.W; tx += warpTile {
-			for y := ty; y < min(ty+warpTile, dst.H); y++ {
-				x0, x1 := tileRun(runs, y, tx)
-				if x0 >= x1 {
-					continue
-				}
-				yc := float64(y) + 0.5
-				tu, tv := float64(inv[1]*yc), float64(inv[4]*yc)
-				ru, rv := au[x0:x1], av[x0:x1]
-				rv = rv[:len(ru)]
-				if C == 3 {
-					bilinearRGB(dst.Pix[(y*dst.W+x0)*3:(y*dst.W+x1)*3], ru, rv, tu, tv, c2, c5, sp, stride)
-				} else {
-					bilinearGray(dst.Pix[y*dst.W+x0:y*dst.W+x1], ru, rv, tu, tv, c2, c5, sp, stride)
-				}
-			}
+	eachTiledRun(runs, dst.W, dst.H, inv, func(y, x0, x1 int, tu, tv float64) {
+		ru, rv := au[x0:x1], av[x0:x1]
+		rv = rv[:len(ru)]
+		if C == 3 {
+			bilinearRGB(dst.Pix[(y*dst.W+x0)*3:(y*dst.W+x1)*3], ru, rv, tu, tv, c2, c5, sp, stride)
+		} else {
+			bilinearGray(dst.Pix[y*dst.W+x0:y*dst.W+x1], ru, rv, tu, tv, c2, c5, sp, stride)
 		}
-	}
+	})
 }
 
 // bilinearGray computes a run of gray pixels whose taps all lie inside:
@@ -282,66 +299,48 @@ func warpBicubic(dst, src *Image, inv Mat, fill Fill) {
 	W, C := src.W, src.C
 	au, av := columnTerms(inv, dst.W)
 	runs := insideRuns(au, av, inv, dst.H, 0.5, 1, float64(src.W-2), float64(src.H-2))
-	for y := 0; y < dst.H; y++ {
-		row := dst.Pix[y*dst.W*C : (y+1)*dst.W*C]
-		for x := 0; x < runs[2*y]; x++ {
-			sampleRef(src, inv, x, y, Bicubic, fill, row[x*C:x*C+C])
-		}
-		for x := runs[2*y+1]; x < dst.W; x++ {
-			sampleRef(src, inv, x, y, Bicubic, fill, row[x*C:x*C+C])
-		}
-	}
+	sampleOutsideRuns(dst, src, inv, runs, Bicubic, fill)
 	c2, c5 := inv[2], inv[5]
 	sp := src.Pix
 	stride := W * C
-	for ty := 0; ty < dst.H; ty += warpTile {
-		for tx := 0; tx < dst.W; tx += warpTile {
-			for y := ty; y < min(ty+warpTile, dst.H); y++ {
-				x0, x1 := tileRun(runs, y, tx)
-				if x0 >= x1 {
-					continue
-				}
-				yc := float64(y) + 0.5
-				tu, tv := float64(inv[1]*yc), float64(inv[4]*yc)
-				row := dst.Pix[y*dst.W*C : (y+1)*dst.W*C]
-				for x := x0; x < x1; x++ {
-					u := au[x] + tu + c2 - 0.5
-					v := av[x] + tv + c5 - 0.5
-					i, j := int(u), int(v)
-					var kx, ky [4]float64
-					kx[0], kx[1], kx[2], kx[3] = keys4(u - float64(i))
-					ky[0], ky[1], ky[2], ky[3] = keys4(v - float64(j))
-					s := (j-1)*stride + (i-1)*C
-					if C == 3 {
-						var a0, a1, a2 float64
-						for dj := 0; dj < 4; dj++ {
-							p := sp[s+dj*stride : s+dj*stride+12 : s+dj*stride+12]
-							wy := ky[dj]
-							for di := 0; di < 4; di++ {
-								w := wy * kx[di]
-								a0 += float64(w * float64(p[3*di]))
-								a1 += float64(w * float64(p[3*di+1]))
-								a2 += float64(w * float64(p[3*di+2]))
-							}
-						}
-						o := row[3*x : 3*x+3 : 3*x+3]
-						o[0], o[1], o[2] = float32(a0), float32(a1), float32(a2)
-					} else {
-						var a0 float64
-						for dj := 0; dj < 4; dj++ {
-							p := sp[s+dj*stride : s+dj*stride+4 : s+dj*stride+4]
-							wy := ky[dj]
-							a0 += float64(wy * kx[0] * float64(p[0]))
-							a0 += float64(wy * kx[1] * float64(p[1]))
-							a0 += float64(wy * kx[2] * float64(p[2]))
-							a0 += float64(wy * kx[3] * float64(p[3]))
-						}
-						row[x] = float32(a0)
+	eachTiledRun(runs, dst.W, dst.H, inv, func(y, x0, x1 int, tu, tv float64) {
+		row := dst.Pix[y*dst.W*C : (y+1)*dst.W*C]
+		for x := x0; x < x1; x++ {
+			u := au[x] + tu + c2 - 0.5
+			v := av[x] + tv + c5 - 0.5
+			i, j := int(u), int(v)
+			var kx, ky [4]float64
+			kx[0], kx[1], kx[2], kx[3] = keys4(u - float64(i))
+			ky[0], ky[1], ky[2], ky[3] = keys4(v - float64(j))
+			s := (j-1)*stride + (i-1)*C
+			if C == 3 {
+				var a0, a1, a2 float64
+				for dj := 0; dj < 4; dj++ {
+					p := sp[s+dj*stride : s+dj*stride+12 : s+dj*stride+12]
+					wy := ky[dj]
+					for di := 0; di < 4; di++ {
+						w := wy * kx[di]
+						a0 += float64(w * float64(p[3*di]))
+						a1 += float64(w * float64(p[3*di+1]))
+						a2 += float64(w * float64(p[3*di+2]))
 					}
 				}
+				o := row[3*x : 3*x+3 : 3*x+3]
+				o[0], o[1], o[2] = float32(a0), float32(a1), float32(a2)
+			} else {
+				var a0 float64
+				for dj := 0; dj < 4; dj++ {
+					p := sp[s+dj*stride : s+dj*stride+4 : s+dj*stride+4]
+					wy := ky[dj]
+					a0 += float64(wy * kx[0] * float64(p[0]))
+					a0 += float64(wy * kx[1] * float64(p[1]))
+					a0 += float64(wy * kx[2] * float64(p[2]))
+					a0 += float64(wy * kx[3] * float64(p[3]))
+				}
+				row[x] = float32(a0)
 			}
 		}
-	}
+	})
 }
 
 // nearestPlane is the nearest-neighbour warp of a mask plane of bpp bytes a
@@ -362,25 +361,15 @@ func nearestPlane(dp []byte, dstride, ow, oh int, sp []byte, sstride, w, h, bpp 
 		}
 	}
 	c2, c5 := inv[2], inv[5]
-	for ty := 0; ty < oh; ty += warpTile {
-		for tx := 0; tx < ow; tx += warpTile {
-			for y := ty; y < min(ty+warpTile, oh); y++ {
-				x0, x1 := tileRun(runs, y, tx)
-				if x0 >= x1 {
-					continue
-				}
-				yc := float64(y) + 0.5
-				tu, tv := float64(inv[1]*yc), float64(inv[4]*yc)
-				ru, rv := au[x0:x1], av[x0:x1]
-				rv = rv[:len(ru)]
-				if bpp == 1 {
-					nearest1(dp[y*dstride+x0:y*dstride+x1], ru, rv, tu, tv, c2, c5, sp, sstride)
-				} else {
-					nearest2(dp[y*dstride+2*x0:y*dstride+2*x1], ru, rv, tu, tv, c2, c5, sp, sstride)
-				}
-			}
+	eachTiledRun(runs, ow, oh, inv, func(y, x0, x1 int, tu, tv float64) {
+		ru, rv := au[x0:x1], av[x0:x1]
+		rv = rv[:len(ru)]
+		if bpp == 1 {
+			nearest1(dp[y*dstride+x0:y*dstride+x1], ru, rv, tu, tv, c2, c5, sp, sstride)
+		} else {
+			nearest2(dp[y*dstride+2*x0:y*dstride+2*x1], ru, rv, tu, tv, c2, c5, sp, sstride)
 		}
-	}
+	})
 }
 
 // nearest1 computes a run of 1-byte mask pixels whose preimages all lie
@@ -427,19 +416,9 @@ func nearestPair(dm []byte, dmStride int, di []byte, diStride int, ow, oh int, s
 		}
 	}
 	c2, c5 := inv[2], inv[5]
-	for ty := 0; ty < oh; ty += warpTile {
-		for tx := 0; tx < ow; tx += warpTile {
-			for y := ty; y < min(ty+warpTile, oh); y++ {
-				x0, x1 := tileRun(runs, y, tx)
-				if x0 >= x1 {
-					continue
-				}
-				yc := float64(y) + 0.5
-				tu, tv := float64(inv[1]*yc), float64(inv[4]*yc)
-				nearestBoth(dm[y*dmStride+x0:y*dmStride+x1], di[y*diStride+2*x0:y*diStride+2*x1], au[x0:x1], av[x0:x1], tu, tv, c2, c5, sm, smStride, si, siStride)
-			}
-		}
-	}
+	eachTiledRun(runs, ow, oh, inv, func(y, x0, x1 int, tu, tv float64) {
+		nearestBoth(dm[y*dmStride+x0:y*dmStride+x1], di[y*diStride+2*x0:y*diStride+2*x1], au[x0:x1], av[x0:x1], tu, tv, c2, c5, sm, smStride, si, siStride)
+	})
 }
 
 // nearestBoth is nearest1 and nearest2 in one loop.
