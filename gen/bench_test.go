@@ -1,6 +1,8 @@
 package gen
 
 import (
+	"github.com/trueset/trueset/internal/benchcpu"
+
 	"bytes"
 	"context"
 	"fmt"
@@ -191,7 +193,7 @@ func BenchmarkGenerateCanvas(b *testing.B) {
 			enc := manifest.NewEncoder()
 			total := 0
 			b.ReportAllocs()
-			defer cpuPerOp(b)()
+			defer benchcpu.PerOp(b)()
 			for i := 0; b.Loop(); i++ {
 				s, err := rd.Generate(1, i%64)
 				if err != nil {

@@ -1,6 +1,8 @@
 package manifest_test
 
 import (
+	"github.com/trueset/trueset/internal/benchcpu"
+
 	"fmt"
 	"image"
 	"math"
@@ -59,7 +61,7 @@ func BenchmarkPNGChoice(b *testing.B) {
 						}
 						total += len(out)
 					}
-					defer cpuPerOp(b)()
+					defer benchcpu.PerOp(b)()
 					for i := 0; b.Loop(); i++ {
 						if _, err := enc(e, set.ims[i%len(set.ims)]); err != nil {
 							b.Fatal(err)

@@ -1,17 +1,15 @@
 //go:build unix
 
-package gen
+package benchcpu
 
 import (
 	"syscall"
 	"testing"
 )
 
-// cpuPerOp reports the process's CPU time (user + system, from getrusage)
-// per operation as "cpu-ns/op" when the returned function runs. On a
-// machine shared with other jobs, a benchmark's wall time counts the time it
-// waited for a core; its CPU time does not.
-func cpuPerOp(b *testing.B) func() {
+// PerOp starts counting; the function it returns reports the process's CPU
+// time per operation as "cpu-ns/op" (defer it).
+func PerOp(b *testing.B) func() {
 	cpu := func() int64 {
 		var ru syscall.Rusage
 		if err := syscall.Getrusage(syscall.RUSAGE_SELF, &ru); err != nil {

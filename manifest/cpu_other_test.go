@@ -1,8 +1,0 @@
-//go:build !unix
-
-package manifest_test
-
-import "testing"
-
-// cpuPerOp reports nothing where getrusage is not available.
-func cpuPerOp(b *testing.B) func() { return func() {} }
