@@ -1,8 +1,6 @@
 package gen
 
 import (
-	"github.com/trueset/trueset/internal/benchcpu"
-
 	"bytes"
 	"context"
 	"fmt"
@@ -10,6 +8,7 @@ import (
 	"image/png"
 	"testing"
 
+	"github.com/trueset/trueset/internal/benchcpu"
 	"github.com/trueset/trueset/manifest"
 )
 

@@ -1,8 +1,6 @@
 package manifest_test
 
 import (
-	"github.com/trueset/trueset/internal/benchcpu"
-
 	"fmt"
 	"image"
 	"math"
@@ -10,6 +8,7 @@ import (
 	"testing"
 
 	"github.com/trueset/trueset/gen"
+	"github.com/trueset/trueset/internal/benchcpu"
 	"github.com/trueset/trueset/manifest"
 )
 
