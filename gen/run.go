@@ -45,6 +45,22 @@ type Summary struct {
 	Splits  manifest.SplitTable
 }
 
+// SplitDefaults fills in the ratios and the stratification key a run
+// uses when not given: the recipe's split.ratios (else
+// manifest.DefaultSplits) and its split.stratify.
+func (r *Recipe) SplitDefaults(ratios, stratify string) (string, string) {
+	if ratios == "" && r.Split != nil {
+		ratios = r.Split.Ratios
+	}
+	if ratios == "" {
+		ratios = manifest.DefaultSplits
+	}
+	if stratify == "" && r.Split != nil {
+		stratify = r.Split.Stratify
+	}
+	return ratios, stratify
+}
+
 // MaxCount bounds --count.
 const MaxCount = 100_000_000
 
@@ -132,15 +148,7 @@ func Run(ctx context.Context, o RunOptions) (Summary, error) {
 	if workers <= 0 {
 		workers = runtime.NumCPU()
 	}
-	if o.Splits == "" && r.Split != nil {
-		o.Splits = r.Split.Ratios
-	}
-	if o.Splits == "" {
-		o.Splits = manifest.DefaultSplits
-	}
-	if o.Stratify == "" && r.Split != nil {
-		o.Stratify = r.Split.Stratify
-	}
+	o.Splits, o.Stratify = r.SplitDefaults(o.Splits, o.Stratify)
 	if r.Split != nil && r.Split.RequireCoverage {
 		o.RequireCoverage = true
 	}

@@ -3,5 +3,7 @@
 // other jobs a benchmark's wall time counts the time it waited for a core,
 // its CPU time does not. Where getrusage is missing it reports nothing.
 //
-// It imports nothing of ours; only benchmarks use it.
+// Process is the same CPU time for a program that times itself.
+//
+// It imports nothing of ours; only benchmarks and bench/cmd use it.
 package benchcpu

@@ -20,10 +20,10 @@ import (
 	"path/filepath"
 	"strings"
 	"sync"
-	"syscall"
 	"time"
 
 	"github.com/trueset/trueset/gen"
+	"github.com/trueset/trueset/internal/benchcpu"
 	"github.com/trueset/trueset/manifest"
 )
 
@@ -64,13 +64,7 @@ func run(count, workers int, preset string, seed uint64, out string) error {
 	// Not timed: render every sample, and the manifest with the same split,
 	// strata and record layout trueset writes (checksums are placeholders of
 	// the same length).
-	spec, key := manifest.DefaultSplits, ""
-	if r.Split != nil {
-		key = r.Split.Stratify
-		if r.Split.Ratios != "" {
-			spec = r.Split.Ratios
-		}
-	}
+	spec, key := r.SplitDefaults("", "")
 	splits, err := manifest.ParseSplits(spec)
 	if err != nil {
 		return err
@@ -121,7 +115,7 @@ func run(count, workers int, preset string, seed uint64, out string) error {
 	}
 
 	// Timed: encode with image/png's defaults and write.
-	cpu0 := cpuTime()
+	cpu0 := benchcpu.Process()
 	start := time.Now()
 	for _, sub := range []string{manifest.ImagesDir, manifest.MasksDir, manifest.InstancesDir} {
 		if err := os.MkdirAll(filepath.Join(out, sub), 0o755); err != nil {
@@ -165,20 +159,11 @@ func run(count, workers int, preset string, seed uint64, out string) error {
 		return err
 	}
 	elapsed := time.Since(start)
-	cpu := cpuTime() - cpu0
+	cpu := benchcpu.Process() - cpu0
 	var total int64
 	for _, n := range sizes {
 		total += n
 	}
 	fmt.Printf("seconds=%.3f cpu_seconds=%.3f files=%d bytes=%d manifest_bytes=%d\n", elapsed.Seconds(), cpu.Seconds(), 3*count, total, mf.Len())
 	return nil
-}
-
-// cpuTime is this process's user + system time so far.
-func cpuTime() time.Duration {
-	var ru syscall.Rusage
-	if err := syscall.Getrusage(syscall.RUSAGE_SELF, &ru); err != nil {
-		return 0
-	}
-	return time.Duration(ru.Utime.Nano() + ru.Stime.Nano())
 }

@@ -49,13 +49,7 @@ func run(count, workers int, preset, recipe string, seed uint64) error {
 	if err != nil {
 		return err
 	}
-	spec, key := manifest.DefaultSplits, ""
-	if r.Split != nil {
-		key = r.Split.Stratify
-		if r.Split.Ratios != "" {
-			spec = r.Split.Ratios
-		}
-	}
+	spec, key := r.SplitDefaults("", "")
 	splits, err := manifest.ParseSplits(spec)
 	if err != nil {
 		return err

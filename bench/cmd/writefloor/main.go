@@ -18,9 +18,9 @@ import (
 	"path/filepath"
 	"slices"
 	"sync"
-	"syscall"
 	"time"
 
+	"github.com/trueset/trueset/internal/benchcpu"
 	"github.com/trueset/trueset/internal/safefile"
 	"github.com/trueset/trueset/manifest"
 )
@@ -78,7 +78,7 @@ func run(from, out string, workers int) error {
 		return err
 	}
 
-	cpu0 := cpuTime()
+	cpu0 := benchcpu.Process()
 	start := time.Now()
 	for _, d := range dirs {
 		if err := os.MkdirAll(filepath.Join(out, d), 0o755); err != nil {
@@ -113,20 +113,11 @@ func run(from, out string, workers int) error {
 		return err
 	}
 	elapsed := time.Since(start)
-	cpu := cpuTime() - cpu0
+	cpu := benchcpu.Process() - cpu0
 	total := int64(len(mf))
 	for _, n := range sizes {
 		total += n
 	}
 	fmt.Printf("seconds=%.3f cpu_seconds=%.3f files=%d bytes=%d\n", elapsed.Seconds(), cpu.Seconds(), 3*len(samples)+1, total)
 	return nil
-}
-
-// cpuTime is this process's user + system time so far.
-func cpuTime() time.Duration {
-	var ru syscall.Rusage
-	if err := syscall.Getrusage(syscall.RUSAGE_SELF, &ru); err != nil {
-		return 0
-	}
-	return time.Duration(ru.Utime.Nano() + ru.Stime.Nano())
 }
