@@ -3,6 +3,7 @@ package manifest
 import (
 	"bufio"
 	"fmt"
+	"io"
 	"path/filepath"
 
 	"github.com/trueset/trueset/internal/safefile"
@@ -47,16 +48,19 @@ func Convert(dir, out string, o ConvertOptions) (*Dataset, error) {
 		return nil, err
 	}
 	defer f.Close()
-	br := bufio.NewReaderSize(f, 1<<16)
+	lr := &lineReader{br: bufio.NewReaderSize(f, 1<<16), max: MaxRecordBytes}
 	no := 0
 	for {
-		line, err := readLine(br, MaxRecordBytes)
-		if line == nil && err == nil {
+		line, over, err := lr.next()
+		if err == io.EOF {
 			break
 		}
 		no++
 		if err != nil {
 			return nil, fmt.Errorf("%s:%d: %v", mp, no, err)
+		}
+		if over {
+			return nil, fmt.Errorf("%s:%d: the line is over %d bytes, the most a record may take", mp, no, MaxRecordBytes)
 		}
 		rec, _, err := decodeRecordLine(line)
 		if rec == nil && err == nil {
@@ -96,29 +100,4 @@ func Convert(dir, out string, o ConvertOptions) (*Dataset, error) {
 		return nil, fmt.Errorf("%s: SHA-256 %s, %s says %s; the output in %s is not a copy: run trueset verify %s", mp, d.ManifestSHA256, filepath.Join(dir, DatasetFile), want, out, dir)
 	}
 	return d, nil
-}
-
-// readLine returns the next line without its newline (nil, nil at the
-// end); a line over limit bytes is an error.
-func readLine(br *bufio.Reader, limit int) ([]byte, error) {
-	var line []byte
-	for {
-		chunk, err := br.ReadSlice('\n')
-		line = append(line, chunk...)
-		if len(line) > limit+1 {
-			return nil, fmt.Errorf("the line is over %d bytes, the most a record may take", limit)
-		}
-		if err == bufio.ErrBufferFull {
-			continue
-		}
-		if err != nil && len(line) == 0 {
-			return nil, nil
-		}
-		if n := len(line); n > 0 && line[n-1] == '\n' {
-			return line[:n-1], nil
-		}
-		if err != nil {
-			return nil, fmt.Errorf("the last line has no newline (a torn write?)")
-		}
-	}
 }

@@ -6,7 +6,6 @@ import (
 	"crypto/sha256"
 	"encoding/hex"
 	"encoding/json"
-	"errors"
 	"fmt"
 	"hash"
 	"io"
@@ -481,10 +480,6 @@ func (p *packer) createIndex() error {
 	p.index, p.ibw = f, bufio.NewWriterSize(f, 1<<16)
 	return nil
 }
-
-// errPackDamaged stops a resume's scan at the first sample whose members
-// are not all there with their checksums.
-var errPackDamaged = errors.New("damaged")
 
 // packScan checks, sample by sample in manifest order, that an
 // interrupted packed run's index lines and members are all on disk with

@@ -257,10 +257,3 @@ func (px *packIndex) open(rel string) (*SampleFile, error) {
 	}
 	return &SampleFile{Rel: rel, ra: f, off: e.off[k], size: e.size[k], closer: f}, nil
 }
-
-// IsPacked reports whether the finished dataset in dir is in the packed
-// layout (false for the folder layout or when dir holds no dataset.json).
-func IsPacked(dir string) (bool, error) {
-	px, err := packIndexFor(dir)
-	return px != nil, err
-}
