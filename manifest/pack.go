@@ -16,6 +16,8 @@ import (
 	"strconv"
 	"sync"
 	"time"
+
+	"github.com/trueset/trueset/internal/safefile"
 )
 
 // The packed layout (DEVELOPERS.md, "Packed layout"): each split's samples
@@ -494,9 +496,12 @@ type packScan struct {
 }
 
 func newPackScan(dir string) (*packScan, error) {
-	b, err := os.ReadFile(filepath.Join(dir, PacksDir, IndexFile))
-	if err != nil && !os.IsNotExist(err) {
-		return nil, err
+	ip := filepath.Join(dir, PacksDir, IndexFile)
+	var b []byte
+	if _, err := os.Lstat(ip); err == nil {
+		if b, err = safefile.Read(ip, "pack index", MaxIndexBytes); err != nil {
+			return nil, err
+		}
 	}
 	return &packScan{dir: dir, index: b, files: map[string]*os.File{}}, nil
 }
@@ -531,7 +536,7 @@ func (s *packScan) intact(rec *Record, line []byte) bool {
 	f := s.files[e.Pack]
 	if f == nil {
 		var err error
-		if f, err = os.Open(filepath.Join(s.dir, e.Pack)); err != nil {
+		if f, err = openPackFile(s.dir, e.Pack); err != nil {
 			return false
 		}
 		s.files[e.Pack] = f
@@ -668,9 +673,18 @@ func (s *packScan) rebuild(n int, fsys FS, bound int64) (*packer, error) {
 	return p, nil
 }
 
+// openPackFile opens pack name inside dir: a regular file, no link out.
+func openPackFile(dir, name string) (*os.File, error) {
+	p, err := ResolveInside(dir, name)
+	if err != nil {
+		return nil, err
+	}
+	return safefile.Open(p)
+}
+
 // hashPrefix feeds the first n bytes of the file at path to h.
 func hashPrefix(h hash.Hash, path string, n int64) error {
-	f, err := os.Open(path)
+	f, err := safefile.Open(path)
 	if err != nil {
 		return err
 	}
